@@ -1,0 +1,19 @@
+"""ohmgraph.engine: pure computation on arrays (no file I/O, no printing).
+
+The network model, well-posedness checks, contraction of sources, the reduced nodal system,
+solvers, and recovery of branch quantities with residual checks.
+"""
+
+from ohmgraph.engine.checks import CheckReport, Finding, check
+from ohmgraph.engine.network import (CURRENT_SOURCE, KIND_LETTERS, RESISTOR, VOLTAGE_SOURCE,
+                                     Network)
+from ohmgraph.engine.solve import NetworkNotSolvable, Solution, solve
+from ohmgraph.engine.solvers import (DEFAULT_RTOL, SolveInfo, SolverFailed, SPDSolver,
+                                     make_solver, solve_spd)
+
+__all__ = [
+    "Network", "RESISTOR", "VOLTAGE_SOURCE", "CURRENT_SOURCE", "KIND_LETTERS",
+    "check", "CheckReport", "Finding",
+    "solve", "Solution", "NetworkNotSolvable",
+    "solve_spd", "make_solver", "SPDSolver", "SolveInfo", "SolverFailed", "DEFAULT_RTOL",
+]

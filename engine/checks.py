@@ -1,0 +1,278 @@
+"""Well-posedness checks: is there exactly one solution, and if not, which nodes and branches are
+at fault.
+
+A linear resistive network with positive resistances has a unique solution exactly when
+(Kirchhoff's laws; see e.g. Chua, Desoer & Kuh, *Linear and Nonlinear Circuits*, 1987, ch. 9):
+
+* no loop made only of voltage sources and ideal connections breaks KVL (a KVL-consistent one
+  still leaves the current circulating around it undetermined);
+* no set of nodes is joined to the rest only through current sources that inject a non-zero net
+  current into it (KCL across that cut set cannot hold);
+* every node has a path of resistors, voltage sources or ideal connections to the reference
+  (otherwise its potential floats).
+
+The components come from :func:`scipy.sparse.csgraph.connected_components`; the loops from the
+supernode contraction (:mod:`ohmgraph.engine.contraction`).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+import scipy.sparse as sp
+from scipy.sparse.csgraph import connected_components
+
+from ohmgraph.engine.contraction import Contraction, contract
+from ohmgraph.engine.network import CURRENT_SOURCE, RESISTOR, Network
+
+ERROR, WARNING, INFO = "error", "warning", "info"
+CONDUCTANCE_SPREAD_LIMIT = 1e12
+KVL_RELATIVE_TOLERANCE = 1e-9
+KCL_RELATIVE_TOLERANCE = 1e-9
+
+
+@dataclass(frozen=True)
+class Finding:
+    """One result of a check.
+
+    Attributes
+    ----------
+    severity : {"error", "warning", "info"}
+    code : str
+        Stable identifier (for example ``"kvl-violation"``).
+    message : str
+        One sentence for a person.
+    nodes, branches : ndarray of int64
+        Every node / branch index involved (renderers show the first few and the count).
+    """
+
+    severity: str
+    code: str
+    message: str
+    nodes: np.ndarray = field(default_factory=lambda: np.empty(0, np.int64))
+    branches: np.ndarray = field(default_factory=lambda: np.empty(0, np.int64))
+
+
+@dataclass
+class CheckReport:
+    """All findings for a network, its summary, and the contraction later stages reuse."""
+
+    findings: list
+    summary: dict
+    contraction: Contraction | None
+    pinned_nodes: np.ndarray
+
+    @property
+    def solvable(self) -> bool:
+        """True when no finding is an error."""
+        return not any(f.severity == ERROR for f in self.findings)
+
+    def of_severity(self, severity: str) -> list:
+        return [f for f in self.findings if f.severity == severity]
+
+
+def _indices(mask_or_index) -> np.ndarray:
+    arr = np.asarray(mask_or_index)
+    return np.flatnonzero(arr).astype(np.int64) if arr.dtype == bool else arr.astype(np.int64)
+
+
+def _value_findings(net: Network) -> list:
+    findings = []
+    bad = _indices(~np.isfinite(net.value))
+    if bad.size:
+        findings.append(Finding(ERROR, "non-finite-value",
+                                f"{bad.size} branch value(s) are not finite numbers",
+                                branches=bad))
+    negative = _indices((net.kind == RESISTOR) & (net.value < 0))
+    if negative.size:
+        findings.append(Finding(
+            ERROR, "negative-resistance",
+            f"{negative.size} resistor(s) have negative resistance; only passive networks are "
+            "supported", branches=negative))
+    loops = _indices(net.from_node == net.to_node)
+    if loops.size:
+        findings.append(Finding(WARNING, "self-loop",
+                                f"{loops.size} branch(es) start and end on the same node",
+                                nodes=np.unique(net.from_node[loops]), branches=loops))
+    _, first, counts = np.unique(net.branch_names, return_index=True, return_counts=True)
+    if np.any(counts > 1):
+        repeated = np.isin(net.branch_names, net.branch_names[first[counts > 1]])
+        dup = _indices(repeated)
+        findings.append(Finding(WARNING, "duplicate-name",
+                                f"{int((counts > 1).sum())} branch name(s) are used more than "
+                                f"once ({dup.size} branches)", branches=dup))
+    ideal = _indices((net.kind == RESISTOR) & (net.value == 0))
+    if ideal.size:
+        findings.append(Finding(INFO, "ideal-connection",
+                                f"{ideal.size} zero-ohm resistor(s) are ideal connections; the "
+                                "nodes they join are merged", branches=ideal))
+    resistive = (net.kind == RESISTOR) & (net.value > 0) & np.isfinite(net.value)
+    if resistive.any():
+        spread = float(net.value[resistive].max() / net.value[resistive].min())
+        if spread > CONDUCTANCE_SPREAD_LIMIT:
+            findings.append(Finding(
+                WARNING, "ill-conditioned",
+                f"resistances span a factor of {spread:.3g} (over {CONDUCTANCE_SPREAD_LIMIT:.0e}); "
+                "expect lost digits in the solution",
+                branches=_indices(resistive)[[int(np.argmin(net.value[resistive])),
+                                              int(np.argmax(net.value[resistive]))]]))
+    return findings
+
+
+def tree_path(net: Network, contraction: Contraction, branch: int) -> np.ndarray:
+    """Branches of the loop that ``branch`` closes through the contraction's spanning forest."""
+    import networkx as nx
+
+    tree_edges = contraction.source_branches[contraction.tree]
+    members = contraction.supernode[net.from_node[branch]]
+    tree_edges = tree_edges[contraction.supernode[net.from_node[tree_edges]] == members]
+    graph = nx.Graph()
+    graph.add_edges_from((int(net.from_node[e]), int(net.to_node[e]), {"branch": int(e)})
+                         for e in tree_edges)
+    start, end = int(net.to_node[branch]), int(net.from_node[branch])
+    if start == end:
+        return np.array([branch], np.int64)
+    path = nx.shortest_path(graph, start, end)
+    edges = [graph.edges[u, v]["branch"] for u, v in zip(path[:-1], path[1:])]
+    return np.array([branch, *edges], np.int64)
+
+
+def _loop_findings(net: Network, contraction: Contraction, shown: int = 5) -> list:
+    loops = contraction.loop_branches
+    if loops.size == 0:
+        return []
+    mismatch = contraction.loop_mismatch
+    scale = max(1.0, float(np.max(np.abs(net.value[contraction.source_branches]), initial=0.0)))
+    broken = np.abs(mismatch) > KVL_RELATIVE_TOLERANCE * scale
+    findings = []
+    for k in np.flatnonzero(broken)[:shown]:
+        path = tree_path(net, contraction, int(loops[k]))
+        findings.append(Finding(
+            ERROR, "kvl-violation",
+            f"a loop of {path.size} voltage source(s)/ideal connection(s) does not sum to zero "
+            f"volts around it (off by {mismatch[k]:.6g} V)",
+            nodes=np.unique(np.concatenate([net.from_node[path], net.to_node[path]])),
+            branches=path))
+    if broken.sum() > shown:
+        findings.append(Finding(ERROR, "kvl-violation",
+                                f"{int(broken.sum()) - shown} more loop(s) break KVL",
+                                branches=loops[broken][shown:]))
+    if (~broken).any():
+        findings.append(Finding(
+            WARNING, "source-loop",
+            f"{int((~broken).sum())} loop(s) of voltage sources/ideal connections satisfy KVL but "
+            "leave the current circulating around them undetermined; the loop-closing branch is "
+            "given 0 A", branches=loops[~broken]))
+    return findings
+
+
+def _conductive_components(net: Network) -> tuple[int, np.ndarray]:
+    """Components of the graph of resistors and voltage sources (current sources excluded)."""
+    keep = net.kind != CURRENT_SOURCE
+    return _components(net.n_nodes, net.from_node[keep], net.to_node[keep])
+
+
+def _components(n: int, a: np.ndarray, b: np.ndarray) -> tuple[int, np.ndarray]:
+    graph = sp.coo_matrix((np.ones(a.size, np.int8), (a, b)), shape=(n, n))
+    count, labels = connected_components(graph, directed=False)
+    return count, labels.astype(np.int64)
+
+
+def _floating_findings(net: Network, allow_floating: bool) -> tuple[list, np.ndarray, int]:
+    count, label = _conductive_components(net)
+    grounded = label[net.reference]
+    sources = np.flatnonzero(net.kind == CURRENT_SOURCE)
+    amps = np.nan_to_num(net.value[sources])
+    injection = (np.bincount(label[net.to_node[sources]], amps, minlength=count)
+                 - np.bincount(label[net.from_node[sources]], amps, minlength=count))
+    through = (np.bincount(label[net.to_node[sources]], np.abs(amps), minlength=count)
+               + np.bincount(label[net.from_node[sources]], np.abs(amps), minlength=count))
+    floating = np.setdiff1d(np.arange(count), [grounded])
+    kcl_broken = floating[np.abs(injection[floating]) > KCL_RELATIVE_TOLERANCE
+                          * np.maximum(through[floating], 1e-300)]
+    findings = []
+    for comp in kcl_broken[:5]:
+        nodes = np.flatnonzero(label == comp)
+        cut = sources[(label[net.from_node[sources]] == comp) ^ (label[net.to_node[sources]] == comp)]
+        findings.append(Finding(
+            ERROR, "kcl-violation",
+            f"{nodes.size} node(s) connect to the rest only through current sources that inject "
+            f"a net {injection[comp]:.6g} A into them; KCL cannot hold", nodes=nodes, branches=cut))
+    if kcl_broken.size > 5:
+        findings.append(Finding(ERROR, "kcl-violation",
+                                f"{kcl_broken.size - 5} more such node set(s)",
+                                nodes=np.flatnonzero(np.isin(label, kcl_broken[5:]))))
+    islands = np.setdiff1d(floating, kcl_broken)
+    pinned = np.empty(0, np.int64)
+    if islands.size:
+        nodes = np.flatnonzero(np.isin(label, islands))
+        if allow_floating:
+            first_node = np.full(count, -1, np.int64)
+            first_node[label[::-1]] = np.arange(net.n_nodes)[::-1]
+            pinned = first_node[islands]
+            findings.append(Finding(
+                INFO, "pinned-island",
+                f"{islands.size} island(s) with no path to the reference: one node of each is "
+                "pinned at 0 V", nodes=pinned))
+        else:
+            findings.append(Finding(
+                ERROR, "floating",
+                f"{islands.size} island(s) ({nodes.size} node(s)) have no path of resistors or "
+                "voltage sources to the reference; their potential is undetermined "
+                "(allow floating islands to pin one node of each at 0 V)", nodes=nodes))
+    unpinned = int(floating.size - pinned.size)
+    return findings, pinned, unpinned
+
+
+def check(net: Network, *, allow_floating: bool = False) -> CheckReport:
+    """Check that a network has exactly one solution, and say why not when it has none.
+
+    Parameters
+    ----------
+    net : Network
+    allow_floating : bool, default False
+        Pin one node of every island that has no path to the reference at 0 V instead of
+        reporting it as an error.
+
+    Returns
+    -------
+    CheckReport
+        Findings (errors, warnings, information), a summary (nodes, branches by kind,
+        components, supernodes, unknowns and rank of the reduced system, conductance spread) and
+        the contraction reused by :func:`ohmgraph.engine.solve`.
+    """
+    findings = []
+    if net.n_branches == 0:
+        findings.append(Finding(ERROR, "empty", "the network has no branches"))
+    findings += _value_findings(net)
+    usable = np.isfinite(net.value) & ~((net.kind == RESISTOR) & (net.value < 0))
+    topology = net if usable.all() else net.with_values(np.where(usable, net.value, 1.0))
+    contraction = contract(topology)
+    findings += _loop_findings(topology, contraction)
+    floating_findings, pinned, unpinned = _floating_findings(topology, allow_floating)
+    findings += floating_findings
+    n_components, _ = _components(net.n_nodes, net.from_node, net.to_node)
+    unknowns = contraction.n_supernodes - 1 - pinned.size
+    resistive = (net.kind == RESISTOR) & (net.value > 0) & np.isfinite(net.value)
+    summary = {
+        "nodes": net.n_nodes,
+        "branches": net.n_branches,
+        "branches_by_kind": net.counts_by_kind(),
+        "ideal_connections": int(((net.kind == RESISTOR) & (net.value == 0)).sum()),
+        "components": int(n_components),
+        "supernodes": contraction.n_supernodes,
+        "unknowns": int(unknowns),
+        "rank": int(unknowns - unpinned),
+        "conductance_spread": (float(net.value[resistive].max() / net.value[resistive].min())
+                               if resistive.any() else None),
+        "reference": net.reference_label,
+        "errors": sum(f.severity == ERROR for f in findings),
+        "warnings": sum(f.severity == WARNING for f in findings),
+    }
+    order = {ERROR: 0, WARNING: 1, INFO: 2}
+    findings.sort(key=lambda f: order[f.severity])
+    return CheckReport(findings, summary, contraction, pinned)
+
+
+__all__ = ["check", "CheckReport", "Finding", "ERROR", "WARNING", "INFO"]

@@ -1,0 +1,173 @@
+"""Reduced nodal formulation: a symmetric positive-definite system over the free supernodes.
+
+Nodal analysis writes KCL at every node with the branch conductances, ``B^T G B v = s``, where
+``B`` is the branch-node incidence matrix (+1 at ``from``, -1 at ``to``), ``G`` the diagonal of
+branch conductances and ``s`` the injected currents; ``L = B^T G B`` is the weighted graph
+Laplacian (Kirchhoff, 1847; see Chua, Desoer & Kuh, *Linear and Nonlinear Circuits*, 1987,
+ch. 10). Voltage sources and ideal connections have no conductance. Instead of adding their
+currents as extra unknowns (modified nodal analysis, which makes the system indefinite), the
+nodes they join are contracted into supernodes (:mod:`ohmgraph.engine.contraction`), each node's
+potential being ``V = U[supernode] + offset``. For a resistor ``k`` between supernodes ``a != b``
+the current is ``g_k (U_a - U_b + d_k)`` with the known ``d_k = offset(from) - offset(to)``, so
+KCL summed over each supernode reads::
+
+    L_s U = -B_s^T (g * d) - B_I^T J
+
+with ``L_s`` the Laplacian of the contracted graph, ``B_s`` its incidence matrix and ``B_I^T J``
+the net current the current sources draw out of each supernode. Resistors inside one supernode
+carry a known current and drop out. The supernode holding the reference node (and, when floating
+islands are allowed, one pinned node per island) has a known potential; moving those columns to
+the right-hand side leaves a symmetric positive-definite matrix over the free supernodes, since
+every remaining component reaches a known potential through positive conductances (a grounded
+Laplacian is an irreducibly diagonally dominant M-matrix).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.sparse as sp
+
+from ohmgraph.engine.contraction import Contraction
+from ohmgraph.engine.network import CURRENT_SOURCE, RESISTOR, Network
+
+
+@dataclass(frozen=True)
+class SupernodeGraph:
+    """The resistors that join two different supernodes.
+
+    Attributes
+    ----------
+    branches : ndarray of int64
+        Network indices of those resistors.
+    a, b : ndarray of int64
+        Supernode of each resistor's ``from`` and ``to`` node.
+    conductance : ndarray of float64
+        ``1 / R`` in siemens.
+    n_supernodes : int
+    """
+
+    branches: np.ndarray
+    a: np.ndarray
+    b: np.ndarray
+    conductance: np.ndarray
+    n_supernodes: int
+
+    def laplacian(self) -> sp.csr_matrix:
+        """The weighted Laplacian ``B^T G B`` of the contracted graph (singular)."""
+        g = self.conductance
+        rows = np.concatenate([self.a, self.b, self.a, self.b])
+        cols = np.concatenate([self.a, self.b, self.b, self.a])
+        data = np.concatenate([g, g, -g, -g])
+        n = self.n_supernodes
+        return sp.csr_matrix((data, (rows, cols)), shape=(n, n))
+
+
+def supernode_graph(net: Network, contraction: Contraction) -> SupernodeGraph:
+    """Resistors (``R > 0``) between different supernodes, with their conductances."""
+    resistors = np.flatnonzero((net.kind == RESISTOR) & (net.value > 0))
+    a = contraction.supernode[net.from_node[resistors]]
+    b = contraction.supernode[net.to_node[resistors]]
+    external = a != b
+    resistors = resistors[external]
+    return SupernodeGraph(resistors, a[external], b[external], 1.0 / net.value[resistors],
+                          contraction.n_supernodes)
+
+
+def grounded_matrix(graph: SupernodeGraph, free: np.ndarray, unknown_of: np.ndarray):
+    """The Laplacian restricted to the free supernodes (rows and columns), in CSR form.
+
+    Parameters
+    ----------
+    graph : SupernodeGraph
+    free : ndarray of int64
+        Supernode of each unknown.
+    unknown_of : ndarray of int64, shape (n_supernodes,)
+        Unknown index of each supernode, -1 for supernodes with a known potential.
+    """
+    g = graph.conductance
+    n = graph.n_supernodes
+    diagonal = np.bincount(graph.a, g, minlength=n) + np.bincount(graph.b, g, minlength=n)
+    ua, ub = unknown_of[graph.a], unknown_of[graph.b]
+    both = (ua >= 0) & (ub >= 0)
+    k = free.size
+    rows = np.concatenate([np.arange(k), ua[both], ub[both]])
+    cols = np.concatenate([np.arange(k), ub[both], ua[both]])
+    data = np.concatenate([diagonal[free], -g[both], -g[both]])
+    return sp.csr_matrix((data, (rows, cols)), shape=(k, k))
+
+
+@dataclass(frozen=True)
+class ReducedSystem:
+    """``matrix @ x = rhs`` over the free supernodes, and how to expand ``x`` to node voltages.
+
+    Attributes
+    ----------
+    matrix : scipy.sparse.csr_matrix
+        Symmetric positive-definite grounded Laplacian.
+    rhs : ndarray of float64
+    free : ndarray of int64
+        Supernode of each unknown.
+    known_potential : ndarray of float64, shape (n_supernodes,)
+        Potential of the supernodes with a known one; NaN for the free ones.
+    contraction : Contraction
+    graph : SupernodeGraph
+    """
+
+    matrix: sp.csr_matrix
+    rhs: np.ndarray
+    free: np.ndarray
+    known_potential: np.ndarray
+    contraction: Contraction
+    graph: SupernodeGraph
+
+    @property
+    def n_unknowns(self) -> int:
+        return int(self.free.size)
+
+    def node_voltages(self, x: np.ndarray) -> np.ndarray:
+        """Node voltages from the solution ``x`` of the reduced system."""
+        potential = self.known_potential.copy()
+        potential[self.free] = x
+        return potential[self.contraction.supernode] + self.contraction.offset
+
+
+def assemble(net: Network, contraction: Contraction, pinned_nodes=()) -> ReducedSystem:
+    """Assemble the reduced system of a network that passed :func:`ohmgraph.engine.check`.
+
+    Parameters
+    ----------
+    net : Network
+    contraction : Contraction
+        From :func:`ohmgraph.engine.contraction.contract` (or the check report).
+    pinned_nodes : array_like of int, optional
+        Nodes held at 0 V besides the reference (one per floating island).
+    """
+    graph = supernode_graph(net, contraction)
+    n = contraction.n_supernodes
+    supernode, offset = contraction.supernode, contraction.offset
+    held = np.concatenate([[net.reference], np.asarray(pinned_nodes, np.int64)])
+    known = np.full(n, np.nan)
+    known[supernode[held]] = -offset[held]
+    unknown_of = np.full(n, -1, np.int64)
+    free = np.flatnonzero(np.isnan(known))
+    unknown_of[free] = np.arange(free.size)
+
+    # Currents the offsets drive through resistors between supernodes, and current sources.
+    g = graph.conductance
+    drive = g * (offset[net.from_node[graph.branches]] - offset[net.to_node[graph.branches]])
+    rhs = np.bincount(graph.b, drive, minlength=n) - np.bincount(graph.a, drive, minlength=n)
+    sources = np.flatnonzero(net.kind == CURRENT_SOURCE)
+    amps = net.value[sources]
+    rhs += (np.bincount(supernode[net.to_node[sources]], amps, minlength=n)
+            - np.bincount(supernode[net.from_node[sources]], amps, minlength=n))
+    # Move the known potentials to the right-hand side.
+    ua, ub = unknown_of[graph.a], unknown_of[graph.b]
+    a_known, b_known = ua < 0, ub < 0
+    rhs += np.bincount(graph.a[~a_known & b_known], (g * known[graph.b])[~a_known & b_known],
+                       minlength=n)
+    rhs += np.bincount(graph.b[a_known & ~b_known], (g * known[graph.a])[a_known & ~b_known],
+                       minlength=n)
+    matrix = grounded_matrix(graph, free, unknown_of)
+    return ReducedSystem(matrix, rhs[free], free, known, contraction, graph)

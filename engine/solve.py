@@ -1,0 +1,199 @@
+"""The one entry point for "just solve it": check, contract, assemble, solve, recover, verify.
+
+After the solve two checks independent of the solver prove the result: the KCL residual at every
+node, recomputed from the branch currents through the incidence matrix, and the power balance,
+whose sum over all branches is zero by Tellegen's theorem (B. D. H. Tellegen, Philips Res. Rep. 7,
+259–269, 1952). Both are returned, and stored with the solution.
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from ohmgraph.engine.checks import CheckReport, check
+from ohmgraph.engine.formulation import ReducedSystem, assemble
+from ohmgraph.engine.network import CURRENT_SOURCE, RESISTOR, VOLTAGE_SOURCE, Network
+from ohmgraph.engine.recovery import branch_quantities, kcl_residual
+from ohmgraph.engine.solvers import DEFAULT_RTOL, SPDSolver, solve_with_fallback
+
+
+class NetworkNotSolvable(ValueError):
+    """The network failed its checks; ``report`` says why."""
+
+    def __init__(self, report: CheckReport):
+        errors = report.of_severity("error")
+        super().__init__("; ".join(f"{f.code}: {f.message}" for f in errors))
+        self.report = report
+
+
+@dataclass
+class Solution:
+    """Node voltages, branch currents, voltages and powers, and the evidence behind them.
+
+    Attributes
+    ----------
+    network : Network
+    node_voltage : ndarray, volts, shape (n,)
+    branch_current : ndarray, amperes, positive from ``from`` to ``to``
+    branch_voltage : ndarray, volts, ``V(from) - V(to)``
+    branch_power : ndarray, watts absorbed (negative where a source delivers)
+    current_determined : ndarray of bool
+        False on source/ideal branches whose current a loop of them leaves free (given 0 A on
+        the loop-closing branch).
+    method : str
+        Solver that produced the result (after any fallback).
+    rtol : float
+        Requested relative residual.
+    iterations : int
+    relative_residual : float
+        ``||A x - b|| / ||b||`` of the reduced system.
+    kcl_max_residual : float
+        Largest net current (A) leaving any node, recomputed from all branch currents.
+    kcl_worst_node : int
+    power_balance : float
+        Sum of all branch powers (W), zero by Tellegen's theorem.
+    power_dissipated : float
+        Sum of resistor powers (W).
+    timings : dict
+        Seconds per stage (``check``, ``assemble``, ``setup``, ``solve``, ``recover``).
+    notes : list of str
+    report : CheckReport
+    system : ReducedSystem
+        Kept for reuse (further right-hand sides, sensitivities).
+    solver : SPDSolver
+    """
+
+    network: Network
+    node_voltage: np.ndarray
+    branch_current: np.ndarray
+    branch_voltage: np.ndarray
+    branch_power: np.ndarray
+    current_determined: np.ndarray
+    method: str
+    rtol: float
+    iterations: int
+    relative_residual: float
+    kcl_max_residual: float
+    kcl_worst_node: int
+    power_balance: float
+    power_dissipated: float
+    timings: dict = field(default_factory=dict)
+    notes: list = field(default_factory=list)
+    report: CheckReport | None = None
+    system: ReducedSystem | None = None
+    solver: SPDSolver | None = None
+
+    @property
+    def power_delivered(self) -> float:
+        """Power delivered by all sources (W, positive when sources supply the network)."""
+        sources = self.network.kind != RESISTOR
+        return float(-self.branch_power[sources].sum())
+
+    def summary(self, top: int = 5) -> dict:
+        """Plain-data summary: voltage range, largest currents and powers, evidence, timings."""
+        net = self.network
+        labels, names = net.node_labels, net.branch_names
+
+        def largest(values, mask):
+            index = np.flatnonzero(mask)
+            if index.size == 0:
+                return []
+            picked = index[np.argsort(-np.abs(values[index]), kind="stable")[:top]]
+            return [{"branch": str(names[k]), "kind": "RVI"[net.kind[k]],
+                     "from": str(labels[net.from_node[k]]), "to": str(labels[net.to_node[k]]),
+                     "value": float(values[k])} for k in picked]
+
+        v = self.node_voltage
+        low, high = int(np.argmin(v)), int(np.argmax(v))
+        every = np.ones(net.n_branches, bool)
+        return {
+            "nodes": net.n_nodes,
+            "branches": net.n_branches,
+            "reference": net.reference_label,
+            "method": self.method,
+            "rtol": self.rtol,
+            "iterations": self.iterations,
+            "unknowns": self.system.n_unknowns if self.system else None,
+            "relative_residual": self.relative_residual,
+            "kcl_max_residual_A": self.kcl_max_residual,
+            "kcl_worst_node": str(labels[self.kcl_worst_node]),
+            "power_balance_W": self.power_balance,
+            "power_delivered_W": self.power_delivered,
+            "power_dissipated_W": self.power_dissipated,
+            "voltage_min": {"node": str(labels[low]), "volts": float(v[low])},
+            "voltage_max": {"node": str(labels[high]), "volts": float(v[high])},
+            "largest_currents_A": largest(self.branch_current, every),
+            "largest_resistor_powers_W": largest(self.branch_power, net.kind == RESISTOR),
+            "source_powers_W": largest(self.branch_power,
+                                       (net.kind == VOLTAGE_SOURCE) | (net.kind == CURRENT_SOURCE)),
+            "undetermined_currents": int((~self.current_determined).sum()),
+            "timings_s": dict(self.timings),
+            "notes": list(self.notes),
+        }
+
+
+def solve(net: Network, *, method: str = "auto", rtol: float = DEFAULT_RTOL,
+          allow_floating: bool = False, report: CheckReport | None = None) -> Solution:
+    """Solve a network: every node voltage and every branch current, voltage and power.
+
+    Parameters
+    ----------
+    net : Network
+    method : {"auto", "direct", "amg-cg"}
+        Linear solver for the reduced system (:mod:`ohmgraph.engine.solvers`).
+    rtol : float
+        Relative residual target of iterative solves.
+    allow_floating : bool
+        Pin one node of every island without a path to the reference at 0 V.
+    report : CheckReport, optional
+        A report from :func:`check` with the same ``allow_floating``, to avoid checking twice.
+
+    Raises
+    ------
+    NetworkNotSolvable
+        When the checks find an error.
+    SolverFailed
+        When no solver reaches the accuracy asked for.
+    """
+    timings = {}
+    start = time.perf_counter()
+    if report is None:
+        report = check(net, allow_floating=allow_floating)
+    timings["check"] = time.perf_counter() - start
+    if not report.solvable:
+        raise NetworkNotSolvable(report)
+
+    start = time.perf_counter()
+    system = assemble(net, report.contraction, report.pinned_nodes)
+    timings["assemble"] = time.perf_counter() - start
+
+    x, info, solver, notes = solve_with_fallback(system.matrix, system.rhs, method, rtol)
+    timings["setup"], timings["solve"] = solver.setup_seconds, info.solve_seconds
+
+    start = time.perf_counter()
+    voltage = system.node_voltages(x)
+    branches = branch_quantities(net, report.contraction, voltage)
+    residual = np.abs(kcl_residual(net, branches.current))
+    worst = int(np.argmax(residual)) if residual.size else 0
+    timings["recover"] = time.perf_counter() - start
+    return Solution(
+        network=net, node_voltage=voltage, branch_current=branches.current,
+        branch_voltage=branches.voltage, branch_power=branches.power,
+        current_determined=branches.determined, method=info.method, rtol=rtol,
+        iterations=info.iterations, relative_residual=info.relative_residual,
+        kcl_max_residual=float(residual[worst]) if residual.size else 0.0, kcl_worst_node=worst,
+        power_balance=float(branches.power.sum()),
+        power_dissipated=float(branches.power[net.kind == RESISTOR].sum()),
+        timings=timings, notes=notes + _pinned_notes(net, report), report=report,
+        system=system, solver=solver)
+
+
+def _pinned_notes(net: Network, report: CheckReport) -> list:
+    if report.pinned_nodes.size == 0:
+        return []
+    shown = ", ".join(map(str, net.node_labels[report.pinned_nodes[:5]]))
+    more = f" and {report.pinned_nodes.size - 5} more" if report.pinned_nodes.size > 5 else ""
+    return [f"floating islands pinned at 0 V at node(s) {shown}{more}"]

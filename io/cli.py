@@ -1,0 +1,44 @@
+"""The ``ohmgraph`` command line.
+
+Each subcommand lives in its own module under :mod:`ohmgraph.io.commands` and exposes
+``register(subparsers)``, which adds its parser and sets ``run`` (a function of the parsed
+arguments returning an exit code). Errors a user can cause are :class:`UserError` subclasses and
+end as one message on standard error with their exit code (see :mod:`ohmgraph.io.errors`).
+"""
+
+from __future__ import annotations
+
+import argparse
+import importlib
+import sys
+
+from ohmgraph.io.errors import EXIT_BAD_INPUT, UserError
+
+COMMANDS = ["check", "solve", "show", "generate", "demo"]
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="ohmgraph",
+        description="Check, solve and query large linear resistive networks.")
+    subparsers = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
+    for name in COMMANDS:
+        importlib.import_module(f"ohmgraph.io.commands.{name}").register(subparsers)
+    return parser
+
+
+def main(argv=None) -> int:
+    """Run the command line; return the exit code."""
+    args = build_parser().parse_args(argv)
+    try:
+        return int(args.run(args))
+    except UserError as error:
+        print(f"ohmgraph {args.command}: error: {error}", file=sys.stderr)
+        return error.exit_code
+    except KeyboardInterrupt:
+        print("ohmgraph: interrupted", file=sys.stderr)
+        return EXIT_BAD_INPUT
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,1 @@
+"""One module per ``ohmgraph`` subcommand; each exposes ``register(subparsers)``."""

@@ -1,0 +1,35 @@
+"""Exit codes and the errors that carry them to the command line.
+
+Every failure a user can cause ends in one of these, printed as one clear message (file, line
+and field where there is one) and a documented exit code, never a traceback.
+"""
+
+EXIT_OK = 0
+EXIT_FAILED = 1          # the network is not well-posed, or readings fail their comparison
+EXIT_BAD_INPUT = 2       # an input file or a command-line argument cannot be used
+EXIT_OUTPUT_REFUSED = 3  # the output exists (no --force) or cannot be written
+EXIT_SOLVER_FAILED = 4   # no solver reached the requested accuracy
+
+
+class UserError(Exception):
+    """A failure to report as a message and an exit code."""
+
+    exit_code = EXIT_BAD_INPUT
+
+
+class InputError(UserError):
+    """An input cannot be read or used; the message names the file, line and field."""
+
+    exit_code = EXIT_BAD_INPUT
+
+
+class OutputRefused(UserError):
+    """An output file exists and ``--force`` was not given, or it cannot be written."""
+
+    exit_code = EXIT_OUTPUT_REFUSED
+
+
+class SolverError(UserError):
+    """The linear solve did not reach the requested accuracy."""
+
+    exit_code = EXIT_SOLVER_FAILED
