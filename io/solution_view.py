@@ -1,0 +1,100 @@
+"""Terminal view of a solution summary, from a fresh solve or read back from its HDF5 file.
+
+Both paths go through the same dictionary: :func:`solution_summary` for a
+:class:`~ohmgraph.engine.Solution`, :func:`summary_from_stored` for a
+:class:`~ohmgraph.io.store.StoredSolution`; :func:`format_solution` renders either.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ohmgraph.engine.solve import Solution
+from ohmgraph.io.store import StoredSolution
+
+POWER_CAUTION = ("caution: computed power is not a rating check; compare it with each "
+                 "resistor's rated power and derating before trusting a design")
+
+
+def _findings_digest(findings) -> list:
+    return [{"severity": f.severity, "code": f.code, "message": f.message} for f in findings]
+
+
+def solution_summary(solution: Solution, extra_timings: dict | None = None) -> dict:
+    """:meth:`Solution.summary` plus the check findings and any extra stage timings (seconds)."""
+    summary = solution.summary()
+    summary["timings_s"].update(extra_timings or {})
+    summary["findings"] = _findings_digest(solution.report.findings if solution.report else [])
+    return summary
+
+
+def summary_from_stored(stored: StoredSolution) -> dict:
+    """The summary :func:`solution_summary` gave when the file was written, rebuilt from it."""
+    attrs, net = stored.attrs, stored.network
+    worst = np.flatnonzero(net.node_labels == attrs["kcl_worst_node"])
+    rebuilt = Solution(
+        network=net, node_voltage=stored.node_voltage, branch_current=stored.branch_current,
+        branch_voltage=stored.branch_voltage, branch_power=stored.branch_power,
+        current_determined=stored.current_determined, method=attrs["method"],
+        rtol=attrs["rtol"], iterations=attrs["iterations"],
+        relative_residual=attrs["relative_residual"], kcl_max_residual=attrs["kcl_max_residual"],
+        kcl_worst_node=int(worst[0]) if worst.size else 0,
+        power_balance=attrs["power_balance"], power_dissipated=attrs["power_dissipated"],
+        timings=dict(stored.timings), notes=list(attrs.get("notes", [])))
+    summary = rebuilt.summary()
+    summary["unknowns"] = attrs.get("unknowns")
+    summary["findings"] = _findings_digest(stored.findings)
+    return summary
+
+
+def _table(rows: list, unit: str) -> list:
+    """Aligned lines for a list of ``{"branch", "kind", "from", "to", "value"}`` rows."""
+    if not rows:
+        return ["  (none)"]
+    cells = [(r["branch"], r["kind"], f'{r["from"]} -> {r["to"]}', f'{r["value"]:.6g} {unit}')
+             for r in rows]
+    widths = [max(len(c[i]) for c in cells) for i in range(4)]
+    return ["  " + "  ".join(c[i].ljust(widths[i]) if i < 3 else c[i].rjust(widths[i])
+                             for i in range(4)) for c in cells]
+
+
+def format_solution(summary: dict) -> str:
+    """Render a solution summary (from :func:`solution_summary` or :func:`summary_from_stored`).
+
+    Shows the size of the network, the solver and its evidence (relative residual of the
+    reduced system, largest KCL residual and where, power balance), the voltage range, the
+    largest branch currents, resistor powers and source powers, check findings other than
+    errors, notes and the time spent per stage.
+    """
+    s = summary
+    unknowns = "" if s.get("unknowns") is None else f", {s['unknowns']:,} unknowns"
+    low, high = s["voltage_min"], s["voltage_max"]
+    lines = [
+        f"network   {s['nodes']:,} nodes, {s['branches']:,} branches, reference node "
+        f"{s['reference']}",
+        f"solver    {s['method']}, {s['iterations']} iteration(s), rtol {s['rtol']:.1e}{unknowns}",
+        f"evidence  relative residual {s['relative_residual']:.3e}",
+        f"          KCL max residual {s['kcl_max_residual_A']:.3e} A (node {s['kcl_worst_node']})",
+        f"          power balance {s['power_balance_W']:.3e} W (delivered "
+        f"{s['power_delivered_W']:.6g} W, dissipated {s['power_dissipated_W']:.6g} W)",
+        f"voltages  min {low['volts']:.6g} V (node {low['node']}), max {high['volts']:.6g} V "
+        f"(node {high['node']})",
+    ]
+    if s.get("undetermined_currents"):
+        lines.append(f"          {s['undetermined_currents']} branch current(s) left undetermined "
+                     "by source loops (stored as 0 A)")
+    lines += ["", "largest branch currents", *_table(s["largest_currents_A"], "A")]
+    lines += ["", "largest resistor powers", *_table(s["largest_resistor_powers_W"], "W"),
+              f"  {POWER_CAUTION}"]
+    lines += ["", "source powers (negative = delivering)", *_table(s["source_powers_W"], "W")]
+    shown = [f for f in s.get("findings", []) if f["severity"] != "error"]
+    if shown:
+        lines += ["", "check findings"]
+        lines += [f"  {f['severity']:<8} {f['code']}: {f['message']}" for f in shown]
+    if s.get("notes"):
+        lines += ["", "notes", *(f"  {note}" for note in s["notes"])]
+    timings = s.get("timings_s", {})
+    if timings:
+        stages = "  ".join(f"{stage} {seconds:.3g}" for stage, seconds in timings.items())
+        lines += ["", f"time (s)  {stages}  total {sum(timings.values()):.3g}"]
+    return "\n".join(lines)

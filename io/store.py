@@ -1,0 +1,400 @@
+"""The HDF5 solution store: one self-describing file per solved network.
+
+Layout (every array is a plain HDF5 dataset; strings are fixed-length UTF-8, so any HDF5 tool
+reads the file):
+
+* ``/nodes/label``, ``/nodes/voltage`` (V);
+* ``/branches/name``, ``kind`` (letters R, V, I), ``from`` and ``to`` (indices into ``/nodes``),
+  ``value`` (ohm, V or A by kind), ``current`` (A), ``voltage`` (V), ``power`` (W),
+  ``current_determined`` (bool);
+* ``/checks``: one entry per check finding (``code``, ``severity``, ``message``, and the node
+  and branch indices involved, concatenated with ``*_offsets`` to split them), with the check
+  summary as attributes;
+* ``/timings``: seconds per stage as attributes;
+* root attributes: provenance (tool version, input file name and SHA-256, creation time) and
+  the evidence of the solve (method, tolerance, iterations, residuals, power balance).
+
+Large arrays are chunked and compressed with gzip level 1 plus the shuffle filter. On 2M-element
+float64 arrays LZF wrote about twice as fast, but LZF is a filter bundled with h5py, not with
+the HDF5 library, so other tools could not open the file; gzip (deflate) ships with every HDF5
+build. Files are written through :func:`ohmgraph.io.atomic.atomic_output`, so a failure never
+leaves a partial file.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import importlib.metadata
+import time
+from dataclasses import dataclass, field
+from datetime import datetime, timezone
+from pathlib import Path
+
+import h5py
+import numpy as np
+
+from ohmgraph.engine.checks import Finding
+from ohmgraph.engine.network import KIND_LETTERS, Network, kind_codes
+from ohmgraph.engine.solve import Solution
+from ohmgraph.io.atomic import atomic_output
+from ohmgraph.io.errors import InputError, OutputRefused
+
+LAYOUT_VERSION = 1
+COMPRESS_FROM = 4096          # arrays shorter than this are stored contiguous, uncompressed
+CHUNK_ELEMENTS = 1 << 18
+GZIP_LEVEL = 1
+
+REQUIRED_DATASETS = (
+    "nodes/label", "nodes/voltage",
+    "branches/name", "branches/kind", "branches/from", "branches/to", "branches/value",
+    "branches/current", "branches/voltage", "branches/power", "branches/current_determined",
+)
+REQUIRED_ATTRIBUTES = (
+    "reference", "method", "rtol", "iterations", "relative_residual", "kcl_max_residual",
+    "kcl_worst_node", "power_balance", "power_dissipated",
+)
+UNITS = {
+    "nodes/voltage": "V",
+    "branches/value": "ohm|V|A by kind",
+    "branches/current": "A",
+    "branches/voltage": "V",
+    "branches/power": "W",
+}
+DESCRIPTIONS = {
+    "nodes/label": "unique node label",
+    "nodes/voltage": "node potential relative to the reference node",
+    "branches/name": "branch name",
+    "branches/kind": "R resistor, V voltage source, I current source",
+    "branches/from": "index into /nodes of the branch's from node",
+    "branches/to": "index into /nodes of the branch's to node",
+    "branches/value": "resistance (R), source voltage V(from)-V(to) (V), source current (I)",
+    "branches/current": "current through the branch, positive from 'from' to 'to'",
+    "branches/voltage": "V(from) - V(to)",
+    "branches/power": "power absorbed (negative where a source delivers)",
+    "branches/current_determined": "false where a loop of sources/ideal connections leaves the "
+                                   "current free (given 0 A on the loop-closing branch)",
+}
+
+
+@dataclass
+class StoredSolution:
+    """A solution read back from its HDF5 file.
+
+    Attributes
+    ----------
+    network : Network
+        Rebuilt from ``/nodes`` and ``/branches``.
+    node_voltage, branch_current, branch_voltage, branch_power : ndarray
+        Volts, amperes, volts, watts.
+    current_determined : ndarray of bool
+    attrs : dict
+        Root attributes (provenance and solve evidence) as plain Python values.
+    findings : list of Finding
+        The check findings stored with the solution.
+    check_summary : dict
+        The check summary (nested as :func:`ohmgraph.engine.check` returns it).
+    timings : dict
+        Seconds per stage, including ``read`` and ``store`` when the command line wrote it.
+    """
+
+    network: Network
+    node_voltage: np.ndarray
+    branch_current: np.ndarray
+    branch_voltage: np.ndarray
+    branch_power: np.ndarray
+    current_determined: np.ndarray
+    attrs: dict
+    findings: list = field(default_factory=list)
+    check_summary: dict = field(default_factory=dict)
+    timings: dict = field(default_factory=dict)
+
+
+# ---------------------------------------------------------------------------- strings
+def encode_strings(strings: np.ndarray) -> np.ndarray:
+    """Fixed-width UTF-8 bytes of a NumPy unicode array, as narrow as the longest entry.
+
+    All-ASCII arrays (the common case) are converted by narrowing the UCS-4 code units to bytes,
+    several times faster than a general UTF-8 encode; others go through
+    :func:`numpy.strings.encode`.
+    """
+    strings = np.asarray(strings, dtype=str)
+    chars = strings.dtype.itemsize // 4
+    codes = strings.view(np.uint32).reshape(strings.size, chars)
+    if codes.size and int(codes.max()) > 127:
+        encoded = np.strings.encode(strings, "utf-8")
+        width = max(1, int(np.strings.str_len(encoded).max()))
+        return encoded.astype(f"S{width}")
+    width = max(1, int(np.strings.str_len(strings).max(initial=0)))
+    narrowed = np.ascontiguousarray(codes[:, :width]).astype(np.uint8)
+    return narrowed.view(f"S{width}").reshape(strings.shape)
+
+
+def decode_strings(raw: np.ndarray) -> np.ndarray:
+    """NumPy unicode array from fixed-width UTF-8 bytes (inverse of :func:`encode_strings`)."""
+    raw = np.asarray(raw)
+    width = raw.dtype.itemsize
+    octets = raw.view(np.uint8).reshape(raw.size, width)
+    if octets.size and int(octets.max()) > 127:
+        return np.strings.decode(raw, "utf-8")
+    return octets.astype(np.uint32).view(f"<U{width}").reshape(raw.shape)
+
+
+# ---------------------------------------------------------------------------- writing
+def _put(group: h5py.Group, name: str, data: np.ndarray) -> None:
+    """Create one dataset: chunked and compressed when large, with units and description."""
+    data = np.asarray(data)
+    if data.dtype.kind == "U":
+        encoded = encode_strings(data)
+        data = encoded.view(h5py.string_dtype("utf-8", encoded.dtype.itemsize))
+    options = {}
+    if data.size >= COMPRESS_FROM:
+        options = dict(chunks=(min(data.size, CHUNK_ELEMENTS),), compression="gzip",
+                       compression_opts=GZIP_LEVEL, shuffle=True)
+    dataset = group.create_dataset(name, data=data, **options)
+    key = f"{group.name.strip('/')}/{name}"
+    if key in UNITS:
+        dataset.attrs["units"] = UNITS[key]
+    if key in DESCRIPTIONS:
+        dataset.attrs["description"] = DESCRIPTIONS[key]
+    return dataset
+
+
+def _string_list(values) -> np.ndarray:
+    return np.array([str(v) for v in values], dtype=h5py.string_dtype())
+
+
+def file_sha256(path) -> str:
+    """Hex SHA-256 of a file, read in blocks (never loaded whole).
+
+    Raises
+    ------
+    InputError
+        If the file cannot be read.
+    """
+    try:
+        with open(path, "rb") as handle:
+            return hashlib.file_digest(handle, "sha256").hexdigest()
+    except OSError as error:
+        raise InputError(f"{path}: cannot be read ({error.strerror or error})") from error
+
+
+def tool_version() -> str:
+    """Installed version of the ohmgraph distribution."""
+    return importlib.metadata.version("ohmgraph")
+
+
+def _flatten(summary: dict, prefix: str = "") -> dict:
+    flat = {}
+    for key, value in summary.items():
+        if isinstance(value, dict):
+            flat.update(_flatten(value, f"{prefix}{key}."))
+        elif value is not None:
+            flat[f"{prefix}{key}"] = value
+    return flat
+
+
+def _unflatten(flat: dict) -> dict:
+    nested = {}
+    for key, value in flat.items():
+        *parents, leaf = key.split(".")
+        target = nested
+        for parent in parents:
+            target = target.setdefault(parent, {})
+        target[leaf] = value
+    return nested
+
+
+def _write_findings(group: h5py.Group, findings: list, summary: dict) -> None:
+    group.create_dataset("code", data=_string_list(f.code for f in findings))
+    group.create_dataset("severity", data=_string_list(f.severity for f in findings))
+    group.create_dataset("message", data=_string_list(f.message for f in findings))
+    for members, offsets_name in (("nodes", "node_offsets"), ("branches", "branch_offsets")):
+        parts = [np.asarray(getattr(f, members), np.int64) for f in findings]
+        offsets = np.cumsum([0] + [part.size for part in parts], dtype=np.int64)
+        _put(group, members, np.concatenate(parts) if parts else np.empty(0, np.int64))
+        _put(group, offsets_name, offsets)
+    group.attrs["description"] = ("check findings; the nodes/branches of finding k are "
+                                  "nodes[node_offsets[k]:node_offsets[k+1]] (same for branches)")
+    for key, value in _flatten(summary).items():
+        group.attrs[key] = value
+
+
+def _root_attrs(solution: Solution, input_path) -> dict:
+    net = solution.network
+    attrs = {
+        "layout": "ohmgraph solution",
+        "layout_version": LAYOUT_VERSION,
+        "tool_version": tool_version(),
+        "created": datetime.now(timezone.utc).isoformat(timespec="seconds"),
+        "reference": net.reference_label,
+        "method": solution.method,
+        "rtol": float(solution.rtol),
+        "iterations": int(solution.iterations),
+        "relative_residual": float(solution.relative_residual),
+        "kcl_max_residual": float(solution.kcl_max_residual),
+        "kcl_worst_node": str(net.node_labels[solution.kcl_worst_node]),
+        "power_balance": float(solution.power_balance),
+        "power_delivered": float(solution.power_delivered),
+        "power_dissipated": float(solution.power_dissipated),
+        "notes": _string_list(solution.notes),
+    }
+    if solution.system is not None:
+        attrs["unknowns"] = int(solution.system.n_unknowns)
+    if input_path is not None:
+        attrs["input_file"] = Path(input_path).name
+        attrs["input_sha256"] = file_sha256(input_path)
+    return attrs
+
+
+def write_solution(path, solution: Solution, *, input_path=None, force: bool = False) -> float:
+    """Store a solution in a new HDF5 file, atomically.
+
+    Parameters
+    ----------
+    path : str or Path
+        The file to create.
+    solution : Solution
+        From :func:`ohmgraph.engine.solve`; its ``timings`` are stored in ``/timings``.
+    input_path : str or Path, optional
+        The network file the solution came from; its name and SHA-256 are recorded.
+    force : bool
+        Replace an existing file.
+
+    Returns
+    -------
+    float
+        Seconds spent writing, also stored as the ``store`` timing in the file.
+
+    Raises
+    ------
+    OutputRefused
+        If ``path`` exists and ``force`` is false, its folder does not exist, or it cannot be
+        written. Nothing is left behind in either case.
+    """
+    start = time.perf_counter()
+    net = solution.network
+    root_attrs = _root_attrs(solution, input_path)
+    try:
+        with atomic_output(path, force) as temporary, h5py.File(temporary, "w", track_order=True) as h5:
+            h5.attrs.update(root_attrs)
+            nodes = h5.create_group("nodes")
+            _put(nodes, "label", net.node_labels)
+            _put(nodes, "voltage", solution.node_voltage)
+            branches = h5.create_group("branches")
+            _put(branches, "name", net.branch_names)
+            _put(branches, "kind", np.array(KIND_LETTERS)[net.kind])
+            _put(branches, "from", net.from_node)
+            _put(branches, "to", net.to_node)
+            _put(branches, "value", net.value)
+            _put(branches, "current", solution.branch_current)
+            _put(branches, "voltage", solution.branch_voltage)
+            _put(branches, "power", solution.branch_power)
+            _put(branches, "current_determined", np.asarray(solution.current_determined, bool))
+            report = solution.report
+            _write_findings(h5.create_group("checks"), report.findings if report else [],
+                            report.summary if report else {})
+            timings = h5.create_group("timings", track_order=True)
+            timings.attrs["units"] = "s"
+            for stage, seconds in solution.timings.items():
+                timings.attrs[stage] = float(seconds)
+            elapsed = time.perf_counter() - start
+            timings.attrs["store"] = elapsed
+    except OSError as error:
+        raise OutputRefused(f"{path}: cannot be written ({error})") from error
+    return elapsed
+
+
+# ---------------------------------------------------------------------------- reading
+def _plain(value):
+    if isinstance(value, np.ndarray):
+        return [_plain(v) for v in value.tolist()]
+    if isinstance(value, bytes):
+        return value.decode("utf-8")
+    if isinstance(value, np.generic):
+        return value.item()
+    return value
+
+
+def _dataset(h5: h5py.File, name: str) -> np.ndarray:
+    data = h5[name][...]
+    if data.dtype.kind == "S":
+        return decode_strings(data)
+    return data
+
+
+def _read_findings(h5: h5py.File, path) -> tuple[list, dict]:
+    if "checks" not in h5:
+        return [], {}
+    group = h5["checks"]
+    try:
+        codes, severities, messages = (group[n].asstr()[...].tolist()
+                                       for n in ("code", "severity", "message"))
+        nodes, node_offsets = group["nodes"][...], group["node_offsets"][...]
+        branches, branch_offsets = group["branches"][...], group["branch_offsets"][...]
+    except KeyError as error:
+        raise InputError(f"{path}: /checks is incomplete ({error})") from error
+    findings = [Finding(severity, code, message,
+                        nodes[node_offsets[k]:node_offsets[k + 1]].astype(np.int64),
+                        branches[branch_offsets[k]:branch_offsets[k + 1]].astype(np.int64))
+                for k, (code, severity, message) in enumerate(zip(codes, severities, messages))]
+    summary = _unflatten({key: _plain(value) for key, value in group.attrs.items()
+                          if key != "description"})
+    return findings, summary
+
+
+def _open(path) -> h5py.File:
+    if not Path(path).is_file():
+        raise InputError(f"{path}: no such file")
+    try:
+        return h5py.File(path, "r")
+    except OSError as error:
+        raise InputError(f"{path}: not an HDF5 file ({error})") from error
+
+
+def read_solution(path) -> StoredSolution:
+    """Read a solution written by :func:`write_solution`.
+
+    Raises
+    ------
+    InputError
+        If the file is missing, is not HDF5, lacks a required dataset or attribute, or its
+        arrays do not fit together; the message names the file and what is wrong.
+    """
+    with _open(path) as h5:
+        missing = [name for name in REQUIRED_DATASETS if name not in h5]
+        if missing:
+            raise InputError(f"{path}: not an ohmgraph solution file: missing dataset "
+                             f"/{missing[0]}" + (f" and {len(missing) - 1} more" if len(missing) > 1
+                                                  else ""))
+        attrs = {key: _plain(value) for key, value in h5.attrs.items()}
+        absent = [name for name in REQUIRED_ATTRIBUTES if name not in attrs]
+        if absent:
+            raise InputError(f"{path}: not an ohmgraph solution file: missing root attribute "
+                             f"{absent[0]!r}")
+        data = {name: _dataset(h5, name) for name in REQUIRED_DATASETS}
+        findings, check_summary = _read_findings(h5, path)
+        timings = ({stage: float(s) for stage, s in h5["timings"].attrs.items() if stage != "units"}
+                   if "timings" in h5 else {})
+    labels = data["nodes/label"]
+    reference = np.flatnonzero(labels == attrs["reference"])
+    if reference.size == 0:
+        raise InputError(f"{path}: reference node {attrs['reference']!r} is not in /nodes/label")
+    try:
+        network = Network(labels, data["branches/name"], kind_codes(data["branches/kind"]),
+                          data["branches/from"], data["branches/to"], data["branches/value"],
+                          int(reference[0]))
+    except ValueError as error:
+        raise InputError(f"{path}: /branches is inconsistent: {error}") from error
+    for name, expected in (("nodes/voltage", network.n_nodes),
+                           *((f"branches/{q}", network.n_branches) for q in
+                             ("current", "voltage", "power", "current_determined"))):
+        if data[name].shape != (expected,):
+            raise InputError(f"{path}: /{name} has shape {data[name].shape}, expected "
+                             f"({expected},)")
+    return StoredSolution(
+        network=network, node_voltage=data["nodes/voltage"].astype(np.float64),
+        branch_current=data["branches/current"].astype(np.float64),
+        branch_voltage=data["branches/voltage"].astype(np.float64),
+        branch_power=data["branches/power"].astype(np.float64),
+        current_determined=data["branches/current_determined"].astype(bool),
+        attrs=attrs, findings=findings, check_summary=check_summary, timings=timings)
