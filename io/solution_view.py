@@ -12,8 +12,7 @@ import numpy as np
 from ohmgraph.engine.solve import Solution
 from ohmgraph.io.store import StoredSolution
 
-POWER_CAUTION = ("caution: computed power is not a rating check; compare it with each "
-                 "resistor's rated power and derating before trusting a design")
+POWER_CAUTION = "caution: computed power is not a rating check; compare with each part's rating"
 
 
 def _findings_digest(findings) -> list:
@@ -67,7 +66,7 @@ def format_solution(summary: dict) -> str:
     errors, notes and the time spent per stage.
     """
     s = summary
-    unknowns = "" if s.get("unknowns") is None else f", {s['unknowns']:,} unknowns"
+    unknowns = "" if s.get("unknowns") is None else f", {s['unknowns']:,} unknown(s)"
     low, high = s["voltage_min"], s["voltage_max"]
     lines = [
         f"network   {s['nodes']:,} nodes, {s['branches']:,} branches, reference node "
