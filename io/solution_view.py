@@ -46,11 +46,16 @@ def summary_from_stored(stored: StoredSolution) -> dict:
     return summary
 
 
+def _number(value: float) -> str:
+    """Six significant digits; negative zero shown as 0."""
+    return f"{value + 0.0:.6g}"
+
+
 def _table(rows: list, unit: str) -> list:
     """Aligned lines for a list of ``{"branch", "kind", "from", "to", "value"}`` rows."""
     if not rows:
         return ["  (none)"]
-    cells = [(r["branch"], r["kind"], f'{r["from"]} -> {r["to"]}', f'{r["value"]:.6g} {unit}')
+    cells = [(r["branch"], r["kind"], f'{r["from"]} -> {r["to"]}', f'{_number(r["value"])} {unit}')
              for r in rows]
     widths = [max(len(c[i]) for c in cells) for i in range(4)]
     return ["  " + "  ".join(c[i].ljust(widths[i]) if i < 3 else c[i].rjust(widths[i])
@@ -75,9 +80,9 @@ def format_solution(summary: dict) -> str:
         f"evidence  relative residual {s['relative_residual']:.3e}",
         f"          KCL max residual {s['kcl_max_residual_A']:.3e} A (node {s['kcl_worst_node']})",
         f"          power balance {s['power_balance_W']:.3e} W (delivered "
-        f"{s['power_delivered_W']:.6g} W, dissipated {s['power_dissipated_W']:.6g} W)",
-        f"voltages  min {low['volts']:.6g} V (node {low['node']}), max {high['volts']:.6g} V "
-        f"(node {high['node']})",
+        f"{_number(s['power_delivered_W'])} W, dissipated {_number(s['power_dissipated_W'])} W)",
+        f"voltages  min {_number(low['volts'])} V (node {low['node']}), "
+        f"max {_number(high['volts'])} V (node {high['node']})",
     ]
     if s.get("undetermined_currents"):
         lines.append(f"          {s['undetermined_currents']} branch current(s) left undetermined "

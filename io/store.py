@@ -136,11 +136,11 @@ def decode_strings(raw: np.ndarray) -> np.ndarray:
     octets = raw.view(np.uint8).reshape(raw.size, width)
     if octets.size and int(octets.max()) > 127:
         return np.strings.decode(raw, "utf-8")
-    return octets.astype(np.uint32).view(f"<U{width}").reshape(raw.shape)
+    return octets.astype(np.uint32).view(np.dtype(f"U{width}")).reshape(raw.shape)
 
 
 # ---------------------------------------------------------------------------- writing
-def _put(group: h5py.Group, name: str, data: np.ndarray) -> None:
+def _put(group: h5py.Group, name: str, data) -> None:
     """Create one dataset: chunked and compressed when large, with units and description."""
     data = np.asarray(data)
     if data.dtype.kind == "U":
@@ -156,7 +156,6 @@ def _put(group: h5py.Group, name: str, data: np.ndarray) -> None:
         dataset.attrs["units"] = UNITS[key]
     if key in DESCRIPTIONS:
         dataset.attrs["description"] = DESCRIPTIONS[key]
-    return dataset
 
 
 def _string_list(values) -> np.ndarray:
@@ -205,9 +204,8 @@ def _unflatten(flat: dict) -> dict:
 
 
 def _write_findings(group: h5py.Group, findings: list, summary: dict) -> None:
-    group.create_dataset("code", data=_string_list(f.code for f in findings))
-    group.create_dataset("severity", data=_string_list(f.severity for f in findings))
-    group.create_dataset("message", data=_string_list(f.message for f in findings))
+    for column in ("code", "severity", "message"):
+        _put(group, column, np.array([getattr(f, column) for f in findings], dtype=str))
     for members, offsets_name in (("nodes", "node_offsets"), ("branches", "branch_offsets")):
         parts = [np.asarray(getattr(f, members), np.int64) for f in findings]
         offsets = np.cumsum([0] + [part.size for part in parts], dtype=np.int64)
@@ -275,7 +273,8 @@ def write_solution(path, solution: Solution, *, input_path=None, force: bool = F
     net = solution.network
     root_attrs = _root_attrs(solution, input_path)
     try:
-        with atomic_output(path, force) as temporary, h5py.File(temporary, "w", track_order=True) as h5:
+        with (atomic_output(path, force) as temporary,
+              h5py.File(temporary, "w", track_order=True) as h5):
             h5.attrs.update(root_attrs)
             nodes = h5.create_group("nodes")
             _put(nodes, "label", net.node_labels)
