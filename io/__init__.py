@@ -3,4 +3,5 @@
 Readers and writers, the HDF5 store, the command-line interface and terminal output.
 """
 
+from ohmgraph.io.reader import read_network
 from ohmgraph.io.store import read_solution, write_solution

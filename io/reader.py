@@ -1,0 +1,391 @@
+"""Read a network from a branch table (CSV or TSV) or a plain edge list.
+
+Formats, chosen by the file extension after an optional ``.gz``:
+
+* ``.csv`` (comma) and ``.tsv`` (tab): a header row naming the columns ``name``, ``kind``,
+  ``from``, ``to``, ``value`` in any order (case-insensitive). ``from``, ``to`` and ``value`` are
+  required; a missing ``name`` column names each branch by its 1-based row number, a missing
+  ``kind`` column makes every branch a resistor, and an empty ``kind`` field means ``R``.
+* any other extension: a plain edge list, one resistor per line as ``from to ohms`` separated by
+  spaces or tabs, with ``#`` comments (whole lines or trailing) and blank lines allowed.
+
+Surrounding spaces are trimmed from every field. Node labels are arbitrary text.
+
+Reading takes a fast path: multi-threaded ``pyarrow.csv``, vectorised ``pyarrow.compute``
+conversions, and node numbering in order of first appearance (``from`` column, then ``to``) by
+``pyarrow.compute.dictionary_encode``. When the fast path rejects anything, an exact pass over the
+physical lines finds every problem and reports it as ``FILE:LINE: column 'value': 'abc' is not a
+number``; if the exact pass finds none, the network is built from its results instead.
+"""
+
+from __future__ import annotations
+
+import csv
+import gzip
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+import pyarrow as pa
+import pyarrow.compute as pc
+import pyarrow.csv as pa_csv
+
+from ohmgraph.engine.network import KIND_CODE, RESISTOR, Network
+from ohmgraph.io.errors import InputError
+
+COLUMNS = ("name", "kind", "from", "to", "value")
+REQUIRED_COLUMNS = ("from", "to", "value")
+TABLE_DELIMITERS = {".csv": ",", ".tsv": "\t"}
+EDGE_LIST_FIELDS = ("from", "to", "value")
+MAX_REPORTED_ERRORS = 10
+# Edge-list lines are read whole by splitting on a control character (ASCII unit separator) that
+# text files do not hold; a line that does hold one goes to the exact pass.
+_UNUSED_DELIMITER = "\x1f"
+# Accepted kind spellings after trimming and upper-casing; an empty field means a resistor.
+KIND_SPELLINGS = {**KIND_CODE, "": RESISTOR}
+
+
+@dataclass(frozen=True)
+class _Columns:
+    """Parsed branch columns before node numbering."""
+
+    from_labels: pa.Array
+    to_labels: pa.Array
+    value: np.ndarray
+    kind: np.ndarray
+    names: pa.Array | None
+
+
+class _Rejected(Exception):
+    """The fast path met something it cannot judge; the exact pass decides."""
+
+
+# ---------------------------------------------------------------------------------- public API
+def read_network(path, ground: str = "0") -> Network:
+    """Read a network file.
+
+    Parameters
+    ----------
+    path : str or Path
+        A ``.csv`` / ``.tsv`` branch table or a whitespace edge list, optionally gzip-compressed
+        (``.gz``).
+    ground : str, default ``"0"``
+        Label of the reference (0 V) node; it must be one of the nodes.
+
+    Returns
+    -------
+    Network
+
+    Raises
+    ------
+    InputError
+        When the file is missing or unreadable, or any row is malformed; the message names the
+        file, the physical line and the column (up to ten problems, then how many more).
+    """
+    path = Path(path)
+    if not path.exists():
+        raise InputError(f"{path}: no such file")
+    if not path.is_file():
+        raise InputError(f"{path}: not a file")
+    delimiter = table_delimiter(path)
+    try:
+        if delimiter is None:
+            columns = _read_edge_list(path)
+        else:
+            columns = _read_table(path, delimiter)
+    except (OSError, EOFError) as error:      # unreadable gzip stream or a failing disk
+        raise InputError(f"{path}: cannot be read ({error})") from None
+    return _build_network(path, columns, str(ground))
+
+
+def locate_lines(path, rows) -> np.ndarray:
+    """Physical 1-based line numbers of the given 0-based branch rows of a network file.
+
+    An exact (slow) pass over the file, meant for decorating a few findings.
+
+    Parameters
+    ----------
+    path : str or Path
+    rows : array_like of int
+        Branch indices as numbered by :func:`read_network`.
+
+    Returns
+    -------
+    ndarray of int64, same shape as ``rows``
+
+    Raises
+    ------
+    InputError
+        When the file cannot be read or holds fewer rows than asked for.
+    """
+    path = Path(path)
+    rows = np.asarray(rows, dtype=np.int64)
+    if rows.size == 0:
+        return np.empty(rows.shape, np.int64)
+    wanted = set(rows.ravel().tolist())
+    last = max(wanted)
+    found = {}
+    delimiter = table_delimiter(path)
+    records = _edge_records(path) if delimiter is None else _table_records(path, delimiter)
+    if delimiter is not None:
+        next(records, None)                     # the header
+    for row, (line, _) in enumerate(records):
+        if row in wanted:
+            found[row] = line
+        if row >= last:
+            break
+    missing = wanted.difference(found)
+    if missing:
+        raise InputError(f"{path}: has no branch row {min(missing)} (0-based)")
+    return np.vectorize(found.__getitem__, otypes=[np.int64])(rows)
+
+
+def table_delimiter(path) -> str | None:
+    """Field delimiter of a branch table (``","`` or tab), or None for a whitespace edge list."""
+    name = Path(path).name.lower()
+    if name.endswith(".gz"):
+        name = name[:-3]
+    return TABLE_DELIMITERS.get(Path(name).suffix)
+
+
+# ---------------------------------------------------------------------------------- fast path
+def _read_table(path: Path, delimiter: str) -> _Columns:
+    header_line, header = _read_header(path, delimiter)
+    try:
+        table = pa_csv.read_csv(
+            path,
+            read_options=pa_csv.ReadOptions(column_names=header, skip_rows=header_line,
+                                            use_threads=True),
+            parse_options=pa_csv.ParseOptions(delimiter=delimiter),
+            convert_options=pa_csv.ConvertOptions(
+                column_types={column: pa.string() for column in header}))
+        return _convert(table)
+    except (pa.ArrowInvalid, _Rejected):
+        return _exact_table(path, delimiter, header)
+
+
+def _read_edge_list(path: Path) -> _Columns:
+    """Whole lines through ``pyarrow.csv`` (no delimiter, no quoting), then vectorised splitting."""
+    try:
+        table = pa_csv.read_csv(
+            path,
+            read_options=pa_csv.ReadOptions(column_names=["line"], use_threads=True),
+            parse_options=pa_csv.ParseOptions(delimiter=_UNUSED_DELIMITER, quote_char=False,
+                                              double_quote=False, escape_char=False),
+            convert_options=pa_csv.ConvertOptions(column_types={"line": pa.string()}))
+        lines = table["line"].combine_chunks()
+        if pc.any(pc.match_substring(lines, "#")).as_py():
+            lines = pc.list_element(pc.split_pattern(lines, "#", max_splits=1), 0)
+        fields = pc.utf8_split_whitespace(lines)
+        count = pc.list_value_length(fields).to_numpy()
+        if np.any((count != 0) & (count != len(EDGE_LIST_FIELDS))):
+            raise _Rejected
+        flat = pc.list_flatten(fields)
+        every_third = np.arange(0, len(flat), len(EDGE_LIST_FIELDS))
+        return _convert(pa.table({name: flat.take(every_third + k)
+                                  for k, name in enumerate(EDGE_LIST_FIELDS)}))
+    except (pa.ArrowInvalid, _Rejected):
+        return _exact_edge_list(path)
+
+
+def _convert(table: pa.Table) -> _Columns:
+    """Vectorised conversion of string columns; raises when any field is unusable."""
+    def trimmed(column):
+        return pc.utf8_trim_whitespace(table[column].combine_chunks())
+
+    from_labels, to_labels = trimmed("from"), trimmed("to")
+    for labels in (from_labels, to_labels):
+        if pc.any(pc.equal(pc.utf8_length(labels), 0)).as_py():
+            raise _Rejected
+    value = pc.cast(trimmed("value"), pa.float64()).to_numpy(zero_copy_only=False)
+    if "kind" in table.column_names:
+        spellings = pa.array(list(KIND_SPELLINGS))
+        position = pc.index_in(pc.utf8_upper(trimmed("kind")), value_set=spellings)
+        if position.null_count:
+            raise _Rejected
+        kind = np.asarray(list(KIND_SPELLINGS.values()), np.uint8)[position.to_numpy()]
+    else:
+        kind = np.full(len(table), RESISTOR, np.uint8)
+    names = trimmed("name") if "name" in table.column_names else None
+    return _Columns(from_labels, to_labels, value, kind, names)
+
+
+def _build_network(path: Path, columns: _Columns, ground: str) -> Network:
+    """Number the nodes (first appearance order over ``from`` then ``to``) and build the network."""
+    m = len(columns.from_labels)
+    if m == 0:
+        raise InputError(f"{path}: the file holds no branches")
+    endpoints = pa.concat_arrays([columns.from_labels.cast(pa.string()),
+                                  columns.to_labels.cast(pa.string())])
+    encoded = pc.dictionary_encode(endpoints)
+    labels = _to_numpy_text(encoded.dictionary)
+    reference = np.flatnonzero(labels == ground)
+    if reference.size == 0:
+        raise InputError(f"{path}: reference node {ground!r} is not a node of the network; "
+                         "name another with --ground")
+    index = encoded.indices.to_numpy().astype(np.int64)
+    return Network(labels, _branch_names(columns.names, m), columns.kind, index[:m], index[m:],
+                   columns.value, int(reference[0]))
+
+
+def _branch_names(names: pa.Array | None, m: int) -> np.ndarray:
+    """Branch names; a missing column or an empty name gives the 1-based row number."""
+    def row_numbers():
+        return pc.cast(pa.array(np.arange(1, m + 1)), pa.string())
+
+    if names is None:
+        return _to_numpy_text(row_numbers())
+    names = names.cast(pa.string())
+    empty = pc.equal(pc.utf8_length(names), 0)
+    if pc.any(empty).as_py():
+        names = pc.if_else(empty, row_numbers(), names)
+    return _to_numpy_text(names)
+
+
+def _to_numpy_text(array: pa.Array) -> np.ndarray:
+    return np.asarray(array.to_numpy(zero_copy_only=False), dtype=str)
+
+
+# ---------------------------------------------------------------------------------- exact pass
+def _text_lines(path: Path):
+    """Decoded physical lines (endings kept); names the line of any invalid UTF-8."""
+    opener = gzip.open if path.name.lower().endswith(".gz") else open
+    try:
+        with opener(path, "rb") as stream:
+            for number, raw in enumerate(stream, start=1):
+                try:
+                    yield raw.decode("utf-8-sig" if number == 1 else "utf-8")
+                except UnicodeDecodeError:
+                    raise InputError(f"{path}:{number}: not valid UTF-8 text") from None
+    except (OSError, EOFError) as error:
+        raise InputError(f"{path}: cannot be read ({error})") from None
+
+
+def _table_records(path: Path, delimiter: str):
+    """``(first physical line, fields)`` of every non-blank record, the header included."""
+    reader = csv.reader(_text_lines(path), delimiter=delimiter)
+    end = 0
+    for fields in reader:
+        start, end = end + 1, reader.line_num
+        if fields:
+            yield start, fields
+
+
+def _edge_records(path: Path):
+    """``(physical line, fields)`` of every edge-list line with content outside comments."""
+    for number, text in enumerate(_text_lines(path), start=1):
+        fields = text.split("#", 1)[0].split()
+        if fields:
+            yield number, fields
+
+
+def _read_header(path: Path, delimiter: str) -> tuple[int, list]:
+    """Physical line number and canonical column names of a branch table's header."""
+    first = next(_table_records(path, delimiter), None)
+    if first is None:
+        raise InputError(f"{path}: the file is empty")
+    line, fields = first
+    header = [field.strip().lower() for field in fields]
+    where = f"{path}:{line}: header"
+    unknown = [name for name in header if name not in COLUMNS]
+    if unknown:
+        raise InputError(f"{where} has unknown column(s) {', '.join(map(repr, unknown))} "
+                         f"(expected {', '.join(COLUMNS)})")
+    repeated = sorted({name for name in header if header.count(name) > 1})
+    if repeated:
+        raise InputError(f"{where} repeats column(s) {', '.join(map(repr, repeated))}")
+    missing = [name for name in REQUIRED_COLUMNS if name not in header]
+    if missing:
+        raise InputError(f"{where} has no column {', '.join(map(repr, missing))} "
+                         f"(found {', '.join(map(repr, header))})")
+    return line, header
+
+
+def _parse_number(text: str) -> float:
+    """``float`` restricted to what the fast path accepts (no digit-group underscores)."""
+    if "_" in text:
+        raise ValueError(text)
+    return float(text)
+
+
+class _ProblemList:
+    """Collects problems; keeps the first few messages and counts the rest."""
+
+    def __init__(self, path: Path):
+        self.path = path
+        self.messages = []
+        self.count = 0
+
+    def add(self, line: int, message: str) -> None:
+        self.count += 1
+        if len(self.messages) < MAX_REPORTED_ERRORS:
+            self.messages.append(f"{self.path}:{line}: {message}")
+
+    def raise_if_any(self) -> None:
+        if self.count:
+            more = self.count - len(self.messages)
+            raise InputError("\n".join(self.messages + ([f"... and {more} more"] if more else [])))
+
+
+class _ColumnsBuilder:
+    """Accumulates checked rows of the exact pass."""
+
+    def __init__(self):
+        self.from_labels, self.to_labels, self.values, self.kinds, self.names = [], [], [], [], []
+
+    def add_row(self, problems: _ProblemList, line: int, fields: dict) -> None:
+        ok = True
+        for column in ("from", "to"):
+            if not fields[column]:
+                problems.add(line, f"column {column!r}: empty node label")
+                ok = False
+        kind = KIND_SPELLINGS.get(fields.get("kind", "").upper())
+        if kind is None:
+            problems.add(line, f"column 'kind': {fields['kind']!r} is not a branch kind "
+                               "(R, V or I)")
+            ok = False
+        try:
+            value = _parse_number(fields["value"])
+        except ValueError:
+            problems.add(line, "column 'value': " + (f"{fields['value']!r} is not a number"
+                                                     if fields["value"] else "empty"))
+            ok = False
+        if ok:
+            self.from_labels.append(fields["from"])
+            self.to_labels.append(fields["to"])
+            self.values.append(value)
+            self.kinds.append(kind)
+            self.names.append(fields.get("name"))
+
+    def columns(self, named: bool) -> _Columns:
+        return _Columns(pa.array(self.from_labels, pa.string()), pa.array(self.to_labels, pa.string()),
+                        np.asarray(self.values, np.float64), np.asarray(self.kinds, np.uint8),
+                        pa.array(self.names, pa.string()) if named else None)
+
+
+def _exact_table(path: Path, delimiter: str, header: list) -> _Columns:
+    problems, rows = _ProblemList(path), _ColumnsBuilder()
+    records = _table_records(path, delimiter)
+    next(records)                               # the header
+    for line, fields in records:
+        if len(fields) != len(header):
+            problems.add(line, f"{len(fields)} field(s), expected {len(header)} "
+                               f"({', '.join(header)})")
+            continue
+        rows.add_row(problems, line, {name: field.strip() for name, field in zip(header, fields)})
+    problems.raise_if_any()
+    return rows.columns(named="name" in header)
+
+
+def _exact_edge_list(path: Path) -> _Columns:
+    problems, rows = _ProblemList(path), _ColumnsBuilder()
+    for line, fields in _edge_records(path):
+        if len(fields) != len(EDGE_LIST_FIELDS):
+            problems.add(line, f"{len(fields)} field(s), expected 3 (from to ohms)")
+            continue
+        rows.add_row(problems, line, dict(zip(EDGE_LIST_FIELDS, fields)))
+    problems.raise_if_any()
+    return rows.columns(named=False)
+
+
+__all__ = ["read_network", "locate_lines", "table_delimiter", "COLUMNS", "REQUIRED_COLUMNS"]
