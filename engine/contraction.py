@@ -95,8 +95,8 @@ def contract_reference(n_nodes, a, b, volts):
     """Plain-Python reference for :func:`contract_kernel` (breadth-first search per component).
 
     Same outputs and meaning; the chosen roots and spanning forest may differ from the kernel's,
-    but the partition, the offset differences within a set, the number of tree branches and the
-    consistency of every loop do not.
+    but the partition, the number of tree branches, whether each set holds a loop that breaks
+    KVL, and (in sets where no loop breaks it) the offset differences within a set do not.
     """
     adjacency = [[] for _ in range(n_nodes)]
     for e, (u, v) in enumerate(zip(a.tolist(), b.tolist())):

@@ -157,7 +157,9 @@ def assemble(net: Network, contraction: Contraction, pinned_nodes=()) -> Reduced
     # Currents the offsets drive through resistors between supernodes, and current sources.
     g = graph.conductance
     drive = g * (offset[net.from_node[graph.branches]] - offset[net.to_node[graph.branches]])
-    rhs = np.bincount(graph.b, drive, minlength=n) - np.bincount(graph.a, drive, minlength=n)
+    # np.bincount returns integers when it gets no entries (no resistor between supernodes).
+    rhs = np.zeros(n)
+    rhs += np.bincount(graph.b, drive, minlength=n) - np.bincount(graph.a, drive, minlength=n)
     sources = np.flatnonzero(net.kind == CURRENT_SOURCE)
     amps = net.value[sources]
     rhs += (np.bincount(supernode[net.to_node[sources]], amps, minlength=n)

@@ -130,9 +130,11 @@ class AmgCgSolver(SPDSolver):
         if self.matrix.shape[0] == 0:
             return
         smoother = ("gauss_seidel", {"sweep": "symmetric"})
+        # Sparse LU on the coarsest grid: pyamg's default dense pseudo-inverse of up to
+        # max_coarse x max_coarse runs a multithreaded SVD that is orders slower on busy cores.
         self._hierarchy = pyamg.smoothed_aggregation_solver(
             self.matrix, symmetry="hermitian", strength=("symmetric", {"theta": 0.0}),
-            presmoother=smoother, postsmoother=smoother, max_coarse=500)
+            presmoother=smoother, postsmoother=smoother, max_coarse=500, coarse_solver="splu")
         self._preconditioner = self._hierarchy.aspreconditioner(cycle="V")
 
     def _solve_column(self, b):
