@@ -88,9 +88,19 @@ class Solution:
 
     @property
     def power_delivered(self) -> float:
-        """Power delivered by all sources (W, positive when sources supply the network)."""
-        sources = self.network.kind != RESISTOR
-        return float(-self.branch_power[sources].sum())
+        """Power delivered by the sources that supply power (W, the sum of ``-p`` over sources
+        whose power ``p`` is negative)."""
+        sources = self.branch_power[self.network.kind != RESISTOR]
+        return float(-sources[sources < 0].sum())
+
+    @property
+    def power_absorbed_by_sources(self) -> float:
+        """Power absorbed by sources (W), for example current-source loads or a charged supply.
+
+        ``power_delivered = power_dissipated + power_absorbed_by_sources + power_balance``.
+        """
+        sources = self.branch_power[self.network.kind != RESISTOR]
+        return float(sources[sources > 0].sum())
 
     def summary(self, top: int = 5) -> dict:
         """Plain-data summary: voltage range, largest currents and powers, evidence, timings."""
@@ -122,6 +132,7 @@ class Solution:
             "kcl_worst_node": str(labels[self.kcl_worst_node]),
             "power_balance_W": self.power_balance,
             "power_delivered_W": self.power_delivered,
+            "power_absorbed_by_sources_W": self.power_absorbed_by_sources,
             "power_dissipated_W": self.power_dissipated,
             "voltage_min": {"node": str(labels[low]), "volts": float(v[low])},
             "voltage_max": {"node": str(labels[high]), "volts": float(v[high])},

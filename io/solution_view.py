@@ -79,8 +79,10 @@ def format_solution(summary: dict) -> str:
         f"solver    {s['method']}, {s['iterations']} iteration(s), rtol {s['rtol']:.1e}{unknowns}",
         f"evidence  relative residual {s['relative_residual']:.3e}",
         f"          KCL max residual {s['kcl_max_residual_A']:.3e} A (node {s['kcl_worst_node']})",
-        f"          power balance {s['power_balance_W']:.3e} W (delivered "
-        f"{_number(s['power_delivered_W'])} W, dissipated {_number(s['power_dissipated_W'])} W)",
+        f"          power balance {s['power_balance_W']:.3e} W (sources deliver "
+        f"{_number(s['power_delivered_W'])} W; resistors dissipate "
+        f"{_number(s['power_dissipated_W'])} W, sources absorb "
+        f"{_number(s['power_absorbed_by_sources_W'])} W)",
         f"voltages  min {_number(low['volts'])} V (node {low['node']}), "
         f"max {_number(high['volts'])} V (node {high['node']})",
     ]

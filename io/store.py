@@ -233,6 +233,7 @@ def _root_attrs(solution: Solution, input_path) -> dict:
         "kcl_worst_node": str(net.node_labels[solution.kcl_worst_node]),
         "power_balance": float(solution.power_balance),
         "power_delivered": float(solution.power_delivered),
+        "power_absorbed_by_sources": float(solution.power_absorbed_by_sources),
         "power_dissipated": float(solution.power_dissipated),
         "notes": _string_list(solution.notes),
     }
