@@ -10,10 +10,18 @@ from ohmgraph.engine.network import (CURRENT_SOURCE, KIND_LETTERS, RESISTOR, VOL
 from ohmgraph.engine.solve import NetworkNotSolvable, Solution, solve
 from ohmgraph.engine.solvers import (DEFAULT_RTOL, SolveInfo, SolverFailed, SPDSolver,
                                      make_solver, solve_spd)
+from ohmgraph.engine.measurements import Comparison, ReadingModel, Readings, build_model, compare
+from ohmgraph.engine.sensitivity import (MonteCarloSpread, ToleranceSpread,
+                                         conductance_sensitivity, monte_carlo,
+                                         resistance_sensitivity, tolerance_spread)
+from ohmgraph.engine.diagnosis import Diagnosis, Hypothesis, diagnose
 
 __all__ = [
     "Network", "RESISTOR", "VOLTAGE_SOURCE", "CURRENT_SOURCE", "KIND_LETTERS",
     "check", "CheckReport", "Finding",
     "solve", "Solution", "NetworkNotSolvable",
     "solve_spd", "make_solver", "SPDSolver", "SolveInfo", "SolverFailed", "DEFAULT_RTOL",
+    "Readings", "ReadingModel", "build_model", "compare", "Comparison",
+    "conductance_sensitivity", "resistance_sensitivity", "tolerance_spread", "ToleranceSpread",
+    "monte_carlo", "MonteCarloSpread", "diagnose", "Diagnosis", "Hypothesis",
 ]

@@ -14,7 +14,7 @@ import sys
 
 from ohmgraph.io.errors import EXIT_BAD_INPUT, UserError
 
-COMMANDS = ["check", "solve", "show", "generate", "demo"]
+COMMANDS = ["check", "solve", "show", "generate", "demo", "compare", "diagnose", "tolerance"]
 
 
 def build_parser() -> argparse.ArgumentParser:

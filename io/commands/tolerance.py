@@ -1,0 +1,136 @@
+"""``ohmgraph tolerance NET --observe NODE...``: spread of node voltages from resistor tolerances."""
+
+from __future__ import annotations
+
+import argparse
+
+import numpy as np
+from tqdm import tqdm
+
+from ohmgraph.engine.measurements import Readings
+from ohmgraph.engine.sensitivity import monte_carlo, tolerance_spread
+from ohmgraph.io.commands.compare import (add_network_arguments, add_output_arguments,
+                                          check_output, model_readings, write_table)
+from ohmgraph.io.errors import EXIT_OK, InputError
+from ohmgraph.io.jsonout import dumps
+from ohmgraph.io.measurement_table import parse_percent, read_tolerances
+from ohmgraph.io.reader import read_network
+
+
+def _percent(text: str) -> float:
+    try:
+        return parse_percent(text)
+    except ValueError as error:
+        raise argparse.ArgumentTypeError(str(error)) from None
+
+
+def _count(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
+    if value < 0:
+        raise argparse.ArgumentTypeError(f"{text!r} must not be negative")
+    return value
+
+
+def register(subparsers) -> None:
+    parser = subparsers.add_parser(
+        "tolerance", help="spread of node voltages from resistor tolerances",
+        description="Sensitivity of each observed node voltage to every resistor by the adjoint "
+                    "method (one extra solve per observed node), the worst-case and "
+                    "root-sum-square spread from the resistor tolerances, the largest "
+                    "contributors, and optionally a Monte Carlo check.")
+    add_network_arguments(parser)
+    parser.add_argument("--observe", nargs="+", required=True, metavar="NODE",
+                        help="node labels whose voltage (against the reference) to analyse")
+    parser.add_argument("--tolerances", metavar="FILE",
+                        help="CSV branch,tolerance (percent) for individual resistors")
+    parser.add_argument("--default", type=_percent, metavar="PCT",
+                        help="tolerance of every resistor not in FILE, e.g. 1%%")
+    parser.add_argument("--top", type=_count, default=5, metavar="N",
+                        help="largest contributors listed per node (default 5)")
+    parser.add_argument("--samples", type=_count, default=0, metavar="N",
+                        help="Monte Carlo samples (values uniform within tolerance; default 0)")
+    parser.add_argument("--seed", type=int, default=0, help="Monte Carlo seed (default 0)")
+    add_output_arguments(parser, (".h5", ".hdf5"))
+    parser.set_defaults(run=run)
+
+
+def _observations(net, labels) -> Readings:
+    unknown = [label for label in labels if label not in net.label_index]
+    if unknown:
+        raise InputError(f"--observe: unknown node(s) {', '.join(map(repr, unknown))}")
+    try:
+        return Readings.from_labels(net, ["V"] * len(labels), labels, [""] * len(labels))
+    except ValueError as error:
+        raise InputError(f"--observe: {error}") from None
+
+
+def _format(net, labels, spread, model, top, carlo) -> str:
+    lines = []
+    for row, label in enumerate(labels):
+        volts = model.model_value[row]
+        lines.append(f"node {label}: {volts:.6g} V; worst case ±{spread.worst_case[row]:.4g} V, "
+                     f"root-sum-square ±{spread.rss[row]:.4g} V "
+                     f"(standard deviation {spread.linear_std_uniform[row]:.4g} V for values "
+                     "uniform within tolerance)")
+        if carlo is not None:
+            lines.append(f"  Monte Carlo ({carlo.values.shape[0]} samples, seed {carlo.seed}): "
+                         f"standard deviation {carlo.std[row]:.4g} V, range "
+                         f"{carlo.low[row]:.6g} .. {carlo.high[row]:.6g} V")
+        for position in spread.top_contributors(row, top):
+            contribution = spread.contribution[row, position]
+            if contribution == 0:
+                break
+            branch = spread.resistors[position]
+            lines.append(f"  {net.branch_names[branch]:>12}: dV/dR {spread.sensitivity[row, position]:+.4g} "
+                         f"V/ohm, ±{abs(contribution):.4g} V at its tolerance")
+    return "\n".join(lines)
+
+
+def run(args) -> int:
+    """Run ``tolerance``; exit 0 after the analysis."""
+    check_output(args, (".h5", ".hdf5"))
+    if args.tolerances is None and args.default is None:
+        raise InputError("give --tolerances FILE, --default PCT, or both")
+    net = read_network(args.network, ground=args.ground)
+    tolerance = (read_tolerances(args.tolerances, net, args.default or 0.0)
+                 if args.tolerances else np.full(net.n_branches, args.default))
+    observed = _observations(net, args.observe)
+    model = model_readings(args, net, observed)
+    spread = tolerance_spread(model, tolerance)
+    carlo = None
+    if args.samples:
+        with tqdm(total=args.samples, desc="Monte Carlo", unit="solve", leave=False,
+                  disable=None) as bar:
+            carlo = monte_carlo(model, tolerance, args.samples, args.seed, on_sample=bar.update)
+    columns = {"node": np.array(args.observe), "nominal_V": model.model_value,
+               "worst_case_V": spread.worst_case, "rss_V": spread.rss,
+               "linear_std_V": spread.linear_std_uniform}
+    if carlo is not None:
+        columns.update({"monte_carlo_std_V": carlo.std, "monte_carlo_low_V": carlo.low,
+                        "monte_carlo_high_V": carlo.high})
+    attrs = {"samples": args.samples, "seed": args.seed, "timings_s": model.timings,
+             "distribution": "uniform within tolerance"}
+    if args.output:
+        write_table(args, "tolerance", columns, attrs=attrs,
+                    units={key: "V" for key in columns if key.endswith("_V")}
+                    | {"sensitivity": "V/ohm"},
+                    matrices={"sensitivity": spread.sensitivity,
+                              "resistor": net.branch_names[spread.resistors]},
+                    sources={"network": args.network,
+                             **({"tolerances": args.tolerances} if args.tolerances else {})})
+    if args.json:
+        nodes = []
+        for row, label in enumerate(args.observe):
+            entry = {key: values[row] for key, values in columns.items()}
+            entry["top_contributors"] = [
+                {"branch": str(net.branch_names[spread.resistors[p]]),
+                 "dV_dR": spread.sensitivity[row, p], "at_tolerance_V": spread.contribution[row, p]}
+                for p in spread.top_contributors(row, args.top)]
+            nodes.append(entry)
+        print(dumps({"summary": attrs, "nodes": nodes}))
+    else:
+        print(_format(net, args.observe, spread, model, args.top, carlo))
+    return EXIT_OK

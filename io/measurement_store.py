@@ -1,0 +1,132 @@
+"""HDF5 output of comparisons, diagnoses and tolerance analyses, written atomically.
+
+One file holds one result as a group (``/comparison``, ``/diagnosis`` or ``/tolerance``) of
+equal-length column datasets (one row per reading, hypothesis member or observed quantity),
+extra matrices where a result has them (``/tolerance/sensitivity``), and attributes:
+
+* on the group: the result's numbers (summary counts, chi-square values, timings in seconds,
+  solver evidence) with dotted names for nested values;
+* on every column: ``units`` where it has one;
+* on the root: ``tool_version``, ``created`` (ISO 8601 UTC), ``result`` (the group name) and, for
+  every input file, its name and SHA-256 (``network_file``, ``network_sha256``, ...).
+
+Strings are fixed-length UTF-8 (readable by any HDF5 tool). The file goes through
+:func:`ohmgraph.io.atomic.atomic_output`: it appears complete or not at all.
+"""
+
+from __future__ import annotations
+
+from datetime import datetime, timezone
+from pathlib import Path
+
+import h5py
+import numpy as np
+
+from ohmgraph.io.atomic import atomic_output
+from ohmgraph.io.errors import InputError, OutputRefused
+from ohmgraph.io.store import decode_strings, encode_strings, file_sha256, tool_version
+
+COMPRESS_FROM = 4096
+
+
+def _plain_array(values) -> np.ndarray:
+    data = np.asarray(values)
+    if data.dtype.kind in "UO":
+        encoded = encode_strings(data.astype(str))
+        return encoded.view(h5py.string_dtype("utf-8", encoded.dtype.itemsize))
+    return data
+
+
+def _flatten(values: dict, prefix: str = "") -> dict:
+    flat = {}
+    for key, value in values.items():
+        if isinstance(value, dict):
+            flat.update(_flatten(value, f"{prefix}{key}."))
+        elif value is not None:
+            flat[f"{prefix}{key}"] = value
+    return flat
+
+
+def _set_attrs(target, values: dict) -> None:
+    for key, value in _flatten(values).items():
+        if isinstance(value, (list, tuple)):
+            value = _plain_array([str(v) for v in value]) if value else np.empty(0, "S1")
+        target.attrs[key] = value
+
+
+def write_results(path, name: str, columns: dict, *, units: dict | None = None,
+                  attrs: dict | None = None, matrices: dict | None = None,
+                  sources: dict | None = None, force: bool = False) -> None:
+    """Write one result group to a new HDF5 file, atomically.
+
+    Parameters
+    ----------
+    path : str or Path
+    name : str
+        Group name (``comparison``, ``diagnosis``, ``tolerance``).
+    columns : dict of str to array_like
+        Equal-length columns.
+    units : dict of str to str, optional
+        Units of some columns (and matrices).
+    attrs : dict, optional
+        Group attributes (nested dicts become dotted names; None values are skipped).
+    matrices : dict of str to ndarray, optional
+        Further datasets of any shape.
+    sources : dict of str to path, optional
+        Input files recorded on the root by name and SHA-256 (``{"network": "net.csv"}``).
+    force : bool
+        Overwrite an existing file.
+
+    Raises
+    ------
+    OutputRefused
+        If the file exists without ``force`` or cannot be written.
+    """
+    units = units or {}
+    try:
+        with atomic_output(path, force) as temporary:
+            with h5py.File(temporary, "w") as h5:
+                h5.attrs["tool_version"] = tool_version()
+                h5.attrs["created"] = datetime.now(timezone.utc).isoformat(timespec="seconds")
+                h5.attrs["result"] = name
+                for role, source in (sources or {}).items():
+                    h5.attrs[f"{role}_file"] = Path(source).name
+                    h5.attrs[f"{role}_sha256"] = file_sha256(source)
+                group = h5.create_group(name)
+                for column, values in {**columns, **(matrices or {})}.items():
+                    data = _plain_array(values)
+                    options = {}
+                    if data.size >= COMPRESS_FROM and data.dtype.kind != "S":
+                        options = dict(chunks=True, compression="gzip", compression_opts=1,
+                                       shuffle=True)
+                    dataset = group.create_dataset(column, data=data, **options)
+                    if column in units:
+                        dataset.attrs["units"] = units[column]
+                _set_attrs(group, attrs or {})
+    except OSError as error:
+        raise OutputRefused(f"{path}: cannot be written ({error})") from None
+
+
+def read_results(path, name: str) -> tuple[dict, dict, dict]:
+    """Read back a result group: ``(datasets, group attributes, root attributes)``.
+
+    Raises
+    ------
+    InputError
+        If the file is not HDF5 or has no such group.
+    """
+    try:
+        h5 = h5py.File(path, "r")
+    except OSError as error:
+        raise InputError(f"{path}: not a readable HDF5 file ({error})") from None
+    with h5:
+        if name not in h5:
+            raise InputError(f"{path}: no group '/{name}' (found {', '.join(h5.keys())})")
+        datasets = {}
+        for key, dataset in h5[name].items():
+            data = dataset[()]
+            datasets[key] = decode_strings(data) if data.dtype.kind == "S" else data
+        return datasets, dict(h5[name].attrs), dict(h5.attrs)
+
+
+__all__ = ["write_results", "read_results"]
