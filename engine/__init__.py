@@ -15,6 +15,9 @@ from ohmgraph.engine.sensitivity import (MonteCarloSpread, ToleranceSpread,
                                          conductance_sensitivity, monte_carlo,
                                          resistance_sensitivity, tolerance_spread)
 from ohmgraph.engine.diagnosis import Diagnosis, Hypothesis, diagnose
+from ohmgraph.engine.kron import kron_reduction, reduced_resistances
+from ohmgraph.engine.resistance import PairResistances, ResistanceSolver
+from ohmgraph.engine.sketch import KirchhoffIndex, ResistorResistances
 
 __all__ = [
     "Network", "RESISTOR", "VOLTAGE_SOURCE", "CURRENT_SOURCE", "KIND_LETTERS",
@@ -24,4 +27,6 @@ __all__ = [
     "Readings", "ReadingModel", "build_model", "compare", "Comparison",
     "conductance_sensitivity", "resistance_sensitivity", "tolerance_spread", "ToleranceSpread",
     "monte_carlo", "MonteCarloSpread", "diagnose", "Diagnosis", "Hypothesis",
+    "ResistanceSolver", "PairResistances", "ResistorResistances", "KirchhoffIndex",
+    "kron_reduction", "reduced_resistances",
 ]

@@ -14,7 +14,8 @@ import sys
 
 from ohmgraph.io.errors import EXIT_BAD_INPUT, UserError
 
-COMMANDS = ["check", "solve", "show", "generate", "demo", "compare", "diagnose", "tolerance"]
+COMMANDS = ["check", "solve", "show", "generate", "demo", "compare", "diagnose", "tolerance",
+            "resistance"]
 
 
 def build_parser() -> argparse.ArgumentParser:

@@ -1,0 +1,388 @@
+"""Effective (two-point) resistance: pairs, batches, driving-point, every resistor, Kirchhoff index.
+
+The effective resistance between nodes ``a`` and ``b`` is the voltage between them when 1 A is
+driven in at ``a`` and out at ``b`` with every independent source zeroed
+(:meth:`~ohmgraph.engine.network.Network.passive`): ``R_ab = d^T L^+ d`` with ``d = e_a - e_b``
+and ``L`` the weighted Laplacian (Klein & Randić, J. Math. Chem. 12, 81–95, 1993). Nodes joined
+by ideal connections are merged into supernodes first (0 ohm between them); nodes in different
+islands are infinitely far apart.
+
+:class:`ResistanceSolver` sets up ONE solver per network: the Laplacian of the supernode graph is
+grounded at one supernode per island (the island holding the reference node is grounded there),
+which leaves a symmetric positive-definite matrix ``A`` whose inverse ``G`` is the grounded
+Green's function, ``R_ab = G_aa + G_bb - 2 G_ab`` within an island. Every query reuses that
+solver, with many right-hand sides solved as blocks.
+
+Accuracy
+--------
+For one pair, with a computed solution ``x`` of ``A x = d`` and its residual ``r = d - A x``,
+the reported value is the energy estimate ``R~ = d^T x + x^T r``, whose error is exactly
+``R - R~ = r^T A^{-1} r >= 0`` (the quadratic error of the Ritz/energy functional; see
+Golub & Van Loan, *Matrix Computations*, 4th ed., §11.3 on conjugate-gradient error in the
+A-norm). Because ``A^{-1}`` of a grounded Laplacian is entrywise non-negative with its largest
+entry on the diagonal (maximum principle), ``r^T A^{-1} r <= ||r||_1^2 max_i G_ii``, and by
+Rayleigh's monotonicity law ``G_ii`` (the resistance from ``i`` to ground) is at most the
+resistance of the cheapest path from ``i`` to ground, found once by Dijkstra's algorithm. The
+reported ``accuracy`` is that bound divided by the value: a relative error bound, one-sided (the
+true resistance lies in ``[R~, R~ (1 + accuracy)]``), floored at the machine epsilon of float64
+(the rounding of the value itself; the bound does not cover rounding in forming ``r``).
+Values read from a terminal reduction (:meth:`ResistanceSolver.pairs` with few terminals) use the
+plain ``d^T x``, whose error ``|x^T r|`` is bounded by ``sqrt(R ||r||_1^2 max G_ii)``.
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass, field
+
+import numpy as np
+import scipy.sparse as sp
+from scipy.sparse.csgraph import connected_components, dijkstra
+
+from ohmgraph.engine.contraction import contract
+from ohmgraph.engine.formulation import grounded_matrix, supernode_graph
+from ohmgraph.engine.kron import kron_reduction
+from ohmgraph.engine.network import RESISTOR, Network
+from ohmgraph.engine.sketch import across_resistors, kirchhoff_index
+from ohmgraph.engine.solvers import (DEFAULT_RTOL, DIRECT_FALLBACK_LIMIT, DirectSolver,
+                                     SolverFailed, make_solver)
+
+# Unknowns for which "auto" picks the direct solver: resistance queries solve many right-hand
+# sides per network, so one factorisation pays off far beyond the single-solve threshold.
+RESISTANCE_DIRECT_LIMIT = DIRECT_FALLBACK_LIMIT
+# Floats held by one block of right-hand sides (columns x unknowns); 2**24 is 128 MiB.
+BLOCK_FLOATS = 2 ** 24
+MAX_BLOCK_COLUMNS = 64
+# Terminal reduction in pairs(): used when there are at most this many distinct terminals and
+# fewer terminals than distinct pairs (one solve per terminal instead of one per pair).
+KRON_TERMINAL_LIMIT = 2000
+EPSILON = float(np.finfo(np.float64).eps)
+
+
+@dataclass(frozen=True)
+class PairResistances:
+    """Effective resistances of a batch of node pairs.
+
+    Attributes
+    ----------
+    ohms : ndarray of float64
+        Effective resistance of each pair; ``inf`` across islands, 0 for one node (or two nodes
+        joined by ideal connections).
+    accuracy : ndarray of float64
+        Relative error bound of each value (see the module notes); 0 where the value is exact.
+    method : str
+        ``"pair solves"`` (one right-hand side per distinct pair), ``"terminal reduction"``
+        (one per distinct terminal) or ``"trivial"`` (nothing to solve).
+    solves : int
+        Right-hand sides solved.
+    seconds : float
+    """
+
+    ohms: np.ndarray
+    accuracy: np.ndarray
+    method: str
+    solves: int
+    seconds: float
+
+
+@dataclass
+class SolverStats:
+    """What the shared solver has done so far (accumulated over every query)."""
+
+    method: str
+    unknowns: int
+    setup_seconds: float
+    solves: int = 0
+    solve_seconds: float = 0.0
+    max_iterations: int = 0
+    max_relative_residual: float = 0.0
+    notes: list = field(default_factory=list)
+
+
+def block_columns(n_unknowns: int) -> int:
+    """Right-hand sides per block: at most :data:`MAX_BLOCK_COLUMNS`, within :data:`BLOCK_FLOATS`."""
+    return int(max(1, min(MAX_BLOCK_COLUMNS, BLOCK_FLOATS // max(n_unknowns, 1))))
+
+
+class ResistanceSolver:
+    """Effective resistances of one network, with one solver set up and reused for every query.
+
+    Parameters
+    ----------
+    net : Network
+        Any network; its sources are zeroed (:meth:`Network.passive`). Resistances must be
+        finite and non-negative (as :func:`ohmgraph.engine.check` requires).
+    method : {"auto", "direct", "amg-cg"}
+        ``auto`` factorises (``direct``) up to :data:`RESISTANCE_DIRECT_LIMIT` unknowns.
+    rtol : float
+        Relative residual target of iterative solves.
+
+    Raises
+    ------
+    ValueError
+        On a negative or non-finite resistance.
+    """
+
+    def __init__(self, net: Network, method: str = "auto", rtol: float = DEFAULT_RTOL):
+        start = time.perf_counter()
+        passive = net.passive()
+        resistors = passive.kind == RESISTOR
+        if not np.all(np.isfinite(passive.value[resistors])) or np.any(passive.value[resistors] < 0):
+            raise ValueError("resistances must be finite and non-negative")
+        self.network = net
+        self.contraction = contract(passive)
+        self.graph = supernode_graph(passive, self.contraction)
+        self.supernode = self.contraction.supernode
+        n_super = self.graph.n_supernodes
+        self.supernode_size = np.bincount(self.supernode, minlength=n_super)
+
+        conductance = sp.csr_matrix((self.graph.conductance, (self.graph.a, self.graph.b)),
+                                    shape=(n_super, n_super))
+        conductance = (conductance + conductance.T).tocsr()   # parallel conductances add up
+        self.n_islands, self.island = connected_components(conductance, directed=False)
+        self.ground = self._grounds(net.reference)
+        unknown_of = np.full(n_super, -1, np.int64)
+        free = np.setdiff1d(np.arange(n_super), self.ground)
+        unknown_of[free] = np.arange(free.size)
+        self.free, self.unknown_of = free, unknown_of
+        self.matrix = grounded_matrix(self.graph, free, unknown_of)
+        self.ground_distance = self._ground_distance(conductance)
+        self.rtol = float(rtol)
+        if method == "auto":
+            method = "direct" if free.size <= RESISTANCE_DIRECT_LIMIT else "amg-cg"
+        self.solver = make_solver(self.matrix, method, rtol)
+        self.stats = SolverStats(self.solver.method, int(free.size),
+                                 time.perf_counter() - start)
+
+    # ------------------------------------------------------------------ set-up helpers
+    def _grounds(self, reference: int) -> np.ndarray:
+        """One grounded supernode per island: the reference's in its island, else the first."""
+        n_super = self.graph.n_supernodes
+        first = np.full(self.n_islands, n_super, np.int64)
+        np.minimum.at(first, self.island, np.arange(n_super))
+        ref = self.supernode[reference]
+        first[self.island[ref]] = ref
+        return first
+
+    def _ground_distance(self, conductance) -> np.ndarray:
+        """Per island, the largest cheapest-path resistance from a supernode to its ground.
+
+        By Rayleigh's monotonicity law it bounds every driving-point resistance to ground in the
+        island (bundles of parallel resistors count as their parallel combination).
+        """
+        resistance = conductance.copy()
+        resistance.data = 1.0 / resistance.data
+        distance = dijkstra(resistance, directed=False, indices=self.ground, min_only=True)
+        worst = np.zeros(self.n_islands)
+        np.maximum.at(worst, self.island, distance)
+        return worst
+
+    # ------------------------------------------------------------------ solving
+    @property
+    def n_nodes(self) -> int:
+        return self.network.n_nodes
+
+    def solve_block(self, rhs: np.ndarray) -> np.ndarray:
+        """Solve ``A X = rhs`` (columns over the unknowns) with the shared solver.
+
+        An iterative solve that misses ``rtol`` switches the shared solver to ``direct`` (when the
+        system is small enough) and solves again; the switch is noted in :attr:`stats`.
+
+        Raises
+        ------
+        SolverFailed
+            When no solver reaches the target.
+        """
+        x, info = self.solver.solve(rhs)
+        if not info.converged and self.solver.method != "direct":
+            if self.matrix.shape[0] > DIRECT_FALLBACK_LIMIT:
+                raise SolverFailed(
+                    f"{info.method} stopped at relative residual {info.relative_residual:.3g} "
+                    f"(rtol {self.rtol:g}); the system is too large for the direct fallback")
+            self.stats.notes.append(f"{info.method} reached relative residual "
+                                    f"{info.relative_residual:.3g}; switched to direct")
+            self.solver = DirectSolver(self.matrix, self.rtol)
+            self.stats.method = "direct"
+            x, info = self.solver.solve(rhs)
+        if not info.converged:
+            raise SolverFailed(f"{info.method} solve ended at relative residual "
+                               f"{info.relative_residual:.3g} (rtol {self.rtol:g})")
+        columns = 1 if rhs.ndim == 1 else rhs.shape[1]
+        self.stats.solves += columns
+        self.stats.solve_seconds += info.solve_seconds
+        self.stats.max_iterations = max(self.stats.max_iterations, info.iterations)
+        self.stats.max_relative_residual = max(self.stats.max_relative_residual,
+                                               info.relative_residual)
+        return x
+
+    def residual_energy_bound(self, residual: np.ndarray) -> np.ndarray:
+        """Upper bound of ``r^T A^{-1} r`` for each residual column: sum over islands of
+        ``||r_island||_1^2`` times the island's ground distance."""
+        residual = residual.reshape(residual.shape[0], -1)
+        island = self.island[self.free]
+        per_island = np.zeros((self.n_islands, residual.shape[1]))
+        np.add.at(per_island, island, np.abs(residual))
+        return (per_island ** 2 * self.ground_distance[:, None]).sum(axis=0)
+
+    def injection_block(self, sources: np.ndarray, sinks: np.ndarray) -> np.ndarray:
+        """Right-hand sides driving 1 A from supernode ``sources[j]`` to ``sinks[j]``."""
+        rhs = np.zeros((self.free.size, sources.size))
+        columns = np.arange(sources.size)
+        into, out = self.unknown_of[sources], self.unknown_of[sinks]
+        rhs[into[into >= 0], columns[into >= 0]] += 1.0
+        rhs[out[out >= 0], columns[out >= 0]] -= 1.0
+        return rhs
+
+    # ------------------------------------------------------------------ pair queries
+    def pair(self, a: int, b: int) -> tuple[float, float]:
+        """Effective resistance between node indices ``a`` and ``b``: ``(ohms, accuracy)``."""
+        result = self.pairs(np.array([a]), np.array([b]))
+        return float(result.ohms[0]), float(result.accuracy[0])
+
+    def to_reference(self, nodes) -> PairResistances:
+        """Driving-point resistance from each node index to the network's reference node."""
+        nodes = np.asarray(nodes, np.int64).reshape(-1)
+        return self.pairs(nodes, np.full(nodes.size, self.network.reference))
+
+    def pairs(self, a_idx, b_idx, progress=None) -> PairResistances:
+        """Effective resistances between node indices ``a_idx[k]`` and ``b_idx[k]``.
+
+        Repeated and reversed pairs are solved once. When the distinct terminals are few
+        (at most :data:`KRON_TERMINAL_LIMIT`, and fewer than the distinct pairs), the network is
+        reduced onto them once (:meth:`terminal_green`) and every pairwise value is read from the
+        reduced matrix; otherwise each distinct pair is one right-hand side, solved in blocks.
+
+        Parameters
+        ----------
+        a_idx, b_idx : array_like of int
+            Node indices (``0 .. n_nodes - 1``).
+        progress : callable, optional
+            Called with the number of right-hand sides just solved, after each block.
+        """
+        start = time.perf_counter()
+        a_idx = np.asarray(a_idx, np.int64).reshape(-1)
+        b_idx = np.asarray(b_idx, np.int64).reshape(-1)
+        if a_idx.shape != b_idx.shape:
+            raise ValueError("a_idx and b_idx must have the same length")
+        sa, sb = self.supernode[a_idx], self.supernode[b_idx]
+        ohms = np.zeros(a_idx.size)
+        accuracy = np.zeros(a_idx.size)
+        apart = self.island[sa] != self.island[sb]
+        ohms[apart] = np.inf
+        todo = ~apart & (sa != sb)
+        low, high = np.minimum(sa, sb)[todo], np.maximum(sa, sb)[todo]
+        if low.size == 0:
+            return PairResistances(ohms, accuracy, "trivial", 0, time.perf_counter() - start)
+        keys, inverse = np.unique(np.stack([low, high]), axis=1, return_inverse=True)
+        terminals = np.unique(keys)
+        before = self.stats.solves
+        if terminals.size <= KRON_TERMINAL_LIMIT and terminals.size < keys.shape[1]:
+            values, bounds = self._pairs_by_reduction(keys, terminals, progress)
+            method = "terminal reduction"
+        else:
+            values, bounds = self._pairs_by_solves(keys, progress)
+            method = "pair solves"
+        inverse = inverse.reshape(-1)
+        ohms[todo] = values[inverse]
+        accuracy[todo] = bounds[inverse]
+        return PairResistances(ohms, accuracy, method, self.stats.solves - before,
+                               time.perf_counter() - start)
+
+    def _pairs_by_solves(self, keys: np.ndarray, progress) -> tuple[np.ndarray, np.ndarray]:
+        """One right-hand side per distinct supernode pair (columns of ``keys``)."""
+        count = keys.shape[1]
+        values, bounds = np.empty(count), np.empty(count)
+        step = block_columns(self.free.size)
+        for begin in range(0, count, step):
+            cols = slice(begin, min(begin + step, count))
+            rhs = self.injection_block(keys[0, cols], keys[1, cols])
+            x = self.solve_block(rhs)
+            residual = rhs - self.matrix @ x
+            estimate = np.einsum("ij,ij->j", rhs, x) + np.einsum("ij,ij->j", x, residual)
+            values[cols] = estimate
+            bounds[cols] = np.maximum(self.residual_energy_bound(residual) / estimate, EPSILON)
+            if progress is not None:
+                progress(cols.stop - cols.start)
+        return values, bounds
+
+    def terminal_green(self, terminals: np.ndarray, progress=None):
+        """The grounded Green's function among ``terminals`` (supernode indices).
+
+        ``(A^{-1})_TT`` is the inverse of the Schur complement of ``A`` onto the terminals, the
+        Kron-reduced grounded Laplacian (Dörfler & Bullo, IEEE TCAS-I 60(1), 150–163, 2013);
+        it is computed with one solve per terminal of the network's shared solver, so no new
+        factorisation is needed. Grounded terminals have a zero row and column.
+
+        Returns
+        -------
+        green : ndarray, shape (t, t)
+        residual_l1 : ndarray, shape (t,)
+            ``||r||_1`` of each terminal's solve, 0 for grounded ones.
+        """
+        t = terminals.size
+        green = np.zeros((t, t))
+        residual_l1 = np.zeros(t)
+        unknowns = self.unknown_of[terminals]
+        live = np.flatnonzero(unknowns >= 0)
+        step = block_columns(self.free.size)
+        for begin in range(0, live.size, step):
+            cols = live[begin:begin + step]
+            rhs = np.zeros((self.free.size, cols.size))
+            rhs[unknowns[cols], np.arange(cols.size)] = 1.0
+            x = self.solve_block(rhs)
+            green[np.ix_(live, cols)] = x[unknowns[live]]
+            residual_l1[cols] = np.abs(rhs - self.matrix @ x).sum(axis=0)
+            if progress is not None:
+                progress(cols.size)
+        return 0.5 * (green + green.T), residual_l1
+
+    def _pairs_by_reduction(self, keys, terminals, progress) -> tuple[np.ndarray, np.ndarray]:
+        """All requested pairs read from the Green's function among the distinct terminals."""
+        green, residual_l1 = self.terminal_green(terminals, progress)
+        i = np.searchsorted(terminals, keys[0])
+        j = np.searchsorted(terminals, keys[1])
+        values = green[i, i] + green[j, j] - 2.0 * green[i, j]
+        worst = self.ground_distance[self.island[keys[0]]]
+        bounds = (residual_l1[i] + residual_l1[j]) * np.sqrt(worst / values)
+        return values, np.maximum(bounds, EPSILON)
+
+    # ------------------------------------------------------------------ whole-network queries
+    def dense_green(self) -> np.ndarray:
+        """The full grounded Green's function over supernodes (``n_supernodes`` squared floats),
+        by block solves of the identity; for small networks."""
+        green, _ = self.terminal_green(np.arange(self.graph.n_supernodes))
+        return green
+
+    def resistor_endpoints(self):
+        """Resistors of the network and their end supernodes: ``(branches, a, b, ohms)``."""
+        net = self.network
+        branches = np.flatnonzero(net.kind == RESISTOR)
+        return (branches, self.supernode[net.from_node[branches]],
+                self.supernode[net.to_node[branches]], net.value[branches])
+
+    def across_resistors(self, exact=None, epsilon: float = 0.1, k=None, seed: int = 0,
+                         progress=None):
+        """Effective resistance across every resistor (see
+        :func:`ohmgraph.engine.sketch.across_resistors`)."""
+        return across_resistors(self, exact, epsilon, k, seed, progress)
+
+    def kirchhoff_index(self, exact=None, samples: int = 200, seed: int = 0,
+                        confidence: float = 0.95, progress=None):
+        """The Kirchhoff index (see :func:`ohmgraph.engine.sketch.kirchhoff_index`)."""
+        return kirchhoff_index(self, exact, samples, seed, confidence, progress)
+
+    def kron_reduction(self, nodes) -> tuple[np.ndarray, np.ndarray]:
+        """The network reduced onto the supernodes of ``nodes`` (Kron reduction).
+
+        Returns
+        -------
+        supernodes : ndarray of int64
+            The distinct terminal supernodes, in order of first appearance in ``nodes``.
+        reduced : ndarray, shape (t, t)
+            Their Kron-reduced Laplacian (:func:`ohmgraph.engine.kron.kron_reduction`).
+        """
+        supers = self.supernode[np.asarray(nodes, np.int64).reshape(-1)]
+        _, first = np.unique(supers, return_index=True)
+        supers = supers[np.sort(first)]
+        return supers, kron_reduction(self.graph.laplacian(), supers, self.stats.method,
+                                      self.rtol)

@@ -1,0 +1,283 @@
+"""Whole-network resistance quantities: the resistance across every resistor, the Kirchhoff index.
+
+Each comes exact (one solve per unknown, read in blocks, never an ``n x n`` matrix) or as a
+randomised estimate with its error stated:
+
+* across every resistor, the random projection of Spielman & Srivastava ("Graph sparsification
+  by effective resistances", STOC 2008, §4): ``R_e = ||W^{1/2} B L^+ (e_u - e_v)||^2`` is kept
+  to within ``1 ± ε`` for every resistor at once (probability at least ``1 - 1/n``) by the
+  Johnson–Lindenstrauss sketch ``Z = Q W^{1/2} B L^+`` with ``Q`` a ``k x m`` matrix of
+  ``±1/sqrt(k)`` entries and ``k >= 24 ln n / ε²``; ``Z`` costs ``k`` solves. A single
+  resistor's estimate is a sum of ``k`` squared projections: with Gaussian entries it is
+  ``R_e χ²_k / k``, of relative standard deviation ``sqrt(2/k)``, and the ±1 entries concentrate
+  at least as well (Achlioptas, J. Comput. Syst. Sci. 66, 671–687, 2003);
+* the Kirchhoff index ``Kf = Σ_{i<j} R_ij = n trace(L^+)`` (Klein & Randić, J. Math. Chem. 12,
+  81–95, 1993), with Hutchinson's trace estimator (Comm. Stat. Simul. Comput. 18, 1059–1076,
+  1989): ``trace(M) = E[z^T M z]`` for Rademacher ``z``, the confidence interval being the sample
+  mean ± z_{(1+c)/2} · std / sqrt(samples).
+
+The functions take a :class:`~ohmgraph.engine.resistance.ResistanceSolver`, whose one shared
+solver does every solve. Nodes merged by ideal connections are counted with their multiplicity
+``w_s`` (nodes per supernode): ``Kf = n Σ_s w_s G_ss - w^T G w`` for the grounded Green's function
+``G`` of a connected network, which equals ``n trace(W^{1/2} P^T G P W^{1/2})`` with
+``P = I - w 1^T / n``; the sampled vectors ``P W^{1/2} z`` carry no net current, so each sample is
+independent of the choice of ground.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.sparse as sp
+from scipy.stats import norm
+
+# Unknowns up to which "exact=None" computes exact values (one solve per unknown).
+EXACT_UNKNOWN_LIMIT = 3000
+
+
+@dataclass(frozen=True)
+class ResistorResistances:
+    """Effective resistance across every resistor of a network.
+
+    Attributes
+    ----------
+    branches : ndarray of int64
+        Network indices of the resistors.
+    ohms : ndarray of float64
+        Effective resistance across each (0 for a resistor shorted by ideal connections).
+    resistor_ohms : ndarray of float64
+        The resistor's own value; ``ohms / resistor_ohms`` is its share of the spanning trees.
+    exact : bool
+    accuracy : ndarray of float64
+        Exact: a relative error bound from the solve residuals. Sketch: the relative standard
+        deviation ``sqrt(2/k)`` of each estimate.
+    sketch_size : int
+        ``k`` (0 when exact).
+    epsilon_all : float
+        Sketch: ``sqrt(24 ln n / k)``, the relative error every resistor stays within at once
+        with probability at least ``1 - 1/n`` (Spielman & Srivastava); 0 when exact.
+    solves : int
+    seconds : float
+    """
+
+    branches: np.ndarray
+    ohms: np.ndarray
+    resistor_ohms: np.ndarray
+    exact: bool
+    accuracy: np.ndarray
+    sketch_size: int
+    epsilon_all: float
+    solves: int
+    seconds: float
+
+
+@dataclass(frozen=True)
+class KirchhoffIndex:
+    """The Kirchhoff index (sum of the effective resistances of all node pairs), in ohms.
+
+    Attributes
+    ----------
+    value : float
+        ``inf`` when the network has more than one island.
+    exact : bool
+    low, high : float
+        Confidence interval (equal to ``value`` when exact).
+    confidence : float
+        Level of the interval (for example 0.95).
+    std_error : float
+        Standard error of the estimate (0 when exact).
+    samples : int
+        Hutchinson samples (0 when exact).
+    solves : int
+    seconds : float
+    """
+
+    value: float
+    exact: bool
+    low: float
+    high: float
+    confidence: float
+    std_error: float
+    samples: int
+    solves: int
+    seconds: float
+
+
+def sketch_size(n: int, epsilon: float) -> int:
+    """Spielman–Srivastava sketch rows ``k = ceil(24 ln n / ε²)`` for error ``ε`` on all resistors."""
+    return int(math.ceil(24.0 * math.log(max(n, 2)) / epsilon ** 2))
+
+
+def _unknown_blocks(solver):
+    """Yield ``(unknowns, X)``: consecutive blocks of columns of ``A^{-1}``."""
+    from ohmgraph.engine.resistance import block_columns
+
+    n = solver.free.size
+    step = block_columns(n)
+    for begin in range(0, n, step):
+        cols = np.arange(begin, min(begin + step, n))
+        rhs = np.zeros((n, cols.size))
+        rhs[cols, np.arange(cols.size)] = 1.0
+        x = solver.solve_block(rhs)
+        yield cols, x, np.abs(rhs - solver.matrix @ x).sum(axis=0)
+
+
+def across_resistors(solver, exact=None, epsilon: float = 0.1, k: int | None = None,
+                     seed: int = 0, progress=None) -> ResistorResistances:
+    """Effective resistance across every resistor.
+
+    Parameters
+    ----------
+    solver : ResistanceSolver
+    exact : bool, optional
+        ``None`` chooses: exact when the unknowns are at most :data:`EXACT_UNKNOWN_LIMIT` or no
+        more than the sketch size ``k``.
+    epsilon : float
+        Target relative error for every resistor at once; sets ``k = ceil(24 ln n / ε²)``.
+    k : int, optional
+        Sketch size, overriding ``epsilon``.
+    seed : int
+        Seed of the random projection.
+    progress : callable, optional
+        Called with the number of right-hand sides solved after each block.
+    """
+    start = time.perf_counter()
+    before = solver.stats.solves
+    branches, a, b, resistor_ohms = solver.resistor_endpoints()
+    n_unknowns = solver.free.size
+    k = int(k) if k is not None else sketch_size(solver.graph.n_supernodes, epsilon)
+    if k < 1:
+        raise ValueError("the sketch size must be at least 1")
+    if exact is None:
+        exact = n_unknowns <= EXACT_UNKNOWN_LIMIT or n_unknowns <= k
+    live = (a != b) & (resistor_ohms > 0)
+    ohms = np.zeros(branches.size)
+    accuracy = np.zeros(branches.size)
+    if exact:
+        ohms[live], accuracy[live] = _exact_across(solver, a[live], b[live], progress)
+        k_used, epsilon_all = 0, 0.0
+    else:
+        ohms[live] = _sketch_across(solver, a[live], b[live], resistor_ohms[live], k, seed,
+                                    progress)
+        accuracy[live] = math.sqrt(2.0 / k)
+        k_used = k
+        epsilon_all = math.sqrt(24.0 * math.log(max(solver.graph.n_supernodes, 2)) / k)
+    return ResistorResistances(branches, ohms, resistor_ohms, bool(exact), accuracy, k_used,
+                               epsilon_all, solver.stats.solves - before,
+                               time.perf_counter() - start)
+
+
+def _exact_across(solver, a, b, progress):
+    """``G_aa + G_bb - 2 G_ab`` from the columns of ``A^{-1}`` (grounded entries are 0)."""
+    ua, ub = solver.unknown_of[a], solver.unknown_of[b]
+    n = solver.free.size
+    diagonal, residual_l1 = np.zeros(n + 1), np.zeros(n + 1)   # slot n: grounded, stays 0
+    cross = np.zeros(a.size)
+    for cols, x, r1 in _unknown_blocks(solver):
+        diagonal[cols] = x[cols, np.arange(cols.size)]
+        residual_l1[cols] = r1
+        hit = np.flatnonzero((ua >= cols[0]) & (ua <= cols[-1]) & (ub >= 0))
+        cross[hit] = x[ub[hit], ua[hit] - cols[0]]
+        if progress is not None:
+            progress(cols.size)
+    values = diagonal[ua] + diagonal[ub] - 2.0 * cross        # index -1 reads slot n
+    worst = solver.ground_distance[solver.island[a]]
+    bounds = (residual_l1[ua] + residual_l1[ub]) * np.sqrt(worst / values)
+    return values, np.maximum(bounds, np.finfo(np.float64).eps)
+
+
+def _sketch_across(solver, a, b, resistor_ohms, k, seed, progress):
+    """Spielman–Srivastava estimate ``Σ_i (z_i[a] - z_i[b])^2`` with ``z_i = G B^T W^{1/2} q_i``."""
+    from ohmgraph.engine.resistance import block_columns
+
+    rng = np.random.default_rng(seed)
+    m, n_super = a.size, solver.graph.n_supernodes
+    edges = np.arange(m)
+    incidence_t = sp.csr_matrix((np.concatenate([np.ones(m), -np.ones(m)]),
+                                 (np.concatenate([a, b]), np.concatenate([edges, edges]))),
+                                shape=(n_super, m))
+    scale = np.sqrt(1.0 / resistor_ohms) / math.sqrt(k)
+    ua, ub = solver.unknown_of[a], solver.unknown_of[b]
+    sums = np.zeros(m)
+    step = block_columns(max(solver.free.size, m))
+    for begin in range(0, k, step):
+        cols = min(step, k - begin)
+        signs = rng.integers(0, 2, size=(m, cols), dtype=np.int8) * 2.0 - 1.0
+        rhs = (incidence_t @ (signs * scale[:, None]))[solver.free]
+        z = np.vstack([solver.solve_block(rhs), np.zeros((1, cols))])   # last row: ground
+        sums += ((z[ua] - z[ub]) ** 2).sum(axis=1)
+        if progress is not None:
+            progress(cols)
+    return sums
+
+
+def kirchhoff_index(solver, exact=None, samples: int = 200, seed: int = 0,
+                    confidence: float = 0.95, progress=None) -> KirchhoffIndex:
+    """The Kirchhoff index of the network (all node pairs, ideal connections counted as 0 ohm).
+
+    Parameters
+    ----------
+    solver : ResistanceSolver
+    exact : bool, optional
+        ``None`` chooses exact when the unknowns are at most :data:`EXACT_UNKNOWN_LIMIT` or no
+        more than ``samples``.
+    samples : int
+        Hutchinson samples (right-hand sides) for the estimate.
+    seed : int
+    confidence : float
+        Level of the reported confidence interval (normal approximation).
+    """
+    start = time.perf_counter()
+    before = solver.stats.solves
+    n = solver.n_nodes
+    if solver.n_islands > 1:
+        return KirchhoffIndex(math.inf, True, math.inf, math.inf, confidence, 0.0, 0, 0,
+                              time.perf_counter() - start)
+    n_unknowns = solver.free.size
+    if exact is None:
+        exact = n_unknowns <= EXACT_UNKNOWN_LIMIT or n_unknowns <= samples
+    weight = solver.supernode_size[solver.free].astype(np.float64)
+    if exact:
+        diagonal = np.zeros(n_unknowns)
+        for cols, x, _ in _unknown_blocks(solver):
+            diagonal[cols] = x[cols, np.arange(cols.size)]
+            if progress is not None:
+                progress(cols.size)
+        green_w = solver.solve_block(weight)
+        value = float(n * weight @ diagonal - weight @ green_w)
+        return KirchhoffIndex(value, True, value, value, confidence, 0.0, 0,
+                              solver.stats.solves - before, time.perf_counter() - start)
+    if samples < 2:
+        raise ValueError("Hutchinson's estimate needs at least 2 samples")
+    values = _hutchinson_samples(solver, samples, seed, progress)
+    mean = float(values.mean())
+    std_error = float(values.std(ddof=1) / math.sqrt(samples))
+    half = float(norm.ppf(0.5 + confidence / 2.0)) * std_error
+    return KirchhoffIndex(mean, False, mean - half, mean + half, confidence, std_error, samples,
+                          solver.stats.solves - before, time.perf_counter() - start)
+
+
+def _hutchinson_samples(solver, samples, seed, progress):
+    """Samples ``n v^T G v`` with ``v = P W^{1/2} z``, ``z`` Rademacher over the supernodes."""
+    from ohmgraph.engine.resistance import block_columns
+
+    rng = np.random.default_rng(seed)
+    n = solver.n_nodes
+    root_w = np.sqrt(solver.supernode_size.astype(np.float64))
+    weight = solver.supernode_size.astype(np.float64)
+    out = np.empty(samples)
+    step = block_columns(solver.free.size)
+    for begin in range(0, samples, step):
+        cols = min(step, samples - begin)
+        z = rng.integers(0, 2, size=(root_w.size, cols), dtype=np.int8) * 2.0 - 1.0
+        v = root_w[:, None] * z
+        v -= weight[:, None] * (v.sum(axis=0) / n)
+        rhs = v[solver.free]
+        x = solver.solve_block(rhs)
+        out[begin:begin + cols] = n * np.einsum("ij,ij->j", rhs, x)
+        if progress is not None:
+            progress(cols)
+    return out
