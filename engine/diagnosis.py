@@ -124,6 +124,16 @@ class Diagnosis:
     timings: dict = field(default_factory=dict)
     notes: list = field(default_factory=list)
 
+    def tied_with_best(self, margin: float = KIND_MARGIN) -> int:
+        """How many ranked hypotheses fit within ``margin`` (in chi2) of the best one.
+
+        More than one means the readings, at their accuracy, do not single out the first.
+        """
+        if not self.hypotheses:
+            return 0
+        best = self.hypotheses[0].chi2
+        return sum(h.chi2 <= best + margin for h in self.hypotheses)
+
 
 @dataclass
 class _Evaluated:

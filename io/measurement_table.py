@@ -146,8 +146,8 @@ def accuracy_rules(specs) -> dict:
         except ValueError as error:
             raise InputError(f"--accuracy: {error}") from None
         if accuracy.kind in rules:
-            raise InputError(f"--accuracy: two accuracies given for "
-                             f"{'every kind' if accuracy.kind is None else accuracy.kind + ' readings'}")
+            target = "every kind" if accuracy.kind is None else f"{accuracy.kind} readings"
+            raise InputError(f"--accuracy: two accuracies given for {target}")
         rules[accuracy.kind] = accuracy
     return rules
 

@@ -26,7 +26,7 @@ def mesh(rows: int, cols: int, seed: int) -> Network:
     rng = np.random.default_rng(seed)
     graph = nx.relabel_nodes(nx.grid_2d_graph(rows, cols), lambda rc: f"{rc[0]}_{rc[1]}")
     edges = list(graph.edges)
-    frm = [u for u, _ in edges] + [f"0_0", f"{rows - 1}_{cols - 1}"]
+    frm = [u for u, _ in edges] + ["0_0", f"{rows - 1}_{cols - 1}"]
     to = [v for _, v in edges] + ["0", "0"]
     values = list(rng.uniform(1.0, 2.0, len(edges))) + [3.3, 3.3]
     kinds = ["R"] * len(edges) + ["V", "V"]

@@ -147,3 +147,28 @@ def test_not_well_posed_network_exits_1(tmp_path, capsys):
     readings = write(tmp_path, "m.csv", "kind,a,b,value,accuracy\nV,a,,1.0,1%\n")
     assert main(["compare", str(network), str(readings)]) == 1
     assert "not well-posed" in capsys.readouterr().err
+
+
+def test_result_store_round_trip_and_failures(tmp_path, monkeypatch):
+    import ohmgraph.io.measurement_store as store
+    from ohmgraph.io.errors import InputError
+
+    out = tmp_path / "r.h5"
+    store.write_results(out, "comparison", {"a": ["x", "yz"], "value": [1.5, 2.5]},
+                        units={"value": "V"}, attrs={"summary": {"failed": 1}, "notes": ["n"]})
+    columns, attrs, root = store.read_results(out, "comparison")
+    assert columns["a"].tolist() == ["x", "yz"] and columns["value"].tolist() == [1.5, 2.5]
+    assert attrs["summary.failed"] == 1 and root["result"] == "comparison"
+    with pytest.raises(InputError, match="no group '/diagnosis'"):
+        store.read_results(out, "diagnosis")
+    with pytest.raises(InputError, match="not a readable HDF5 file"):
+        store.read_results(write(tmp_path, "x.csv", "a,b\n"), "comparison")
+
+    def broken():
+        raise RuntimeError("disk full")
+
+    monkeypatch.setattr(store, "tool_version", broken)
+    failed = tmp_path / "failed.h5"
+    with pytest.raises(RuntimeError):
+        store.write_results(failed, "comparison", {"a": [1]})
+    assert not failed.exists() and not list(tmp_path.glob(".failed.h5*"))

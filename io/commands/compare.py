@@ -16,6 +16,7 @@ from ohmgraph.engine.measurements import ReadingModel, build_model, compare
 from ohmgraph.engine.solve import NetworkNotSolvable
 from ohmgraph.engine.solvers import DEFAULT_RTOL, SOLVERS, SolverFailed
 from ohmgraph.io.atomic import atomic_output, refuse_existing
+from ohmgraph.io.commands.solve import positive_float
 from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, InputError, SolverError, UserError
 from ohmgraph.io.jsonout import dumps
 from ohmgraph.io.measurement_store import write_results
@@ -39,7 +40,7 @@ def add_network_arguments(parser: argparse.ArgumentParser) -> None:
                         help="reference (0 V) node label (default 0)")
     parser.add_argument("--method", choices=["auto", *SOLVERS], default="auto",
                         help="linear solver (default: auto)")
-    parser.add_argument("--rtol", type=float, default=DEFAULT_RTOL,
+    parser.add_argument("--rtol", type=positive_float, default=DEFAULT_RTOL,
                         help=f"relative residual target (default {DEFAULT_RTOL:g})")
     parser.add_argument("--allow-floating", action="store_true",
                         help="pin one node of every island without a path to the reference")

@@ -101,6 +101,10 @@ def _format(net, result, failed: int, readings: int) -> str:
         if hypothesis.branches.size > 1:
             lines.append(" " * 22 + f"(the readings cannot tell these {hypothesis.branches.size} "
                                     "apart)")
+    tied = result.tied_with_best()
+    if tied > 1:
+        lines.append(f"caution: {tied} hypotheses fit within chi2 + 1 of the best; at this "
+                     "accuracy the readings do not single out the first")
     lines.append(f"'fits': every reading within its band once the fault is assumed. "
                  f"{result.candidates} resistor(s) screened, {result.evaluated} evaluated "
                  f"exactly; {result.solves['adjoint']} adjoint and "
@@ -130,6 +134,7 @@ def run(args) -> int:
              "readings_failed": failed, "readings_used": int(result.readings_used.size),
              "candidates": result.candidates, "evaluated_exactly": result.evaluated,
              "ranking_exact": result.exact, "short_ratio": result.short_ratio,
+             "tied_with_best": result.tied_with_best(),
              "solves": result.solves, "timings_s": {**model.timings, **result.timings},
              "notes": model.notes + result.notes}
     if args.output:

@@ -1,4 +1,4 @@
-"""``ohmgraph tolerance NET --observe NODE...``: spread of node voltages from resistor tolerances."""
+"""``ohmgraph tolerance NET --observe NODE...``: node-voltage spread from resistor tolerances."""
 
 from __future__ import annotations
 
@@ -84,8 +84,9 @@ def _format(net, labels, spread, model, top, carlo) -> str:
             if contribution == 0:
                 break
             branch = spread.resistors[position]
-            lines.append(f"  {net.branch_names[branch]:>12}: dV/dR {spread.sensitivity[row, position]:+.4g} "
-                         f"V/ohm, ±{abs(contribution):.4g} V at its tolerance")
+            slope = spread.sensitivity[row, position]
+            lines.append(f"  {net.branch_names[branch]:>12}: dV/dR {slope:+.4g} V/ohm, "
+                         f"±{abs(contribution):.4g} V at its tolerance")
     return "\n".join(lines)
 
 
