@@ -137,6 +137,13 @@ class Readings:
                    nan if measured is None else measured, nan if band is None else band)
 
 
+def node_unknowns(system: ReducedSystem, nodes) -> np.ndarray:
+    """Unknown index of each node's supernode in ``system`` (-1 where its potential is known)."""
+    unknown = np.full(system.contraction.n_supernodes, -1, np.int64)
+    unknown[system.free] = np.arange(system.free.size)
+    return unknown[system.contraction.supernode[np.asarray(nodes, np.int64)]]
+
+
 @dataclass
 class ReadingSystem:
     """The readings taken on one network (powered or passive) and their adjoint solutions.
@@ -171,16 +178,9 @@ class ReadingSystem:
     adjoint: np.ndarray | None = None
     adjoint_info: SolveInfo | None = None
 
-    @property
-    def unknown_of(self) -> np.ndarray:
-        """Unknown index of every supernode; -1 for supernodes with a known potential."""
-        unknown = np.full(self.system.contraction.n_supernodes, -1, np.int64)
-        unknown[self.system.free] = np.arange(self.system.free.size)
-        return unknown
-
     def node_unknown(self, nodes) -> np.ndarray:
         """Unknown index of each node's supernode (-1 where its potential is known)."""
-        return self.unknown_of[self.system.contraction.supernode[np.asarray(nodes, np.int64)]]
+        return node_unknowns(self.system, nodes)
 
     def solve_adjoint(self) -> np.ndarray:
         """Solve ``A lambda = w`` for every reading of this network (one block solve).
@@ -245,15 +245,14 @@ class ReadingModel:
         return np.where(self.readings.kind == "R", PASSIVE, POWERED)
 
 
-def _unit_weights(rs: ReadingSystem, columns: np.ndarray, a: np.ndarray, b: np.ndarray,
+def _unit_weights(system: ReducedSystem, columns: np.ndarray, a: np.ndarray, b: np.ndarray,
                   n_columns: int) -> sp.csc_matrix:
     """``e_u(a) - e_u(b)`` in the given columns, dropping unknowns with a known potential."""
-    ua, ub = rs.node_unknown(a), rs.node_unknown(b)
-    rows = np.concatenate([ua, ub])
+    rows = np.concatenate([node_unknowns(system, a), node_unknowns(system, b)])
     cols = np.concatenate([columns, columns])
     data = np.concatenate([np.ones(a.size), -np.ones(b.size)])
     keep = rows >= 0
-    n = rs.system.n_unknowns
+    n = system.n_unknowns
     return sp.csc_matrix((data[keep], (rows[keep], cols[keep])), shape=(n, n_columns))
 
 
@@ -307,10 +306,8 @@ def _powered_system(net: Network, readings: Readings, rows: np.ndarray,
          (np.concatenate(beta_rows or [np.empty(0, np.int64)]),
           np.concatenate(beta_cols or [np.empty(0, np.int64)]))),
         shape=(rows.size, net.n_branches))
-    rs = ReadingSystem(POWERED, system, solution.solver, rows, sp.csc_matrix((0, 0)), direct,
-                       solution.branch_voltage)
     voltage = np.flatnonzero(readings.kind[rows] == "V")
-    weights = _unit_weights(rs, voltage, readings.node_a[rows[voltage]],
+    weights = _unit_weights(system, voltage, readings.node_a[rows[voltage]],
                             readings.node_b[rows[voltage]], rows.size)
     # Current readings: w = sum_k beta_k g_k c_k over the resistors between supernodes. The
     # incidence matrix has one extra leading column collecting the known potentials.
@@ -319,13 +316,14 @@ def _powered_system(net: Network, readings: Readings, rows: np.ndarray,
     incidence = sp.csr_matrix(
         (np.concatenate([np.ones(count), -np.ones(count)]),
          (np.concatenate([np.arange(count)] * 2),
-          np.concatenate([rs.node_unknown(net.from_node[graph_branches]),
-                          rs.node_unknown(net.to_node[graph_branches])]) + 1)),
+          np.concatenate([node_unknowns(system, net.from_node[graph_branches]),
+                          node_unknowns(system, net.to_node[graph_branches])]) + 1)),
         shape=(count, system.n_unknowns + 1))
     scaled = direct[:, graph_branches].multiply(conductance[graph_branches]).tocsr()
     current_weights = (scaled @ incidence).T.tocsc()[1:]
-    rs.weights = sp.csc_matrix(weights + current_weights)
-    return rs
+    return ReadingSystem(POWERED, system, solution.solver, rows,
+                         sp.csc_matrix(weights + current_weights), direct,
+                         solution.branch_voltage)
 
 
 def _passive_system(net: Network, readings: Readings, rows: np.ndarray, method: str,
@@ -336,14 +334,13 @@ def _passive_system(net: Network, readings: Readings, rows: np.ndarray, method: 
         raise NetworkNotSolvable(report)
     system = assemble(passive, report.contraction, report.pinned_nodes)
     solver = make_solver(system.matrix, method, rtol)
-    rs = ReadingSystem(PASSIVE, system, solver, rows, sp.csc_matrix((0, 0)),
-                       sp.csr_matrix((rows.size, net.n_branches)), None)
     a, b = readings.node_a[rows], readings.node_b[rows]
-    rs.weights = _unit_weights(rs, np.arange(rows.size), a, b, rows.size)
+    rs = ReadingSystem(PASSIVE, system, solver, rows,
+                       _unit_weights(system, np.arange(rows.size), a, b, rows.size),
+                       sp.csr_matrix((rows.size, net.n_branches)), None)
     adjoint = rs.solve_adjoint()
     resistance = np.asarray(rs.weights.multiply(adjoint[:-1]).sum(axis=0)).ravel()
-    keep = passive.kind != CURRENT_SOURCE
-    graph = sp.coo_matrix((np.ones(int(keep.sum()), np.int8),
+    graph = sp.coo_matrix((np.ones(passive.n_branches, np.int8),
                            (passive.from_node, passive.to_node)),
                           shape=(net.n_nodes, net.n_nodes))
     _, component = connected_components(graph, directed=False)

@@ -56,6 +56,20 @@ def test_currents_of_sources_and_ideal_connections_follow_kcl():
     assert values == pytest.approx([-0.002, 0.002, 0.002, 0.002], rel=1e-12)
 
 
+def test_current_in_a_loop_of_sources_is_undetermined():
+    # Two equal sources in parallel: KVL holds around their loop but the split of the current
+    # between them is free (Chua, Desoer & Kuh, Linear and Nonlinear Circuits, 1987, ch. 9).
+    net = Network.from_arrays(["p", "p", "p"], ["0", "0", "0"], [2.0, 2.0, 4.0],
+                              ["V", "V", "R"], ["VA", "VB", "R"])
+    readings = Readings.from_labels(net, ["I", "I"], ["VA", "R"], ["", ""],
+                                    measured=[-0.25, 0.5], band=[1.0, 1e-9])
+    model = build_model(net, readings)
+    assert model.usable.tolist() == [False, True]
+    result = compare(model)
+    assert result.passed.tolist() == [False, True]          # 2 V / 4 ohm = 0.5 A (Ohm's law)
+    assert result.summary()["unusable"] == 1
+
+
 def test_current_source_reading_is_its_value():
     net = Network.from_arrays(["0", "x"], ["x", "0"], [0.25, 8.0], ["I", "R"], ["J", "R"])
     readings = Readings.from_labels(net, ["I", "V"], ["J", "x"], ["", ""])
