@@ -1,14 +1,18 @@
 """HDF5 output of comparisons, diagnoses and tolerance analyses, written atomically.
 
-One file holds one result as a group (``/comparison``, ``/diagnosis`` or ``/tolerance``) of
-equal-length column datasets (one row per reading, hypothesis member or observed quantity),
-extra matrices where a result has them (``/tolerance/sensitivity``), and attributes:
+A result is one group (``/comparison``, ``/diagnosis`` or ``/tolerance``) of equal-length
+column datasets (one row per reading, hypothesis member or observed quantity), extra matrices
+where a result has them (``/tolerance/sensitivity``), and attributes:
 
-* on the group: the result's numbers (summary counts, chi-square values, timings in seconds,
-  solver evidence) with dotted names for nested values;
-* on every column: ``units`` where it has one;
-* on the root: ``tool_version``, ``created`` (ISO 8601 UTC), ``result`` (the group name) and, for
-  every input file, its name and SHA-256 (``network_file``, ``network_sha256``, ...).
+* on the group: provenance — ``tool_version``, ``created`` (ISO 8601 UTC) and, for every input
+  file, its name and SHA-256 (``network_file``, ``network_sha256``, ...) — and the result's
+  numbers (summary counts, chi-square values, timings in seconds) with dotted names for nested
+  values;
+* on every column: ``units`` where it has one.
+
+The group goes either into a new file (whose root also carries the provenance and ``result``,
+the group name) or, with ``append``, into an existing HDF5 file such as the solution store
+written by ``ohmgraph solve``.
 
 Strings are fixed-length UTF-8 (readable by any HDF5 tool). The file goes through
 :func:`ohmgraph.io.atomic.atomic_output`: it appears complete or not at all.
@@ -16,6 +20,7 @@ Strings are fixed-length UTF-8 (readable by any HDF5 tool). The file goes throug
 
 from __future__ import annotations
 
+import shutil
 from datetime import datetime, timezone
 from pathlib import Path
 
@@ -54,10 +59,25 @@ def _set_attrs(target, values: dict) -> None:
         target.attrs[key] = value
 
 
+def refuse_existing_group(path, name: str, force: bool) -> None:
+    """For ``append``: the file must be readable HDF5; an existing group needs ``force``."""
+    try:
+        with h5py.File(path, "r") as h5:
+            present = name in h5
+    except FileNotFoundError:
+        raise OutputRefused(f"{path}: does not exist (--append adds to an existing HDF5 "
+                            "file)") from None
+    except OSError as error:
+        raise OutputRefused(f"{path}: not a readable HDF5 file ({error})") from None
+    if present and not force:
+        raise OutputRefused(f"{path}: already holds '/{name}' (use --force to replace it)")
+
+
 def write_results(path, name: str, columns: dict, *, units: dict | None = None,
                   attrs: dict | None = None, matrices: dict | None = None,
-                  sources: dict | None = None, force: bool = False) -> None:
-    """Write one result group to a new HDF5 file, atomically.
+                  sources: dict | None = None, force: bool = False,
+                  append: bool = False) -> None:
+    """Write one result group to an HDF5 file, atomically.
 
     Parameters
     ----------
@@ -73,25 +93,37 @@ def write_results(path, name: str, columns: dict, *, units: dict | None = None,
     matrices : dict of str to ndarray, optional
         Further datasets of any shape.
     sources : dict of str to path, optional
-        Input files recorded on the root by name and SHA-256 (``{"network": "net.csv"}``).
+        Input files recorded by name and SHA-256 (``{"network": "net.csv"}``).
     force : bool
-        Overwrite an existing file.
+        Overwrite an existing file (or, with ``append``, an existing group of that name).
+    append : bool
+        Add the group to an existing HDF5 file (such as a stored solution) instead of creating
+        a new file: the file is copied, extended and renamed over the original, so it is never
+        seen half-written.
 
     Raises
     ------
     OutputRefused
-        If the file exists without ``force`` or cannot be written.
+        If the file exists without ``force`` (or, with ``append``, is missing, is not HDF5 or
+        already holds the group without ``force``), or cannot be written.
     """
     units = units or {}
+    if append:
+        refuse_existing_group(path, name, force)
+    provenance = {"tool_version": tool_version(),
+                  "created": datetime.now(timezone.utc).isoformat(timespec="seconds")}
+    for role, source in (sources or {}).items():
+        provenance[f"{role}_file"] = Path(source).name
+        provenance[f"{role}_sha256"] = file_sha256(source)
     try:
-        with atomic_output(path, force) as temporary:
-            with h5py.File(temporary, "w") as h5:
-                h5.attrs["tool_version"] = tool_version()
-                h5.attrs["created"] = datetime.now(timezone.utc).isoformat(timespec="seconds")
-                h5.attrs["result"] = name
-                for role, source in (sources or {}).items():
-                    h5.attrs[f"{role}_file"] = Path(source).name
-                    h5.attrs[f"{role}_sha256"] = file_sha256(source)
+        with atomic_output(path, force or append) as temporary:
+            if append:
+                shutil.copyfile(path, temporary)
+            with h5py.File(temporary, "a" if append else "w") as h5:
+                if not append:
+                    h5.attrs.update({**provenance, "result": name})
+                if name in h5:
+                    del h5[name]
                 group = h5.create_group(name)
                 for column, values in {**columns, **(matrices or {})}.items():
                     data = _plain_array(values)
@@ -102,7 +134,7 @@ def write_results(path, name: str, columns: dict, *, units: dict | None = None,
                     dataset = group.create_dataset(column, data=data, **options)
                     if column in units:
                         dataset.attrs["units"] = units[column]
-                _set_attrs(group, attrs or {})
+                _set_attrs(group, {**provenance, **(attrs or {})})
     except OSError as error:
         raise OutputRefused(f"{path}: cannot be written ({error})") from None
 
@@ -129,4 +161,4 @@ def read_results(path, name: str) -> tuple[dict, dict, dict]:
         return datasets, dict(h5[name].attrs), dict(h5.attrs)
 
 
-__all__ = ["write_results", "read_results"]
+__all__ = ["write_results", "read_results", "refuse_existing_group"]

@@ -172,3 +172,22 @@ def test_result_store_round_trip_and_failures(tmp_path, monkeypatch):
     with pytest.raises(RuntimeError):
         store.write_results(failed, "comparison", {"a": [1]})
     assert not failed.exists() and not list(tmp_path.glob(".failed.h5*"))
+
+
+def test_append_result_to_solution_file(tmp_path, divider_file, capsys):
+    from ohmgraph.io.store import read_solution
+
+    solution = tmp_path / "divider.h5"
+    assert main(["solve", str(divider_file), "-o", str(solution)]) == 0
+    readings = write(tmp_path, "m.csv", f"kind,a,b,value,accuracy\nV,out,,{VOUT},1%\n")
+    args = ["compare", str(divider_file), str(readings), "-o", str(solution)]
+    assert main(args) == 3                                   # exists, no --append
+    assert main(args + ["--append"]) == 0
+    columns, attrs, _ = read_results(solution, "comparison")
+    assert columns["status"].tolist() == ["pass"] and attrs["network_file"] == "divider.csv"
+    assert read_solution(solution).node_voltage.size == 3  # the solution is still there
+    assert main(args + ["--append"]) == 3                    # the group exists, no --force
+    assert "already holds '/comparison'" in capsys.readouterr().err
+    assert main(args + ["--append", "--force"]) == 0
+    assert main(["compare", str(divider_file), str(readings), "--append", "-o",
+                 str(tmp_path / "absent.h5")]) == 3

@@ -19,11 +19,12 @@ from ohmgraph.io.atomic import atomic_output, refuse_existing
 from ohmgraph.io.commands.solve import positive_float
 from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, InputError, SolverError, UserError
 from ohmgraph.io.jsonout import dumps
-from ohmgraph.io.measurement_store import write_results
+from ohmgraph.io.measurement_store import refuse_existing_group, write_results
 from ohmgraph.io.measurement_table import UNIT_NAME, accuracy_rules, read_measurements
 from ohmgraph.io.reader import read_network
 
 OUTPUT_SUFFIXES = (".csv", ".h5", ".hdf5")
+HDF5_SUFFIXES = (".h5", ".hdf5")
 
 
 class NotWellPosed(UserError):
@@ -49,17 +50,29 @@ def add_network_arguments(parser: argparse.ArgumentParser) -> None:
 def add_output_arguments(parser: argparse.ArgumentParser, suffixes=OUTPUT_SUFFIXES) -> None:
     parser.add_argument("-o", "--output", metavar="OUT",
                         help=f"also write the results to a new file ({', '.join(suffixes)})")
-    parser.add_argument("--force", action="store_true", help="overwrite OUT if it exists")
+    parser.add_argument("--append", action="store_true",
+                        help="add the result group to an existing HDF5 file OUT (for example "
+                             "the solution file of 'ohmgraph solve') instead of creating OUT")
+    parser.add_argument("--force", action="store_true",
+                        help="overwrite OUT if it exists (with --append: replace the group)")
     parser.add_argument("--json", action="store_true", help="print the results as JSON")
 
 
 def check_output(args, suffixes=OUTPUT_SUFFIXES) -> None:
     """Refuse a bad output name or an existing file before any work is done."""
     if args.output is None:
+        if args.append:
+            raise InputError("--append needs -o OUT.h5")
         return
-    if Path(args.output).suffix.lower() not in suffixes:
+    suffix = Path(args.output).suffix.lower()
+    if suffix not in suffixes:
         raise InputError(f"-o {args.output}: the name must end in {', '.join(suffixes)}")
-    refuse_existing(args.output, args.force)
+    if args.append:
+        if suffix not in HDF5_SUFFIXES:
+            raise InputError(f"-o {args.output}: --append needs an HDF5 file (.h5, .hdf5)")
+        refuse_existing_group(args.output, args.command_group, args.force)
+    else:
+        refuse_existing(args.output, args.force)
 
 
 def model_readings(args, net, readings, solution=None) -> ReadingModel:
@@ -76,15 +89,15 @@ def model_readings(args, net, readings, solution=None) -> ReadingModel:
         raise SolverError(f"{args.network}: {error}") from None
 
 
-def write_table(args, name: str, columns: dict, *, units=None, attrs=None, matrices=None,
+def write_table(args, columns: dict, *, units=None, attrs=None, matrices=None,
                 sources=None) -> None:
-    """Write ``columns`` to ``args.output`` as CSV (pandas) or as an HDF5 result group."""
+    """Write ``columns`` to ``args.output`` as CSV (pandas) or as the command's HDF5 group."""
     if Path(args.output).suffix.lower() == ".csv":
         with atomic_output(args.output, args.force) as temporary:
             pd.DataFrame(columns).to_csv(temporary, index=False, float_format="%.17g")
         return
-    write_results(args.output, name, columns, units=units, attrs=attrs, matrices=matrices,
-                  sources=sources, force=args.force)
+    write_results(args.output, args.command_group, columns, units=units, attrs=attrs, matrices=matrices,
+                  sources=sources, force=args.force, append=args.append)
 
 
 def register(subparsers) -> None:
@@ -104,7 +117,7 @@ def register(subparsers) -> None:
     parser.add_argument("--failures-only", action="store_true",
                         help="list only the readings that fail")
     add_output_arguments(parser)
-    parser.set_defaults(run=run)
+    parser.set_defaults(run=run, command_group="comparison")
 
 
 def reading_columns(table, model: ReadingModel, result) -> dict:
@@ -157,7 +170,7 @@ def run(args) -> int:
     if args.output:
         units = {"measured": "V|ohm|A by kind", "model": "V|ohm|A by kind",
                  "deviation": "V|ohm|A by kind", "band": "V|ohm|A by kind"}
-        write_table(args, "comparison", columns, units=units, attrs=summary,
+        write_table(args, columns, units=units, attrs=summary,
                     sources={"network": args.network, "measurements": args.measurements})
     if args.json:
         rows = [dict(zip(columns, values)) for values in zip(*columns.values())]

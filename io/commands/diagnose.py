@@ -54,7 +54,7 @@ def register(subparsers) -> None:
     parser.add_argument("--short-ratio", type=_ratio, default=SHORT_RATIO, metavar="F",
                         help=f"a short is the resistance times F (default {SHORT_RATIO:g})")
     add_output_arguments(parser)
-    parser.set_defaults(run=run)
+    parser.set_defaults(run=run, command_group="diagnosis")
 
 
 def hypothesis_columns(net, result) -> dict:
@@ -138,7 +138,7 @@ def run(args) -> int:
              "solves": result.solves, "timings_s": {**model.timings, **result.timings},
              "notes": model.notes + result.notes}
     if args.output:
-        write_table(args, "diagnosis", columns,
+        write_table(args, columns,
                     units={"nominal_ohms": "ohm", "estimated_ohms": "ohm"}, attrs=attrs,
                     sources={"network": args.network, "measurements": args.measurements})
     if args.json:

@@ -54,7 +54,7 @@ def register(subparsers) -> None:
                         help="Monte Carlo samples (values uniform within tolerance; default 0)")
     parser.add_argument("--seed", type=int, default=0, help="Monte Carlo seed (default 0)")
     add_output_arguments(parser, (".h5", ".hdf5"))
-    parser.set_defaults(run=run)
+    parser.set_defaults(run=run, command_group="tolerance")
 
 
 def _observations(net, labels) -> Readings:
@@ -115,7 +115,7 @@ def run(args) -> int:
     attrs = {"samples": args.samples, "seed": args.seed, "timings_s": model.timings,
              "distribution": "uniform within tolerance"}
     if args.output:
-        write_table(args, "tolerance", columns, attrs=attrs,
+        write_table(args, columns, attrs=attrs,
                     units={key: "V" for key in columns if key.endswith("_V")}
                     | {"sensitivity": "V/ohm"},
                     matrices={"sensitivity": spread.sensitivity,
