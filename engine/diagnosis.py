@@ -262,8 +262,10 @@ class _Evaluator:
         fit = _Fit(self.deviation, self.masks, scaled)
         z = {}
         for name in self.masks:
-            z[name] = grounded_self_resistance(self.model.systems[name], net, branches)
-        self.self_solves += branches.size * len(self.masks)
+            rs = self.model.systems[name]
+            z[name] = grounded_self_resistance(rs, net, branches)
+            self.self_solves += int(np.count_nonzero(
+                rs.node_unknown(net.from_node[branches]) != rs.node_unknown(net.to_node[branches])))
         g = 1.0 / net.value[branches]
         chi2_value, ratio = _fit_value(fit, g, z, self.short_ratio)
         chi2_short = fit.cost_at(g * (1.0 / self.short_ratio - 1.0), z)
@@ -430,8 +432,8 @@ def diagnose(model: ReadingModel, *, top: int = 10, short_ratio: float = SHORT_R
             break
         target = min(2 * done, candidates.size, max_exact)
     timings["evaluate"] = time.perf_counter() - start
-    solves = {name: rs.rows.size for name, rs in model.systems.items()}
-    solves = {"adjoint": int(sum(solves.values())), "self_resistance": evaluator.self_solves}
+    solves = {"adjoint": int(sum(rs.rows.size for rs in model.systems.values())),
+              "self_resistance": evaluator.self_solves}
     return Diagnosis(hypotheses, baseline, used, int(candidates.size), done, exact, short_ratio,
                      solves, timings, notes)
 
