@@ -10,9 +10,10 @@ from __future__ import annotations
 
 import argparse
 import importlib
+import os
 import sys
 
-from ohmgraph.io.errors import EXIT_BAD_INPUT, UserError
+from ohmgraph.io.errors import EXIT_BAD_INPUT, EXIT_OK, UserError
 
 COMMANDS = ["check", "solve", "show", "generate", "demo", "compare", "diagnose", "tolerance",
             "resistance"]
@@ -39,6 +40,10 @@ def main(argv=None) -> int:
     except KeyboardInterrupt:
         print("ohmgraph: interrupted", file=sys.stderr)
         return EXIT_BAD_INPUT
+    except BrokenPipeError:
+        # The reader of our output (``| head``) went away: stop quietly, as other tools do.
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return EXIT_OK
 
 
 if __name__ == "__main__":
