@@ -43,19 +43,29 @@ from ohmgraph.engine.contraction import contract
 from ohmgraph.engine.formulation import grounded_matrix, supernode_graph
 from ohmgraph.engine.kron import kron_reduction
 from ohmgraph.engine.network import RESISTOR, Network
+from ohmgraph.engine.reach import FactorPairs
 from ohmgraph.engine.sketch import across_resistors, kirchhoff_index
-from ohmgraph.engine.solvers import (DEFAULT_RTOL, DIRECT_FALLBACK_LIMIT, DirectSolver,
-                                     SolverFailed, make_solver)
+from ohmgraph.engine.solvers import (AUTO_DIRECT_LIMIT, DEFAULT_RTOL, DIRECT_FALLBACK_LIMIT,
+                                     SOLVERS, DirectSolver, SolverFailed, make_solver)
 
-# Unknowns for which "auto" picks the direct solver: resistance queries solve many right-hand
-# sides per network, so one factorisation pays off far beyond the single-solve threshold.
+# Unknowns up to which "auto" factorises (direct) once a query needs more than FEW_SOLVES
+# right-hand sides: one factorisation then pays off far beyond the single-solve threshold
+# (solvers.AUTO_DIRECT_LIMIT), which still decides for a query of FEW_SOLVES or fewer.
 RESISTANCE_DIRECT_LIMIT = DIRECT_FALLBACK_LIMIT
+FEW_SOLVES = 2
 # Floats held by one block of right-hand sides (columns x unknowns); 2**24 is 128 MiB.
 BLOCK_FLOATS = 2 ** 24
 MAX_BLOCK_COLUMNS = 64
 # Terminal reduction in pairs(): used when there are at most this many distinct terminals and
 # fewer terminals than distinct pairs (one solve per terminal instead of one per pair).
 KRON_TERMINAL_LIMIT = 2000
+# A sparse forward solve from the factor (engine/reach.py) costs about this fraction of a full
+# solve (measured 0.3 on a 10^6-node lattice); terminal reduction must beat that.
+REACH_COST = 0.3
+# Pairs per call of the sparse-forward-solve kernel (progress is reported between calls).
+REACH_BATCH = 256
+# Largest relative difference tolerated between a factor-reach value and a full solve at set-up.
+REACH_CHECK_LIMIT = 1e-9
 EPSILON = float(np.finfo(np.float64).eps)
 
 
@@ -71,10 +81,11 @@ class PairResistances:
     accuracy : ndarray of float64
         Relative error bound of each value (see the module notes); 0 where the value is exact.
     method : str
-        ``"pair solves"`` (one right-hand side per distinct pair), ``"terminal reduction"``
-        (one per distinct terminal) or ``"trivial"`` (nothing to solve).
+        ``"pair solves"`` (one right-hand side per distinct pair), ``"factor reach"`` (one
+        sparse forward solve per distinct pair, :mod:`ohmgraph.engine.reach`), ``"terminal
+        reduction"`` (one solve per distinct terminal) or ``"trivial"`` (nothing to solve).
     solves : int
-        Right-hand sides solved.
+        Right-hand sides solved (full or sparse forward solves).
     seconds : float
     """
 
@@ -100,7 +111,7 @@ class SolverStats:
 
 
 def block_columns(n_unknowns: int) -> int:
-    """Right-hand sides per block: at most :data:`MAX_BLOCK_COLUMNS`, within :data:`BLOCK_FLOATS`."""
+    """Right-hand sides per block (at most :data:`MAX_BLOCK_COLUMNS` and :data:`BLOCK_FLOATS`)."""
     return int(max(1, min(MAX_BLOCK_COLUMNS, BLOCK_FLOATS // max(n_unknowns, 1))))
 
 
@@ -113,7 +124,11 @@ class ResistanceSolver:
         Any network; its sources are zeroed (:meth:`Network.passive`). Resistances must be
         finite and non-negative (as :func:`ohmgraph.engine.check` requires).
     method : {"auto", "direct", "amg-cg"}
-        ``auto`` factorises (``direct``) up to :data:`RESISTANCE_DIRECT_LIMIT` unknowns.
+        ``auto`` sets the solver up at the first query, knowing its size: ``direct`` up to
+        :data:`~ohmgraph.engine.solvers.AUTO_DIRECT_LIMIT` unknowns, and up to
+        :data:`RESISTANCE_DIRECT_LIMIT` for queries of more than :data:`FEW_SOLVES` right-hand
+        sides; ``amg-cg`` otherwise. A later larger query on an ``auto`` multigrid solver
+        switches it to ``direct`` under the same rule.
     rtol : float
         Relative residual target of iterative solves.
 
@@ -127,7 +142,8 @@ class ResistanceSolver:
         start = time.perf_counter()
         passive = net.passive()
         resistors = passive.kind == RESISTOR
-        if not np.all(np.isfinite(passive.value[resistors])) or np.any(passive.value[resistors] < 0):
+        ohms = passive.value[resistors]
+        if not np.all(np.isfinite(ohms)) or np.any(ohms < 0):
             raise ValueError("resistances must be finite and non-negative")
         self.network = net
         self.contraction = contract(passive)
@@ -148,11 +164,14 @@ class ResistanceSolver:
         self.matrix = grounded_matrix(self.graph, free, unknown_of)
         self.ground_distance = self._ground_distance(conductance)
         self.rtol = float(rtol)
-        if method == "auto":
-            method = "direct" if free.size <= RESISTANCE_DIRECT_LIMIT else "amg-cg"
-        self.solver = make_solver(self.matrix, method, rtol)
-        self.stats = SolverStats(self.solver.method, int(free.size),
-                                 time.perf_counter() - start)
+        if method != "auto" and method not in SOLVERS:
+            raise ValueError(f"unknown method {method!r} (expected auto, {', '.join(SOLVERS)})")
+        self.method = method
+        self.solver = None                 # set up by prepare() at the first query
+        self.stats = SolverStats("not set up", int(free.size), time.perf_counter() - start)
+        self._factor_pairs = None          # built on first use (see factor_pairs)
+        self._factor_checked = False
+        self._factor_residual = 0.0
 
     # ------------------------------------------------------------------ set-up helpers
     def _grounds(self, reference: int) -> np.ndarray:
@@ -182,6 +201,26 @@ class ResistanceSolver:
     def n_nodes(self) -> int:
         return self.network.n_nodes
 
+    def prepare(self, solves: int) -> None:
+        """Set up (or, for ``auto``, upgrade) the shared solver for a query of ``solves``
+        right-hand sides (see the ``method`` parameter)."""
+        n = self.free.size
+        wanted = self.method
+        if wanted == "auto":
+            factorise = n <= AUTO_DIRECT_LIMIT or (solves > FEW_SOLVES
+                                                  and n <= RESISTANCE_DIRECT_LIMIT)
+            wanted = "direct" if factorise else "amg-cg"
+            if self.solver is not None and self.solver.method == "direct":
+                wanted = "direct"
+        if self.solver is not None and self.solver.method == wanted:
+            return
+        start = time.perf_counter()
+        self.solver = make_solver(self.matrix, wanted, self.rtol)
+        if self.stats.method != "not set up":
+            self.stats.notes.append(f"switched to {wanted} for a query of {solves} solves")
+        self.stats.method = wanted
+        self.stats.setup_seconds += time.perf_counter() - start
+
     def solve_block(self, rhs: np.ndarray) -> np.ndarray:
         """Solve ``A X = rhs`` (columns over the unknowns) with the shared solver.
 
@@ -193,6 +232,9 @@ class ResistanceSolver:
         SolverFailed
             When no solver reaches the target.
         """
+        columns = 1 if rhs.ndim == 1 else rhs.shape[1]
+        if self.solver is None:
+            self.prepare(columns)
         x, info = self.solver.solve(rhs)
         if not info.converged and self.solver.method != "direct":
             if self.matrix.shape[0] > DIRECT_FALLBACK_LIMIT:
@@ -207,7 +249,6 @@ class ResistanceSolver:
         if not info.converged:
             raise SolverFailed(f"{info.method} solve ended at relative residual "
                                f"{info.relative_residual:.3g} (rtol {self.rtol:g})")
-        columns = 1 if rhs.ndim == 1 else rhs.shape[1]
         self.stats.solves += columns
         self.stats.solve_seconds += info.solve_seconds
         self.stats.max_iterations = max(self.stats.max_iterations, info.iterations)
@@ -248,9 +289,11 @@ class ResistanceSolver:
         """Effective resistances between node indices ``a_idx[k]`` and ``b_idx[k]``.
 
         Repeated and reversed pairs are solved once. When the distinct terminals are few
-        (at most :data:`KRON_TERMINAL_LIMIT`, and fewer than the distinct pairs), the network is
-        reduced onto them once (:meth:`terminal_green`) and every pairwise value is read from the
-        reduced matrix; otherwise each distinct pair is one right-hand side, solved in blocks.
+        (at most :data:`KRON_TERMINAL_LIMIT`, and fewer than the distinct pairs times the
+        relative cost of a pair), the network is reduced onto them once (:meth:`terminal_green`)
+        and every pairwise value is read from the reduced matrix. Otherwise each distinct pair
+        costs one sparse forward solve from the factor (:meth:`factor_pairs`, when the solver is
+        direct and there is more than one pair) or one full right-hand side, solved in blocks.
 
         Parameters
         ----------
@@ -276,9 +319,15 @@ class ResistanceSolver:
         keys, inverse = np.unique(np.stack([low, high]), axis=1, return_inverse=True)
         terminals = np.unique(keys)
         before = self.stats.solves
-        if terminals.size <= KRON_TERMINAL_LIMIT and terminals.size < keys.shape[1]:
+        self.prepare(min(keys.shape[1], terminals.size))
+        reach = self.factor_pairs() if keys.shape[1] > 1 else None
+        pair_cost = REACH_COST if reach is not None else 1.0
+        if terminals.size <= KRON_TERMINAL_LIMIT and terminals.size < pair_cost * keys.shape[1]:
             values, bounds = self._pairs_by_reduction(keys, terminals, progress)
             method = "terminal reduction"
+        elif reach is not None:
+            values, bounds = self._pairs_by_reach(reach, keys, progress)
+            method = "factor reach"
         else:
             values, bounds = self._pairs_by_solves(keys, progress)
             method = "pair solves"
@@ -304,6 +353,56 @@ class ResistanceSolver:
             if progress is not None:
                 progress(cols.stop - cols.start)
         return values, bounds
+
+    def factor_pairs(self):
+        """The sparse-forward-solve shortcut (:class:`~ohmgraph.engine.reach.FactorPairs`), or None.
+
+        Available when the shared solver is a direct factorisation in LDLᵀ form. On first use it
+        is checked against a full solve of one pair, and the factorisation's relative residual on
+        that solve (``||r||_1 / ||d||_1``) is kept to estimate the accuracy of its values.
+        """
+        if self.solver is None or self.solver.method != "direct" or self.free.size < 2:
+            return None
+        if self._factor_checked:
+            return self._factor_pairs
+        self._factor_checked = True
+        try:
+            reach = FactorPairs(self.solver.factors)
+        except ValueError as error:
+            self.stats.notes.append(f"pair values by full solves: {error}")
+            return None
+        into, out = np.array([0]), np.array([self.free.size - 1])
+        rhs = np.zeros((self.free.size, 1))
+        rhs[into, 0], rhs[out, 0] = 1.0, -1.0
+        x = self.solve_block(rhs)
+        full = float(rhs[:, 0] @ x[:, 0])
+        shortcut = float(reach.energies(into, out)[0])
+        if abs(shortcut - full) > REACH_CHECK_LIMIT * abs(full):
+            self.stats.notes.append(f"factor reach disagreed with a full solve ({shortcut!r} vs "
+                                    f"{full!r}); pair values by full solves")
+            return None
+        self._factor_residual = float(np.abs(rhs - self.matrix @ x).sum() / 2.0)
+        self._factor_pairs = reach
+        return reach
+
+    def _pairs_by_reach(self, reach, keys, progress) -> tuple[np.ndarray, np.ndarray]:
+        """Each distinct pair by one sparse forward solve from the factor (engine/reach.py).
+
+        Accuracy is estimated, not bounded: the first-order bound ``||r||_1 sqrt(D / R)`` with the
+        factorisation's relative residual measured on the check pair standing in for ``||r||_1``.
+        """
+        count = keys.shape[1]
+        values = np.empty(count)
+        into, out = self.unknown_of[keys[0]], self.unknown_of[keys[1]]
+        for begin in range(0, count, REACH_BATCH):
+            part = slice(begin, min(begin + REACH_BATCH, count))
+            values[part] = reach.energies(into[part], out[part])
+            self.stats.solves += part.stop - part.start
+            if progress is not None:
+                progress(part.stop - part.start)
+        worst = self.ground_distance[self.island[keys[0]]]
+        bounds = 2.0 * self._factor_residual * np.sqrt(worst / values)
+        return values, np.maximum(bounds, EPSILON)
 
     def terminal_green(self, terminals: np.ndarray, progress=None):
         """The grounded Green's function among ``terminals`` (supernode indices).
@@ -384,5 +483,5 @@ class ResistanceSolver:
         supers = self.supernode[np.asarray(nodes, np.int64).reshape(-1)]
         _, first = np.unique(supers, return_index=True)
         supers = supers[np.sort(first)]
-        return supers, kron_reduction(self.graph.laplacian(), supers, self.stats.method,
+        return supers, kron_reduction(self.graph.laplacian(), supers, self.method,
                                       self.rtol)

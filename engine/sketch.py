@@ -107,7 +107,7 @@ class KirchhoffIndex:
 
 
 def sketch_size(n: int, epsilon: float) -> int:
-    """Spielman–Srivastava sketch rows ``k = ceil(24 ln n / ε²)`` for error ``ε`` on all resistors."""
+    """Sketch size ``k = ceil(24 ln n / ε²)`` for relative error ``ε`` on all resistors at once."""
     return int(math.ceil(24.0 * math.log(max(n, 2)) / epsilon ** 2))
 
 
@@ -153,6 +153,7 @@ def across_resistors(solver, exact=None, epsilon: float = 0.1, k: int | None = N
         raise ValueError("the sketch size must be at least 1")
     if exact is None:
         exact = n_unknowns <= EXACT_UNKNOWN_LIMIT or n_unknowns <= k
+    solver.prepare(n_unknowns if exact else k)
     live = (a != b) & (resistor_ohms > 0)
     ohms = np.zeros(branches.size)
     accuracy = np.zeros(branches.size)
@@ -239,6 +240,7 @@ def kirchhoff_index(solver, exact=None, samples: int = 200, seed: int = 0,
     n_unknowns = solver.free.size
     if exact is None:
         exact = n_unknowns <= EXACT_UNKNOWN_LIMIT or n_unknowns <= samples
+    solver.prepare(n_unknowns + 1 if exact else samples)
     weight = solver.supernode_size[solver.free].astype(np.float64)
     if exact:
         diagonal = np.zeros(n_unknowns)

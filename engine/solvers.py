@@ -114,6 +114,12 @@ class DirectSolver(SPDSolver):
         self._lu = spla.splu(self.matrix.tocsc(), permc_spec="MMD_AT_PLUS_A",
                              diag_pivot_thresh=0.0, options={"SymmetricMode": True})
 
+    @property
+    def factors(self):
+        """The SuperLU factorisation (``L``, ``U``, ``perm_r``, ``perm_c``), or None when empty;
+        for callers that exploit the factors' sparsity (:mod:`ohmgraph.engine.reach`)."""
+        return self._lu
+
     def _solve(self, b):
         if b.ndim == 2:
             # SuperLU solves columns one at a time 2-5x faster than as one block (measured on

@@ -1,4 +1,4 @@
-"""``ohmgraph resistance NET``: effective resistance between nodes, across resistors, Kirchhoff index.
+"""``ohmgraph resistance NET``: resistance between nodes, across resistors, Kirchhoff index.
 
 Every value is the resistance a two-point measurement reads with every source zeroed (voltage
 sources shorted, current sources removed), with its accuracy stated beside it.
