@@ -72,7 +72,8 @@ def register(subparsers) -> None:
     parser.add_argument("--ground", default="0", metavar="LABEL",
                         help="reference node label (default 0)")
     parser.add_argument("--method", choices=["auto", *SOLVERS], default="auto",
-                        help="linear solver (default auto: direct up to 2 million unknowns)")
+                        help="linear solver (default auto: chosen for the network and the "
+                             "number of solves)")
     parser.add_argument("--rtol", type=positive_float, default=DEFAULT_RTOL,
                         help=f"relative residual target of iterative solves "
                              f"(default {DEFAULT_RTOL:g})")
@@ -99,6 +100,9 @@ def register(subparsers) -> None:
 def run(args) -> int:
     """Run ``resistance``; return the exit code (see :mod:`ohmgraph.io.errors`)."""
     if args.output is not None:
+        if args.between or args.kirchhoff:
+            raise InputError("-o writes a table: use it with --pairs, --to-reference or "
+                             "--across-resistors")
         check_table_path(args.output)
         refuse_existing(args.output, args.force)
     net = read_network(args.network, ground=args.ground)
