@@ -44,7 +44,7 @@ from ohmgraph.engine.formulation import grounded_matrix, supernode_graph
 from ohmgraph.engine.kron import kron_reduction
 from ohmgraph.engine.network import RESISTOR, Network
 from ohmgraph.engine.reach import FactorPairs
-from ohmgraph.engine.sketch import across_resistors, kirchhoff_index
+from ohmgraph.engine.sketch import across_resistors, block_columns, kirchhoff_index
 from ohmgraph.engine.solvers import (AUTO_DIRECT_LIMIT, DEFAULT_RTOL, DIRECT_FALLBACK_LIMIT,
                                      SOLVERS, DirectSolver, SolverFailed, make_solver)
 
@@ -53,9 +53,6 @@ from ohmgraph.engine.solvers import (AUTO_DIRECT_LIMIT, DEFAULT_RTOL, DIRECT_FAL
 # (solvers.AUTO_DIRECT_LIMIT), which still decides for a query of FEW_SOLVES or fewer.
 RESISTANCE_DIRECT_LIMIT = DIRECT_FALLBACK_LIMIT
 FEW_SOLVES = 2
-# Floats held by one block of right-hand sides (columns x unknowns); 2**24 is 128 MiB.
-BLOCK_FLOATS = 2 ** 24
-MAX_BLOCK_COLUMNS = 64
 # Terminal reduction in pairs(): used when there are at most this many distinct terminals and
 # fewer terminals than distinct pairs (one solve per terminal instead of one per pair).
 KRON_TERMINAL_LIMIT = 2000
@@ -108,11 +105,6 @@ class SolverStats:
     max_iterations: int = 0
     max_relative_residual: float = 0.0
     notes: list = field(default_factory=list)
-
-
-def block_columns(n_unknowns: int) -> int:
-    """Right-hand sides per block (at most :data:`MAX_BLOCK_COLUMNS` and :data:`BLOCK_FLOATS`)."""
-    return int(max(1, min(MAX_BLOCK_COLUMNS, BLOCK_FLOATS // max(n_unknowns, 1))))
 
 
 class ResistanceSolver:

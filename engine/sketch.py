@@ -36,6 +36,9 @@ from scipy.stats import norm
 
 # Unknowns up to which "exact=None" computes exact values (one solve per unknown).
 EXACT_UNKNOWN_LIMIT = 3000
+# Floats held by one block of right-hand sides (columns x rows); 2**24 is 128 MiB.
+BLOCK_FLOATS = 2 ** 24
+MAX_BLOCK_COLUMNS = 64
 
 
 @dataclass(frozen=True)
@@ -106,6 +109,11 @@ class KirchhoffIndex:
     seconds: float
 
 
+def block_columns(rows: int) -> int:
+    """Right-hand sides per block (at most :data:`MAX_BLOCK_COLUMNS` and :data:`BLOCK_FLOATS`)."""
+    return int(max(1, min(MAX_BLOCK_COLUMNS, BLOCK_FLOATS // max(rows, 1))))
+
+
 def sketch_size(n: int, epsilon: float) -> int:
     """Sketch size ``k = ceil(24 ln n / ε²)`` for relative error ``ε`` on all resistors at once."""
     return int(math.ceil(24.0 * math.log(max(n, 2)) / epsilon ** 2))
@@ -113,8 +121,6 @@ def sketch_size(n: int, epsilon: float) -> int:
 
 def _unknown_blocks(solver):
     """Yield ``(unknowns, X)``: consecutive blocks of columns of ``A^{-1}``."""
-    from ohmgraph.engine.resistance import block_columns
-
     n = solver.free.size
     step = block_columns(n)
     for begin in range(0, n, step):
@@ -192,8 +198,6 @@ def _exact_across(solver, a, b, progress):
 
 def _sketch_across(solver, a, b, resistor_ohms, k, seed, progress):
     """Spielman–Srivastava estimate ``Σ_i (z_i[a] - z_i[b])^2`` with ``z_i = G B^T W^{1/2} q_i``."""
-    from ohmgraph.engine.resistance import block_columns
-
     rng = np.random.default_rng(seed)
     m, n_super = a.size, solver.graph.n_supernodes
     edges = np.arange(m)
@@ -264,8 +268,6 @@ def kirchhoff_index(solver, exact=None, samples: int = 200, seed: int = 0,
 
 def _hutchinson_samples(solver, samples, seed, progress):
     """Samples ``n v^T G v`` with ``v = P W^{1/2} z``, ``z`` Rademacher over the supernodes."""
-    from ohmgraph.engine.resistance import block_columns
-
     rng = np.random.default_rng(seed)
     n = solver.n_nodes
     root_w = np.sqrt(solver.supernode_size.astype(np.float64))
