@@ -159,3 +159,20 @@ def test_negative_resistance_is_not_well_posed(tmp_path, capsys):
     path.write_text("from,to,value\n0,1,-5\n")
     code, _, err = run(capsys, "resistance", path, "--between", "0", "1")
     assert code == 1 and "not well-posed" in err
+
+
+def test_across_resistors_sketch_to_hdf5(lattice, tmp_path, capsys):
+    out = tmp_path / "shares.h5"
+    code, text, err = run(capsys, "resistance", lattice, "--ground", "0_0", "--across-resistors",
+                          "--estimate", "--sketch-size", "64", "-o", out, "--json")
+    assert code == 0, err
+    summary = json.loads(text)
+    assert not summary["exact"] and summary["sketch_size"] == 64
+    with h5py.File(out) as store:
+        group = store["resistance"]
+        share = group["share"][:]
+        assert group.attrs["sketch_size"] == 64 and share.size == 2 * SIDE * (SIDE - 1)
+        # Foster (1949): the shares sum to n - 1; the sketch's sum carries the per-value relative
+        # spread sqrt(2/k) (Spielman & Srivastava 2008) divided by about sqrt(number of values).
+        assert share.sum() == pytest.approx(SIDE * SIDE - 1, rel=0.02)
+        np.testing.assert_allclose(group["accuracy"][:], math.sqrt(2 / 64))

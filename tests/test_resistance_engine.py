@@ -316,3 +316,17 @@ def test_auto_sets_the_solver_up_for_the_query(monkeypatch):
     assert any("switched to direct" in note for note in solver.stats.notes)
     # Two solvers of the same system must agree (common practice).
     assert solver.pair(0, 399)[0] == pytest.approx(one[0], rel=1e-9)
+
+
+def test_kirchhoff_index_is_the_sum_over_node_pairs_with_sources(make_network):
+    # Definition (Klein & Randić 1993): the sum of R_ij over all node pairs; here on a network
+    # whose voltage sources and ideal connections merge nodes, so the weighted formulas are used.
+    net = make_network(5, n_nodes=60, extra_resistors=80)
+    solver = ResistanceSolver(net)
+    a, b = np.triu_indices(net.n_nodes, 1)
+    total = solver.pairs(a, b).ohms.sum()
+    exact = solver.kirchhoff_index(exact=True)
+    assert exact.value == pytest.approx(total, rel=1e-10)
+    estimate = solver.kirchhoff_index(exact=False, samples=600, seed=2)
+    assert estimate.low <= total <= estimate.high
+    assert estimate.std_error < 0.05 * total
