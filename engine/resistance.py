@@ -17,9 +17,8 @@ Accuracy
 --------
 For one pair, with a computed solution ``x`` of ``A x = d`` and its residual ``r = d - A x``,
 the reported value is the energy estimate ``R~ = d^T x + x^T r``, whose error is exactly
-``R - R~ = r^T A^{-1} r >= 0`` (the quadratic error of the Ritz/energy functional; see
-Golub & Van Loan, *Matrix Computations*, 4th ed., §11.3 on conjugate-gradient error in the
-A-norm). Because ``A^{-1}`` of a grounded Laplacian is entrywise non-negative with its largest
+``R - R~ = r^T A^{-1} r >= 0`` (substitute ``x = A^{-1} (d - r)``): quadratic in the residual,
+so even a loose iterative solve gives a precise value. Because ``A^{-1}`` of a grounded Laplacian is entrywise non-negative with its largest
 entry on the diagonal (maximum principle), ``r^T A^{-1} r <= ||r||_1^2 max_i G_ii``, and by
 Rayleigh's monotonicity law ``G_ii`` (the resistance from ``i`` to ground) is at most the
 resistance of the cheapest path from ``i`` to ground, found once by Dijkstra's algorithm. The
@@ -27,7 +26,10 @@ reported ``accuracy`` is that bound divided by the value: a relative error bound
 true resistance lies in ``[R~, R~ (1 + accuracy)]``), floored at the machine epsilon of float64
 (the rounding of the value itself; the bound does not cover rounding in forming ``r``).
 Values read from a terminal reduction (:meth:`ResistanceSolver.pairs` with few terminals) use the
-plain ``d^T x``, whose error ``|x^T r|`` is bounded by ``sqrt(R ||r||_1^2 max G_ii)``.
+plain ``d^T x``, whose error ``|x^T r|`` is bounded by ``sqrt(R ||r||_1^2 max G_ii)``. Values read
+from the factor (:meth:`ResistanceSolver.factor_pairs`) have no residual of their own: their
+accuracy is that first-order bound with the residual of a full solve of a check pair standing in,
+an estimate rather than a bound.
 """
 
 from __future__ import annotations
@@ -56,8 +58,8 @@ FEW_SOLVES = 2
 # Terminal reduction in pairs(): used when there are at most this many distinct terminals and
 # fewer terminals than distinct pairs (one solve per terminal instead of one per pair).
 KRON_TERMINAL_LIMIT = 2000
-# A sparse forward solve from the factor (engine/reach.py) costs about this fraction of a full
-# solve (measured 0.3 on a 10^6-node lattice); terminal reduction must beat that.
+# A sparse forward solve from the factor (engine/reach.py) costs at most about this fraction of a
+# full solve (measured 0.06-0.3 on 10^5- to 10^6-node lattices); terminal reduction must beat it.
 REACH_COST = 0.3
 # Pairs per call of the sparse-forward-solve kernel (progress is reported between calls).
 REACH_BATCH = 256
