@@ -7,7 +7,7 @@ complement onto the terminals ``T``,
 
 itself a Laplacian (of the equivalent network among the terminals) with the same effective
 resistances between every two terminals as the full network (Dörfler & Bullo, "Kron reduction of
-graphs with applications to electrical networks", IEEE TCAS-I 60(1), 150–163, 2013, Thm. III.6).
+graphs with applications to electrical networks", IEEE TCAS-I 60(1), 150–163, 2013).
 Interior nodes of islands without a terminal are dropped first: they do not affect ``S`` and
 would make ``L_II`` singular.
 """

@@ -4,7 +4,7 @@ Each comes exact (one solve per unknown, read in blocks, never an ``n x n`` matr
 randomised estimate with its error stated:
 
 * across every resistor, the random projection of Spielman & Srivastava ("Graph sparsification
-  by effective resistances", STOC 2008, §4): ``R_e = ||W^{1/2} B L^+ (e_u - e_v)||^2`` is kept
+  by effective resistances", STOC 2008): ``R_e = ||W^{1/2} B L^+ (e_u - e_v)||^2`` is kept
   to within ``1 ± ε`` for every resistor at once (probability at least ``1 - 1/n``) by the
   Johnson–Lindenstrauss sketch ``Z = Q W^{1/2} B L^+`` with ``Q`` a ``k x m`` matrix of
   ``±1/sqrt(k)`` entries and ``k >= 24 ln n / ε²``; ``Z`` costs ``k`` solves. A single

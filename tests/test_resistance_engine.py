@@ -94,8 +94,8 @@ def test_kron_reduction_keeps_resistances_among_terminals():
 
 
 def test_kron_reduction_of_a_star_is_the_triangle_of_the_star_mesh_transform():
-    # Star-mesh (Y-Delta) transform, A. E. Kennelly, Electrical World 34, 413 (1899):
-    # a star of conductances g_i gives mesh conductances g_i g_j / sum(g).
+    # Star-mesh (Y-Delta) transform, A. E. Kennelly, Electrical World 34, 413 (1899; reference
+    # recalled from memory): a star of conductances g_i gives mesh conductances g_i g_j / sum(g).
     g = np.array([1.0, 2.0, 4.0])
     laplacian = np.zeros((4, 4))
     for i, gi in enumerate(g):
