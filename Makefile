@@ -23,7 +23,7 @@ test: $(STAMP)
 	$(BIN)/python -m pytest -q
 
 bench: $(STAMP)
-	$(BIN)/python -m pytest benchmarks -q -p no:cacheprovider --benchmark-enable --benchmark-columns=min,median,max,rounds -s
+	$(BIN)/python -m pytest benchmarks -q -p no:cacheprovider -o python_files='bench_*.py' --benchmark-enable --benchmark-columns=min,median,max,rounds -s
 
 clean:
 	rm -rf $(VENV) build *.egg-info .pytest_cache .benchmarks

@@ -9,12 +9,19 @@ number of right-hand sides, one vector or a block of columns, returning the solu
   :func:`scipy.sparse.linalg.splu`, with a minimum-degree ordering of ``A^T + A`` and diagonal
   pivoting, which suits a symmetric positive-definite matrix.
 * ``amg-cg``: conjugate gradient (Hestenes & Stiefel, 1952) preconditioned by one V-cycle of
-  smoothed-aggregation algebraic multigrid (Vaněk, Mandel & Brezina, Computing 56, 1996) from
-  pyamg, with symmetric Gauss–Seidel smoothing so the preconditioner stays symmetric.
+  classical (Ruge–Stüben) algebraic multigrid (J. W. Ruge & K. Stüben, "Algebraic multigrid",
+  in *Multigrid Methods*, SIAM Frontiers in Applied Mathematics 3, 1987) from pyamg.
+
+Both set up and solve with the BLAS limited to one thread (threadpoolctl). Conjugate gradient
+calls BLAS dot products on vectors of 10^4 to 10^6 entries; OpenBLAS splits each of them over
+threads, and on two busy cores that made whole solves 3 to 20 times slower (the core type
+OpenBLAS picks made no difference); SuperLU's block solves gain too. Numbers in
+``benchmarks/README.md``.
 """
 
 from __future__ import annotations
 
+import functools
 import time
 from abc import ABC, abstractmethod
 from dataclasses import dataclass
@@ -22,11 +29,27 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.sparse as sp
 import scipy.sparse.linalg as spla
+from threadpoolctl import ThreadpoolController
 
 DEFAULT_RTOL = 1e-10
-AUTO_DIRECT_LIMIT = 150_000
+# ``auto`` picks direct up to this many unknowns. Set-up plus one solve (benchmarks/README.md):
+# direct wins on lattices below about 40,000 unknowns and on k-nearest-neighbour graphs up to
+# about 200,000; in between it costs at most about 0.5 s more, and it makes every further
+# right-hand side (readings, sensitivities, resistances) a cheap pair of triangular solves.
+AUTO_DIRECT_LIMIT = 100_000
 DIRECT_FALLBACK_LIMIT = 2_000_000
 DIRECT_RESIDUAL_LIMIT = 1e-8
+
+
+@functools.cache
+def _blas_threads():
+    """One controller of the loaded BLAS libraries (cheap to apply once built)."""
+    return ThreadpoolController()
+
+
+def single_threaded_blas():
+    """Context manager that limits every loaded BLAS library to one thread."""
+    return _blas_threads().limit(limits=1, user_api="blas")
 
 
 class SolverFailed(RuntimeError):
@@ -75,7 +98,8 @@ class SPDSolver(ABC):
         self.matrix = sp.csr_matrix(matrix)
         self.rtol = float(rtol)
         start = time.perf_counter()
-        self._setup()
+        with single_threaded_blas():
+            self._setup()
         self.setup_seconds = time.perf_counter() - start
 
     @abstractmethod
@@ -93,7 +117,8 @@ class SPDSolver(ABC):
         if self.matrix.shape[0] == 0:
             x, iterations = np.zeros_like(b), 0
         else:
-            x, iterations = self._solve(b)
+            with single_threaded_blas():
+                x, iterations = self._solve(b)
         elapsed = time.perf_counter() - start
         residual = relative_residual(self.matrix, x, b) if b.size else 0.0
         target = max(self.rtol, DIRECT_RESIDUAL_LIMIT) if self.method == "direct" else self.rtol
@@ -121,30 +146,43 @@ class DirectSolver(SPDSolver):
         return self._lu
 
     def _solve(self, b):
-        if b.ndim == 2:
-            # SuperLU solves columns one at a time 2-5x faster than as one block (measured on
-            # 10^4- to 10^6-node lattices).
-            return np.column_stack([self._lu.solve(b[:, j]) for j in range(b.shape[1])]), 0
-        return self._lu.solve(b), 0
+        # One call for a block. With the BLAS on one thread a Fortran-ordered block beats column
+        # by column (16 columns of a 490,000-unknown lattice: 1.1 s against 1.4 s; 64: 4.9 s
+        # against 6.8 s); with OpenBLAS threads on busy cores it lost 2-3x (benchmarks/README.md).
+        return self._lu.solve(np.asfortranarray(b)), 0
 
 
 class AmgCgSolver(SPDSolver):
-    """Conjugate gradient preconditioned by a smoothed-aggregation AMG V-cycle (pyamg)."""
+    """Conjugate gradient preconditioned by a classical (Ruge–Stüben) AMG V-cycle (pyamg).
+
+    Settings, chosen by measurement on grounded Laplacians (a 1000 x 1000 lattice, a three-layer
+    mesh, a k-nearest-neighbour graph and the IBM power-grid benchmark pg1; benchmarks/README.md):
+
+    * classical strength of connection with threshold 0.25 and Ruge–Stüben C/F splitting with
+      its second pass, which makes every pair of strongly connected fine points share a coarse
+      point (Ruge & Stüben 1987); without it pg1, whose conductances span four
+      decades, needs 49 iterations instead of 13;
+    * direct interpolation and Galerkin coarse operators ``P^T A P``;
+    * one forward Gauss–Seidel sweep before and one backward sweep after each coarse correction,
+      which makes the V-cycle a symmetric positive-definite preconditioner as CG needs;
+    * sparse LU on the coarsest level (at most ``max_coarse`` unknowns).
+    """
 
     method = "amg-cg"
     max_iterations = 500
+    max_coarse = 500
 
     def _setup(self) -> None:
         import pyamg
 
         if self.matrix.shape[0] == 0:
             return
-        smoother = ("gauss_seidel", {"sweep": "symmetric"})
-        # Sparse LU on the coarsest grid: pyamg's default dense pseudo-inverse of up to
-        # max_coarse x max_coarse runs a multithreaded SVD that is orders slower on busy cores.
-        self._hierarchy = pyamg.smoothed_aggregation_solver(
-            self.matrix, symmetry="hermitian", strength=("symmetric", {"theta": 0.0}),
-            presmoother=smoother, postsmoother=smoother, max_coarse=500, coarse_solver="splu")
+        self._hierarchy = pyamg.ruge_stuben_solver(
+            self.matrix, strength=("classical", {"theta": 0.25}),
+            CF=("RS", {"second_pass": True}), interpolation="direct",
+            presmoother=("gauss_seidel", {"sweep": "forward"}),
+            postsmoother=("gauss_seidel", {"sweep": "backward"}),
+            max_coarse=self.max_coarse, coarse_solver="splu")
         self._preconditioner = self._hierarchy.aspreconditioner(cycle="V")
 
     def _solve_column(self, b):
