@@ -33,3 +33,30 @@ class SolverError(UserError):
     """The linear solve did not reach the requested accuracy."""
 
     exit_code = EXIT_SOLVER_FAILED
+
+
+MAX_REPORTED_PROBLEMS = 10
+
+
+class ProblemList:
+    """Collects ``FILE:LINE: message`` problems found in one input file; raises them together.
+
+    The first :data:`MAX_REPORTED_PROBLEMS` messages are kept and the rest counted, so a file
+    with a million bad rows still gives a short, useful message.
+    """
+
+    def __init__(self, path):
+        self.path = path
+        self.messages = []
+        self.count = 0
+
+    def add(self, line: int, message: str) -> None:
+        self.count += 1
+        if len(self.messages) < MAX_REPORTED_PROBLEMS:
+            self.messages.append(f"{self.path}:{line}: {message}")
+
+    def raise_if_any(self) -> None:
+        """Raise :class:`InputError` listing the problems, if there are any."""
+        if self.count:
+            more = self.count - len(self.messages)
+            raise InputError("\n".join(self.messages + ([f"... and {more} more"] if more else [])))

@@ -29,7 +29,8 @@ import numpy as np
 
 from ohmgraph.io.atomic import atomic_output
 from ohmgraph.io.errors import InputError, OutputRefused
-from ohmgraph.io.store import decode_strings, encode_strings, file_sha256, tool_version
+from ohmgraph.io.store import (decode_strings, encode_strings, file_sha256, flatten_attrs,
+                               tool_version)
 
 COMPRESS_FROM = 4096
 
@@ -42,18 +43,8 @@ def _plain_array(values) -> np.ndarray:
     return data
 
 
-def _flatten(values: dict, prefix: str = "") -> dict:
-    flat = {}
-    for key, value in values.items():
-        if isinstance(value, dict):
-            flat.update(_flatten(value, f"{prefix}{key}."))
-        elif value is not None:
-            flat[f"{prefix}{key}"] = value
-    return flat
-
-
 def _set_attrs(target, values: dict) -> None:
-    for key, value in _flatten(values).items():
+    for key, value in flatten_attrs(values).items():
         if isinstance(value, (list, tuple)):
             value = _plain_array([str(v) for v in value]) if value else np.empty(0, "S1")
         target.attrs[key] = value

@@ -35,12 +35,11 @@ import numpy as np
 
 from ohmgraph.engine.measurements import READING_KINDS, Readings
 from ohmgraph.engine.network import RESISTOR, Network
-from ohmgraph.io.errors import InputError
+from ohmgraph.io.errors import InputError, ProblemList
 
 TABLE_COLUMNS = ("kind", "a", "b", "value", "accuracy")
 REQUIRED_COLUMNS = ("kind", "a", "b", "value")
 TOLERANCE_COLUMNS = ("branch", "tolerance")
-MAX_REPORTED_ERRORS = 10
 PREFIXES = {"p": 1e-12, "n": 1e-9, "u": 1e-6, "µ": 1e-6, "μ": 1e-6, "m": 1e-3, "": 1.0,
             "k": 1e3, "M": 1e6, "G": 1e9}
 UNIT_KIND = {"v": "V", "a": "I", "ohm": "R", "ohms": "R", "Ω": "R"}
@@ -164,25 +163,6 @@ def parse_percent(text: str, what: str = "tolerance") -> float:
     return value / 100.0
 
 
-class _Problems:
-    """Collects ``FILE:LINE: message`` problems; raises them together."""
-
-    def __init__(self, path: Path):
-        self.path = path
-        self.messages = []
-        self.count = 0
-
-    def add(self, line: int, message: str) -> None:
-        self.count += 1
-        if len(self.messages) < MAX_REPORTED_ERRORS:
-            self.messages.append(f"{self.path}:{line}: {message}")
-
-    def raise_if_any(self) -> None:
-        if self.count:
-            more = self.count - len(self.messages)
-            raise InputError("\n".join(self.messages + ([f"... and {more} more"] if more else [])))
-
-
 def _records(path: Path):
     """``(physical line, fields)`` of every CSV record that is not blank or a ``#`` comment."""
     opener = gzip.open if path.name.lower().endswith(".gz") else open
@@ -259,7 +239,7 @@ def _describe(accuracy: Accuracy, kind: str) -> str:
 class _RowReader:
     """Checks one measurement row at a time against the network."""
 
-    def __init__(self, net: Network, rules: dict, problems: _Problems):
+    def __init__(self, net: Network, rules: dict, problems: ProblemList):
         self.net = net
         self.rules = rules
         self.problems = problems
@@ -357,7 +337,7 @@ def read_measurements(path, net: Network, rules: dict | None = None) -> Measurem
     path = Path(path)
     records = _records(path)
     _, header = _header(path, records, TABLE_COLUMNS, REQUIRED_COLUMNS)
-    problems = _Problems(path)
+    problems = ProblemList(path)
     checker = _RowReader(net, rules or {}, problems)
     rows, lines, labels_a, labels_b, texts = [], [], [], [], []
     for line, fields in records:
@@ -399,7 +379,7 @@ def read_tolerances(path, net: Network, default: float = 0.0) -> np.ndarray:
     tolerance = np.full(net.n_branches, float(default))
     records = _records(path)
     _, header = _header(path, records, TOLERANCE_COLUMNS, TOLERANCE_COLUMNS)
-    problems = _Problems(path)
+    problems = ProblemList(path)
     names = {}
     for index, name in enumerate(net.branch_names.tolist()):
         names.setdefault(name, []).append(index)

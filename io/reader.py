@@ -31,13 +31,12 @@ import pyarrow.compute as pc
 import pyarrow.csv as pa_csv
 
 from ohmgraph.engine.network import KIND_CODE, RESISTOR, Network
-from ohmgraph.io.errors import InputError
+from ohmgraph.io.errors import InputError, ProblemList
 
 COLUMNS = ("name", "kind", "from", "to", "value")
 REQUIRED_COLUMNS = ("from", "to", "value")
 TABLE_DELIMITERS = {".csv": ",", ".tsv": "\t"}
 EDGE_LIST_FIELDS = ("from", "to", "value")
-MAX_REPORTED_ERRORS = 10
 # Edge-list lines are read whole by splitting on a control character (ASCII unit separator) that
 # text files do not hold; a line that does hold one goes to the exact pass.
 _UNUSED_DELIMITER = "\x1f"
@@ -308,32 +307,13 @@ def _parse_number(text: str) -> float:
     return float(text)
 
 
-class _ProblemList:
-    """Collects problems; keeps the first few messages and counts the rest."""
-
-    def __init__(self, path: Path):
-        self.path = path
-        self.messages = []
-        self.count = 0
-
-    def add(self, line: int, message: str) -> None:
-        self.count += 1
-        if len(self.messages) < MAX_REPORTED_ERRORS:
-            self.messages.append(f"{self.path}:{line}: {message}")
-
-    def raise_if_any(self) -> None:
-        if self.count:
-            more = self.count - len(self.messages)
-            raise InputError("\n".join(self.messages + ([f"... and {more} more"] if more else [])))
-
-
 class _ColumnsBuilder:
     """Accumulates checked rows of the exact pass."""
 
     def __init__(self):
         self.from_labels, self.to_labels, self.values, self.kinds, self.names = [], [], [], [], []
 
-    def add_row(self, problems: _ProblemList, line: int, fields: dict) -> None:
+    def add_row(self, problems: ProblemList, line: int, fields: dict) -> None:
         ok = True
         for column in ("from", "to"):
             if not fields[column]:
@@ -364,7 +344,7 @@ class _ColumnsBuilder:
 
 
 def _exact_table(path: Path, delimiter: str, header: list) -> _Columns:
-    problems, rows = _ProblemList(path), _ColumnsBuilder()
+    problems, rows = ProblemList(path), _ColumnsBuilder()
     records = _table_records(path, delimiter)
     next(records)                               # the header
     for line, fields in records:
@@ -378,7 +358,7 @@ def _exact_table(path: Path, delimiter: str, header: list) -> _Columns:
 
 
 def _exact_edge_list(path: Path) -> _Columns:
-    problems, rows = _ProblemList(path), _ColumnsBuilder()
+    problems, rows = ProblemList(path), _ColumnsBuilder()
     for line, fields in _edge_records(path):
         if len(fields) != len(EDGE_LIST_FIELDS):
             problems.add(line, f"{len(fields)} field(s), expected 3 (from to ohms)")

@@ -182,11 +182,12 @@ def tool_version() -> str:
     return importlib.metadata.version("ohmgraph")
 
 
-def _flatten(summary: dict, prefix: str = "") -> dict:
+def flatten_attrs(values: dict, prefix: str = "") -> dict:
+    """Nested dict → flat ``{"a.b": value}`` (None dropped), for HDF5 attributes."""
     flat = {}
-    for key, value in summary.items():
+    for key, value in values.items():
         if isinstance(value, dict):
-            flat.update(_flatten(value, f"{prefix}{key}."))
+            flat.update(flatten_attrs(value, f"{prefix}{key}."))
         elif value is not None:
             flat[f"{prefix}{key}"] = value
     return flat
@@ -213,7 +214,7 @@ def _write_findings(group: h5py.Group, findings: list, summary: dict) -> None:
         _put(group, offsets_name, offsets)
     group.attrs["description"] = ("check findings; the nodes/branches of finding k are "
                                   "nodes[node_offsets[k]:node_offsets[k+1]] (same for branches)")
-    for key, value in _flatten(summary).items():
+    for key, value in flatten_attrs(summary).items():
         group.attrs[key] = value
 
 
