@@ -183,6 +183,8 @@ def contract(net: Network, kernel=contract_kernel) -> Contraction:
     volts = np.where(net.kind[branches] == VOLTAGE_SOURCE, net.value[branches], 0.0)
     root, offset, tree, mismatch = kernel(
         net.n_nodes, net.from_node[branches], net.to_node[branches], volts)
-    _, supernode = np.unique(root, return_inverse=True)
+    # Number the supernodes by their root nodes in node order (a prefix sum, not a sort).
+    is_root = root == np.arange(net.n_nodes)
+    supernode = (np.cumsum(is_root) - 1)[root]
     return Contraction(supernode.astype(np.int64), offset, root, branches,
                        np.asarray(tree, bool), mismatch)

@@ -152,7 +152,9 @@ class ResistanceSolver:
         self.n_islands, self.island = connected_components(conductance, directed=False)
         self.ground = self._grounds(net.reference)
         unknown_of = np.full(n_super, -1, np.int64)
-        free = np.setdiff1d(np.arange(n_super), self.ground)
+        grounded = np.zeros(n_super, bool)
+        grounded[self.ground] = True
+        free = np.flatnonzero(~grounded)
         unknown_of[free] = np.arange(free.size)
         self.free, self.unknown_of = free, unknown_of
         self.matrix = grounded_matrix(self.graph, free, unknown_of)
