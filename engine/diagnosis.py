@@ -217,7 +217,7 @@ def _fit_value(fit: _Fit, g: np.ndarray, z: dict, short_ratio: float):
 def _open_cost(fit: _Fit, g: np.ndarray, z: dict) -> np.ndarray:
     """``chi2`` of the open hypothesis; ``inf`` where it disconnects nodes a reading sees."""
     factors, blocked = {}, np.zeros(g.shape, bool)
-    for name, (a, b) in fit.terms.items():
+    for name, (_, b) in fit.terms.items():
         denominator = 1.0 - g * z[name]
         cut = denominator <= DISCONNECT_TOLERANCE
         blocked |= cut & (b > 0)

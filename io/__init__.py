@@ -5,3 +5,5 @@ Readers and writers, the HDF5 store, the command-line interface and terminal out
 
 from ohmgraph.io.reader import read_network
 from ohmgraph.io.store import read_solution, write_solution
+
+__all__ = ["read_network", "read_solution", "write_solution"]

@@ -124,7 +124,7 @@ def run(args) -> int:
                              **({"tolerances": args.tolerances} if args.tolerances else {})})
     if args.json:
         nodes = []
-        for row, label in enumerate(args.observe):
+        for row in range(len(args.observe)):
             entry = {key: values[row] for key, values in columns.items()}
             entry["top_contributors"] = [
                 {"branch": str(net.branch_names[spread.resistors[p]]),
