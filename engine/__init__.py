@@ -1,7 +1,8 @@
 """ohmgraph.engine: pure computation on arrays (no file I/O, no printing).
 
 The network model, well-posedness checks, contraction of sources, the reduced nodal system,
-solvers, and recovery of branch quantities with residual checks.
+solvers, recovery of branch quantities with residual checks, effective-resistance queries, and
+readings against the model (comparison, adjoint sensitivities, single-fault diagnosis).
 """
 
 from ohmgraph.engine.checks import CheckReport, Finding, check
