@@ -128,4 +128,4 @@ def test_demo_rejects_a_tiny_board(capsys):
     with pytest.raises(SystemExit) as stop:
         main(["demo", "--size", "3"])
     assert stop.value.code == 2
-    assert "less than 8" in capsys.readouterr().err
+    assert "must be at least 8" in capsys.readouterr().err

@@ -16,7 +16,7 @@ from ohmgraph.engine.measurements import ReadingModel, build_model, compare
 from ohmgraph.engine.solve import NetworkNotSolvable
 from ohmgraph.engine.solvers import DEFAULT_RTOL, SOLVERS, SolverFailed
 from ohmgraph.io.atomic import atomic_output, refuse_existing
-from ohmgraph.io.commands.solve import positive_float
+from ohmgraph.io.commands.argtypes import positive_float
 from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, InputError, SolverError, UserError
 from ohmgraph.io.jsonout import dumps
 from ohmgraph.io.measurement_store import refuse_existing_group, write_results
@@ -100,6 +100,16 @@ def write_table(args, columns: dict, *, units=None, attrs=None, matrices=None,
                   sources=sources, force=args.force, append=args.append)
 
 
+def add_reading_arguments(parser) -> None:
+    """The measurement table and the global accuracy (compare, diagnose)."""
+    parser.add_argument("measurements", metavar="MEAS.csv",
+                        help="measurement table: kind,a,b,value[,accuracy]")
+    parser.add_argument("--accuracy", action="append", metavar="SPEC",
+                        help="global instrument accuracy ±(percent of reading + absolute), e.g. "
+                             "0.5%%+1mV; repeat once per unit (V, A, ohm); a row's own "
+                             "accuracy wins")
+
+
 def register(subparsers) -> None:
     parser = subparsers.add_parser(
         "compare", help="compare readings of a built network with the model",
@@ -108,12 +118,7 @@ def register(subparsers) -> None:
                     "and the band the instrument's accuracy allows. Exit 0 when every reading "
                     "passes, 1 when any fails.")
     add_network_arguments(parser)
-    parser.add_argument("measurements", metavar="MEAS.csv",
-                        help="measurement table: kind,a,b,value[,accuracy]")
-    parser.add_argument("--accuracy", action="append", metavar="SPEC",
-                        help="global instrument accuracy ±(percent of reading + absolute), e.g. "
-                             "0.5%%+1mV; repeat once per unit (V, A, ohm); a row's own "
-                             "accuracy wins")
+    add_reading_arguments(parser)
     parser.add_argument("--failures-only", action="store_true",
                         help="list only the readings that fail")
     add_output_arguments(parser)

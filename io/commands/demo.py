@@ -10,7 +10,6 @@ deterministic.
 
 from __future__ import annotations
 
-import argparse
 import time
 from pathlib import Path
 
@@ -22,6 +21,7 @@ from ohmgraph.engine.solve import solve
 from ohmgraph.engine.solvers import SolverFailed
 from ohmgraph.io.branch_table import write_branch_table
 from ohmgraph.io.check_view import format_report
+from ohmgraph.io.commands.argtypes import whole_number
 from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, OutputRefused, SolverError
 from ohmgraph.io.reader import read_network
 from ohmgraph.io.solution_view import format_solution, solution_summary
@@ -40,17 +40,6 @@ TABLE_NAME = "sensor_board.csv"
 SOLUTION_NAME = "sensor_board.h5"
 
 
-def demo_size(text: str) -> int:
-    """Sites per side of the demo board (argparse type, at least 8)."""
-    try:
-        size = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
-    if size < SMALLEST_SIZE:
-        raise argparse.ArgumentTypeError(f"{text!r} is less than {SMALLEST_SIZE}")
-    return size
-
-
 def register(subparsers) -> None:
     """Add the ``demo`` command."""
     parser = subparsers.add_parser(
@@ -61,7 +50,7 @@ def register(subparsers) -> None:
     parser.add_argument("--output-dir", default="demo-output", metavar="DIR",
                         help="folder for the demo's files, created if needed "
                              "(default demo-output)")
-    parser.add_argument("--size", type=demo_size, default=DEFAULT_SIZE, metavar="N",
+    parser.add_argument("--size", type=whole_number(SMALLEST_SIZE), default=DEFAULT_SIZE, metavar="N",
                         help=f"sites per side of the board (default {DEFAULT_SIZE}; "
                              f"branches grow as about 2.75 N^2)")
     parser.set_defaults(run=run)

@@ -2,38 +2,19 @@
 
 from __future__ import annotations
 
-import argparse
 
 import numpy as np
 
 from ohmgraph.engine.diagnosis import SHORT_RATIO, diagnose
 from ohmgraph.engine.measurements import compare
 from ohmgraph.io.commands.compare import (add_network_arguments, add_output_arguments,
-                                          check_output, model_readings, write_table)
+                                          add_reading_arguments, check_output, model_readings,
+                                          write_table)
 from ohmgraph.io.errors import EXIT_OK, InputError
 from ohmgraph.io.jsonout import dumps
+from ohmgraph.io.commands.argtypes import fraction, whole_number
 from ohmgraph.io.measurement_table import accuracy_rules, read_measurements
 from ohmgraph.io.reader import read_network
-
-
-def _count(text: str) -> int:
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
-    if value < 1:
-        raise argparse.ArgumentTypeError(f"{text!r} must be at least 1")
-    return value
-
-
-def _ratio(text: str) -> float:
-    try:
-        value = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
-    if not 0 < value < 1:
-        raise argparse.ArgumentTypeError(f"{text!r} must lie strictly between 0 and 1")
-    return value
 
 
 def register(subparsers) -> None:
@@ -45,13 +26,10 @@ def register(subparsers) -> None:
                     "network and one adjoint solve per reading. Resistors the readings cannot "
                     "tell apart are listed as one group. Exit 0 after a diagnosis.")
     add_network_arguments(parser)
-    parser.add_argument("measurements", metavar="MEAS.csv",
-                        help="measurement table: kind,a,b,value[,accuracy]")
-    parser.add_argument("--accuracy", action="append", metavar="SPEC",
-                        help="global instrument accuracy, e.g. 0.5%%+1mV (repeat per unit)")
-    parser.add_argument("--top", type=_count, default=10, metavar="K",
+    add_reading_arguments(parser)
+    parser.add_argument("--top", type=whole_number(1), default=10, metavar="K",
                         help="number of hypotheses to rank (default 10)")
-    parser.add_argument("--short-ratio", type=_ratio, default=SHORT_RATIO, metavar="F",
+    parser.add_argument("--short-ratio", type=fraction, default=SHORT_RATIO, metavar="F",
                         help=f"a short is the resistance times F (default {SHORT_RATIO:g})")
     add_output_arguments(parser)
     parser.set_defaults(run=run, command_group="diagnosis")

@@ -8,72 +8,33 @@ The kinds are the generators of :mod:`ohmgraph.datasets.generators`; each has it
 from __future__ import annotations
 
 import argparse
-import math
 import time
 from pathlib import Path
 
 from ohmgraph.datasets import generators
 from ohmgraph.io.atomic import refuse_existing
 from ohmgraph.io.branch_table import table_format, write_branch_table
+from ohmgraph.io.commands.argtypes import finite_float, positive_float, whole_number
 from ohmgraph.io.errors import EXIT_OK, InputError
 
 
 # ---------------------------------------------------------------------------- argument types
-def positive_int(text: str) -> int:
-    """An integer of at least 1 (argparse type)."""
-    return _integer(text, 1)
-
-
-def count(text: str) -> int:
-    """An integer of at least 0 (argparse type)."""
-    return _integer(text, 0)
-
-
-def positive_float(text: str) -> float:
-    """A finite number greater than 0 (argparse type)."""
-    value = finite_float(text)
-    if value <= 0:
-        raise argparse.ArgumentTypeError(f"{text!r} is not greater than 0")
-    return value
-
-
-def finite_float(text: str) -> float:
-    """A finite number (argparse type)."""
-    try:
-        value = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
-    if not math.isfinite(value):
-        raise argparse.ArgumentTypeError(f"{text!r} is not a finite number")
-    return value
-
-
-def _integer(text: str, minimum: int) -> int:
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
-    if value < minimum:
-        raise argparse.ArgumentTypeError(f"{text!r} is less than {minimum}")
-    return value
-
-
 # ---------------------------------------------------------------------------- parsers
 def _common_options() -> argparse.ArgumentParser:
     common = argparse.ArgumentParser(add_help=False)
     common.add_argument("-o", "--output", required=True, metavar="FILE",
                         help="branch table to write (.csv, .tsv, optionally .gz)")
     common.add_argument("--force", action="store_true", help="overwrite FILE if it exists")
-    common.add_argument("--seed", type=count, default=0,
+    common.add_argument("--seed", type=whole_number(0), default=0,
                         help="seed of every random choice (default 0)")
     return common
 
 
 def _supply_options(pads: int, loads: int) -> argparse.ArgumentParser:
     supply = argparse.ArgumentParser(add_help=False)
-    supply.add_argument("--pads", type=count, default=pads,
+    supply.add_argument("--pads", type=whole_number(0), default=pads,
                         help=f"voltage-source pads to node 0 at random nodes (default {pads})")
-    supply.add_argument("--loads", type=count, default=loads,
+    supply.add_argument("--loads", type=whole_number(0), default=loads,
                         help=f"current-source loads to node 0 at random nodes (default {loads})")
     supply.add_argument("--load-amps", type=finite_float, default=1e-3, metavar="A",
                         help="current of each load (default 0.001)")
@@ -97,7 +58,7 @@ def register(subparsers) -> None:
         kind = kinds.add_parser(name, parents=[common, lattice_supply],
                                 help=f"{len(axes)}-D lattice of equal resistors")
         for axis in axes:
-            kind.add_argument(f"n{axis}", type=positive_int, help=f"nodes along {axis}")
+            kind.add_argument(f"n{axis}", type=whole_number(1), help=f"nodes along {axis}")
         kind.add_argument("--ohms", type=positive_float, default=1.0,
                           help="resistance of every resistor (default 1)")
         kind.add_argument("--reference", metavar="LABEL",
@@ -105,7 +66,7 @@ def register(subparsers) -> None:
         kind.set_defaults(build=_build_lattice, axes=axes)
 
     kind = kinds.add_parser("ladder", parents=[common], help="series/shunt resistor ladder")
-    kind.add_argument("n", type=positive_int, help="number of sections")
+    kind.add_argument("n", type=whole_number(1), help="number of sections")
     kind.add_argument("--series-ohms", type=positive_float, default=1.0, metavar="OHMS")
     kind.add_argument("--shunt-ohms", type=positive_float, default=1.0, metavar="OHMS")
     kind.add_argument("--source-volts", type=finite_float, metavar="V",
@@ -115,15 +76,15 @@ def register(subparsers) -> None:
 
     kind = kinds.add_parser("layered-mesh", parents=[common, _supply_options(pads=4, loads=100)],
                             help="multi-layer supply mesh with vias, pads on top, loads below")
-    kind.add_argument("nx", type=positive_int, help="sites along x")
-    kind.add_argument("ny", type=positive_int, help="sites along y")
-    kind.add_argument("--layers", type=positive_int, default=2)
-    kind.add_argument("--pitch", type=positive_int, nargs="+", metavar="SITES",
+    kind.add_argument("nx", type=whole_number(1), help="sites along x")
+    kind.add_argument("ny", type=whole_number(1), help="sites along y")
+    kind.add_argument("--layers", type=whole_number(1), default=2)
+    kind.add_argument("--pitch", type=whole_number(1), nargs="+", metavar="SITES",
                       help="node spacing per layer, top first (default 2**(layers-1-l))")
     kind.add_argument("--sheet-ohms", type=positive_float, nargs="+", default=[0.05],
                       metavar="OHMS", help="ohms per square, one value or one per layer")
     kind.add_argument("--via-ohms", type=positive_float, default=0.5, metavar="OHMS")
-    kind.add_argument("--load-clusters", type=count, default=0, metavar="N",
+    kind.add_argument("--load-clusters", type=whole_number(0), default=0, metavar="N",
                       help="draw loads around N random hot spots (default 0: uniform)")
     kind.set_defaults(build=lambda a: generators.layered_mesh(
         a.nx, a.ny, a.layers, pitch=a.pitch, sheet_ohms=a.sheet_ohms, via_ohms=a.via_ohms,
@@ -132,8 +93,8 @@ def register(subparsers) -> None:
 
     kind = kinds.add_parser("knn", parents=[common, lattice_supply],
                             help="random points joined to their k nearest neighbours")
-    kind.add_argument("n", type=positive_int, help="number of points")
-    kind.add_argument("-k", "--neighbours", type=positive_int, default=4, metavar="K",
+    kind.add_argument("n", type=whole_number(1), help="number of points")
+    kind.add_argument("-k", "--neighbours", type=whole_number(1), default=4, metavar="K",
                       help="neighbours per point (default 4)")
     kind.add_argument("--ohms-per-unit", type=positive_float, default=1.0, metavar="OHMS",
                       help="resistance per unit distance (default 1)")

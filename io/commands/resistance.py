@@ -6,7 +6,6 @@ sources shorted, current sources removed), with its accuracy stated beside it.
 
 from __future__ import annotations
 
-import argparse
 import math
 import sys
 from dataclasses import asdict
@@ -17,6 +16,7 @@ from tqdm import tqdm
 from ohmgraph.engine.resistance import ResistanceSolver
 from ohmgraph.engine.solvers import DEFAULT_RTOL, SOLVERS, SolverFailed
 from ohmgraph.io.atomic import refuse_existing
+from ohmgraph.io.commands.argtypes import positive_float, whole_number
 from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, InputError, SolverError
 from ohmgraph.io.jsonout import dumps
 from ohmgraph.io.pairs import check_table_path, read_pairs, write_table
@@ -24,30 +24,6 @@ from ohmgraph.io.reader import read_network
 
 # Batches of at least this many right-hand sides show a progress bar (on a terminal).
 PROGRESS_MIN = 32
-
-
-def positive_float(text: str) -> float:
-    """argparse type: a finite number greater than zero."""
-    try:
-        number = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
-    if not 0 < number < math.inf:
-        raise argparse.ArgumentTypeError(f"{text!r} must be a finite number greater than 0")
-    return number
-
-
-def count_at_least(minimum: int):
-    """argparse type: an integer no smaller than ``minimum``."""
-    def parse(text: str) -> int:
-        try:
-            number = int(text)
-        except ValueError:
-            raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
-        if number < minimum:
-            raise argparse.ArgumentTypeError(f"{text!r} must be at least {minimum}")
-        return number
-    return parse
 
 
 def register(subparsers) -> None:
@@ -85,9 +61,9 @@ def register(subparsers) -> None:
     parser.add_argument("--epsilon", type=positive_float, default=0.1,
                         help="--across-resistors: relative error for all resistors at once; "
                              "sketch size ceil(24 ln n / epsilon^2) (default 0.1)")
-    parser.add_argument("--sketch-size", type=count_at_least(1), metavar="K",
+    parser.add_argument("--sketch-size", type=whole_number(1), metavar="K",
                         help="--across-resistors: sketch size K (overrides --epsilon)")
-    parser.add_argument("--samples", type=count_at_least(2), default=200,
+    parser.add_argument("--samples", type=whole_number(2), default=200,
                         help="--kirchhoff: Hutchinson samples (default 200)")
     parser.add_argument("--seed", type=int, default=0, help="random seed (default 0)")
     parser.add_argument("-o", "--output", metavar="OUT.csv|OUT.h5",

@@ -2,12 +2,12 @@
 
 from __future__ import annotations
 
-import argparse
 import time
 
 from ohmgraph.engine.checks import check
 from ohmgraph.engine.solve import solve
 from ohmgraph.engine.solvers import DEFAULT_RTOL, SOLVERS, SolverFailed
+from ohmgraph.io.commands.argtypes import positive_float
 from ohmgraph.io.atomic import refuse_existing
 from ohmgraph.io.check_view import format_report, report_to_dict
 from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, SolverError
@@ -15,17 +15,6 @@ from ohmgraph.io.jsonout import dumps
 from ohmgraph.io.reader import read_network
 from ohmgraph.io.solution_view import format_solution, solution_summary
 from ohmgraph.io.store import write_solution
-
-
-def positive_float(text: str) -> float:
-    """argparse type: a finite number greater than zero."""
-    try:
-        number = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
-    if not 0 < number < float("inf"):
-        raise argparse.ArgumentTypeError(f"{text!r} must be a finite number greater than 0")
-    return number
 
 
 def register(subparsers) -> None:

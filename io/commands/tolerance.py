@@ -11,6 +11,7 @@ from ohmgraph.engine.measurements import Readings
 from ohmgraph.engine.sensitivity import monte_carlo, tolerance_spread
 from ohmgraph.io.commands.compare import (add_network_arguments, add_output_arguments,
                                           check_output, model_readings, write_table)
+from ohmgraph.io.commands.argtypes import whole_number
 from ohmgraph.io.errors import EXIT_OK, InputError
 from ohmgraph.io.jsonout import dumps
 from ohmgraph.io.measurement_table import parse_percent, read_tolerances
@@ -22,16 +23,6 @@ def _percent(text: str) -> float:
         return parse_percent(text)
     except ValueError as error:
         raise argparse.ArgumentTypeError(str(error)) from None
-
-
-def _count(text: str) -> int:
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
-    if value < 0:
-        raise argparse.ArgumentTypeError(f"{text!r} must not be negative")
-    return value
 
 
 def register(subparsers) -> None:
@@ -48,9 +39,9 @@ def register(subparsers) -> None:
                         help="CSV branch,tolerance (percent) for individual resistors")
     parser.add_argument("--default", type=_percent, metavar="PCT",
                         help="tolerance of every resistor not in FILE, e.g. 1%%")
-    parser.add_argument("--top", type=_count, default=5, metavar="N",
+    parser.add_argument("--top", type=whole_number(0), default=5, metavar="N",
                         help="largest contributors listed per node (default 5)")
-    parser.add_argument("--samples", type=_count, default=0, metavar="N",
+    parser.add_argument("--samples", type=whole_number(0), default=0, metavar="N",
                         help="Monte Carlo samples (values uniform within tolerance; default 0)")
     parser.add_argument("--seed", type=int, default=0, help="Monte Carlo seed (default 0)")
     add_output_arguments(parser, (".h5", ".hdf5"))
