@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import argparse
 import importlib
+import importlib.metadata
 import os
 import sys
 
@@ -23,6 +24,8 @@ def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="ohmgraph",
         description="Check, solve and query large linear resistive networks.")
+    parser.add_argument("--version", action="version",
+                        version=f"ohmgraph {importlib.metadata.version('ohmgraph')}")
     subparsers = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
     for name in COMMANDS:
         importlib.import_module(f"ohmgraph.io.commands.{name}").register(subparsers)
