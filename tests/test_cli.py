@@ -1,0 +1,45 @@
+"""The command-line frame: version, usage errors, a closed output pipe."""
+
+import importlib.metadata
+import subprocess
+import sys
+
+import pytest
+
+from ohmgraph.io.cli import COMMANDS, main
+
+
+def test_version_is_the_installed_distribution(capsys):
+    with pytest.raises(SystemExit) as stop:
+        main(["--version"])
+    assert stop.value.code == 0
+    assert capsys.readouterr().out.strip() == f"ohmgraph {importlib.metadata.version('ohmgraph')}"
+
+
+def test_no_command_is_a_usage_error(capsys):
+    with pytest.raises(SystemExit) as stop:
+        main([])
+    assert stop.value.code == 2
+    assert "usage: ohmgraph" in capsys.readouterr().err
+
+
+def test_every_command_has_help(capsys):
+    for name in COMMANDS:
+        with pytest.raises(SystemExit) as stop:
+            main([name, "--help"])
+        assert stop.value.code == 0
+        assert f"usage: ohmgraph {name}" in capsys.readouterr().out
+
+
+def test_closed_pipe_ends_quietly(tmp_path):
+    # `ohmgraph ... | head -1`: the reader leaves while a long table is still being printed.
+    assert main(["generate", "grid2d", "40", "40", "-o", str(tmp_path / "grid.csv")]) == 0
+    command = [sys.executable, "-c", "import sys; from ohmgraph.io.cli import main; "
+               "sys.exit(main(sys.argv[1:]))", "resistance", str(tmp_path / "grid.csv"),
+               "--ground", "0_0", "--across-resistors"]
+    child = subprocess.Popen(command, stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+    assert child.stdout.readline()            # the table has started ...
+    child.stdout.close()                      # ... and nobody reads the rest
+    _, err = child.communicate(timeout=120)
+    assert b"Traceback" not in err and b"BrokenPipeError" not in err
+    assert child.returncode == 0
