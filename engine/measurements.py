@@ -421,9 +421,10 @@ class Comparison:
     measured, model, deviation, band : ndarray
         ``deviation = measured - model``; ``band`` the allowed ``|deviation|``.
     normalized : ndarray
-        ``deviation / band`` (``inf`` where the band is 0 and the deviation is not).
+        ``deviation / band`` (``inf`` where the band is 0 and the deviation is not, and
+        ``±inf`` where the deviation itself is infinite).
     passed : ndarray of bool
-        ``|deviation| <= band`` (and the model value is usable).
+        ``|deviation| <= band`` with a finite deviation (and the model value is usable).
     usable : ndarray of bool
     """
 
@@ -457,17 +458,20 @@ class Comparison:
 def compare(model: ReadingModel) -> Comparison:
     """Compare every reading with its model value: pass when ``|measured - model| <= band``.
 
-    A resistance reading of ``inf`` (open circuit) matches an infinite model value.
+    A resistance reading of ``inf`` (open circuit) matches an infinite model value and fails
+    against a finite one, even though a percentage accuracy makes its band infinite too.
     """
     readings = model.readings
     measured, value, band = readings.measured, model.model_value, readings.band
     both_infinite = np.isinf(measured) & np.isinf(value) & (np.sign(measured) == np.sign(value))
     with np.errstate(invalid="ignore"):
         deviation = np.where(both_infinite, 0.0, measured - value)
+    finite_deviation = np.isfinite(deviation)
     with np.errstate(divide="ignore", invalid="ignore"):
-        normalized = np.where(deviation == 0, 0.0, deviation / band)
+        normalized = np.where(deviation == 0, 0.0,
+                              np.where(finite_deviation, deviation / band, deviation))
     determined = model.usable | both_infinite
-    passed = determined & (np.abs(deviation) <= band)
+    passed = determined & finite_deviation & (np.abs(deviation) <= band)
     return Comparison(measured, value, deviation, band, normalized, passed, determined)
 
 

@@ -108,6 +108,19 @@ def test_two_point_resistance_zeroes_sources_and_sees_islands():
     assert compare(model).passed.tolist() == [True, True]
 
 
+def test_open_circuit_reading_fails_against_a_finite_model():
+    # An ohmmeter showing an open circuit (inf) where the model has 22 ohm (series/parallel
+    # rules, as above) must fail, although 1 % of an infinite reading is an infinite band.
+    net = Network.from_arrays(["x", "y", "m", "m"], ["m", "0", "y", "0"],
+                              [10.0, 5.0, 20.0, 30.0], ["R", "V", "R", "R"])
+    readings = Readings.from_labels(net, ["R", "R"], ["x", "x"], ["y", "y"],
+                                    measured=[np.inf, 22.0], band=[np.inf, np.inf])
+    comparison = compare(build_model(net, readings))
+    assert comparison.passed.tolist() == [False, True]
+    assert comparison.normalized[0] == np.inf
+    assert comparison.summary()["worst_reading"] == 0
+
+
 def test_compare_pass_and_fail_by_band():
     net = bridge(100.0, 200.0, 100.0, 200.0)
     # V(a) = 10 * 200/300 V by the divider rule; readings 5 mV off with bands 10 mV and 1 mV.
