@@ -28,6 +28,8 @@ from ohmgraph.engine.network import CURRENT_SOURCE, RESISTOR, Network
 
 ERROR, WARNING, INFO = "error", "warning", "info"
 CONDUCTANCE_SPREAD_LIMIT = 1e12
+# Below this a resistance's conductance 1/R overflows double precision (IEEE 754 binary64).
+SMALLEST_RESISTANCE = 1.0 / np.finfo(np.float64).max
 KVL_RELATIVE_TOLERANCE = 1e-9
 KCL_RELATIVE_TOLERANCE = 1e-9
 
@@ -90,6 +92,13 @@ def _value_findings(net: Network) -> list:
             ERROR, "negative-resistance",
             f"{negative.size} resistor(s) have negative resistance; only passive networks are "
             "supported", branches=negative))
+    tiny = _indices((net.kind == RESISTOR) & (net.value > 0) & (net.value < SMALLEST_RESISTANCE))
+    if tiny.size:
+        findings.append(Finding(
+            ERROR, "conductance-overflow",
+            f"{tiny.size} resistor(s) are below {SMALLEST_RESISTANCE:.2g} ohm, so their "
+            "conductance 1/R is not a finite number; write 0 for an ideal connection",
+            branches=tiny))
     loops = _indices(net.from_node == net.to_node)
     if loops.size:
         findings.append(Finding(WARNING, "self-loop",
@@ -109,7 +118,8 @@ def _value_findings(net: Network) -> list:
                                 "nodes they join are merged", branches=ideal))
     resistive = (net.kind == RESISTOR) & (net.value > 0) & np.isfinite(net.value)
     if resistive.any():
-        spread = float(net.value[resistive].max() / net.value[resistive].min())
+        with np.errstate(over="ignore"):
+            spread = float(net.value[resistive].max() / net.value[resistive].min())
         if spread > CONDUCTANCE_SPREAD_LIMIT:
             findings.append(Finding(
                 WARNING, "ill-conditioned",
@@ -255,6 +265,9 @@ def check(net: Network, *, allow_floating: bool = False) -> CheckReport:
     n_components, _ = _components(net.n_nodes, net.from_node, net.to_node)
     unknowns = contraction.n_supernodes - 1 - pinned.size
     resistive = (net.kind == RESISTOR) & (net.value > 0) & np.isfinite(net.value)
+    with np.errstate(over="ignore"):
+        spread = (float(net.value[resistive].max() / net.value[resistive].min())
+                  if resistive.any() else None)
     summary = {
         "nodes": net.n_nodes,
         "branches": net.n_branches,
@@ -264,8 +277,7 @@ def check(net: Network, *, allow_floating: bool = False) -> CheckReport:
         "supernodes": contraction.n_supernodes,
         "unknowns": int(unknowns),
         "rank": int(unknowns - unpinned),
-        "conductance_spread": (float(net.value[resistive].max() / net.value[resistive].min())
-                               if resistive.any() else None),
+        "conductance_spread": spread,
         "reference": net.reference_label,
         "errors": sum(f.severity == ERROR for f in findings),
         "warnings": sum(f.severity == WARNING for f in findings),

@@ -401,6 +401,7 @@ def diagnose(model: ReadingModel, *, top: int = 10, short_ratio: float = SHORT_R
     baseline = float(deviation @ deviation)
     if used.size == 0 or candidates.size == 0:
         return Diagnosis([], baseline, used, int(candidates.size), 0, True, short_ratio,
+                         solves={"adjoint": 0, "self_resistance": 0},
                          notes=notes + ["nothing to diagnose"])
 
     start = time.perf_counter()

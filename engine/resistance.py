@@ -41,6 +41,7 @@ import numpy as np
 import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components, dijkstra
 
+from ohmgraph.engine.checks import SMALLEST_RESISTANCE
 from ohmgraph.engine.contraction import contract
 from ohmgraph.engine.formulation import grounded_matrix, supernode_graph
 from ohmgraph.engine.kron import kron_reduction
@@ -48,7 +49,8 @@ from ohmgraph.engine.network import RESISTOR, Network
 from ohmgraph.engine.reach import FactorPairs
 from ohmgraph.engine.sketch import across_resistors, block_columns, kirchhoff_index
 from ohmgraph.engine.solvers import (AUTO_DIRECT_LIMIT, DEFAULT_RTOL, DIRECT_FALLBACK_LIMIT,
-                                     SOLVERS, DirectSolver, SolverFailed, make_solver)
+                                     SOLVERS, DirectSolver, SolverFailed, make_solver,
+                                     shortfall)
 
 # Unknowns up to which "auto" factorises (direct) once a query needs more than FEW_SOLVES
 # right-hand sides: one factorisation then pays off far beyond the single-solve threshold
@@ -129,7 +131,7 @@ class ResistanceSolver:
     Raises
     ------
     ValueError
-        On a negative or non-finite resistance.
+        On a negative or non-finite resistance, or one too small for a finite conductance.
     """
 
     def __init__(self, net: Network, method: str = "auto", rtol: float = DEFAULT_RTOL):
@@ -139,6 +141,9 @@ class ResistanceSolver:
         ohms = passive.value[resistors]
         if not np.all(np.isfinite(ohms)) or np.any(ohms < 0):
             raise ValueError("resistances must be finite and non-negative")
+        if np.any((ohms > 0) & (ohms < SMALLEST_RESISTANCE)):
+            raise ValueError(f"a resistance below {SMALLEST_RESISTANCE:.2g} ohm has no finite "
+                             "conductance; write 0 for an ideal connection")
         self.network = net
         self.contraction = contract(passive)
         self.graph = supernode_graph(passive, self.contraction)
@@ -243,8 +248,7 @@ class ResistanceSolver:
             self.stats.method = "direct"
             x, info = self.solver.solve(rhs)
         if not info.converged:
-            raise SolverFailed(f"{info.method} solve ended at relative residual "
-                               f"{info.relative_residual:.3g} (rtol {self.rtol:g})")
+            raise SolverFailed(shortfall(info, self.rtol))
         self.stats.solves += columns
         self.stats.solve_seconds += info.solve_seconds
         self.stats.max_iterations = max(self.stats.max_iterations, info.iterations)

@@ -17,7 +17,7 @@ from ohmgraph.engine.checks import CheckReport, check
 from ohmgraph.engine.formulation import ReducedSystem, assemble
 from ohmgraph.engine.network import CURRENT_SOURCE, RESISTOR, VOLTAGE_SOURCE, Network
 from ohmgraph.engine.recovery import branch_quantities, kcl_residual
-from ohmgraph.engine.solvers import DEFAULT_RTOL, SPDSolver, solve_with_fallback
+from ohmgraph.engine.solvers import DEFAULT_RTOL, SPDSolver, SolverFailed, solve_with_fallback
 
 
 class NetworkNotSolvable(ValueError):
@@ -167,7 +167,8 @@ def solve(net: Network, *, method: str = "auto", rtol: float = DEFAULT_RTOL,
     NetworkNotSolvable
         When the checks find an error.
     SolverFailed
-        When no solver reaches the accuracy asked for.
+        When no solver reaches the accuracy asked for, or the voltages, currents or powers
+        overflow double precision.
     """
     timings = {}
     start = time.perf_counter()
@@ -187,6 +188,10 @@ def solve(net: Network, *, method: str = "auto", rtol: float = DEFAULT_RTOL,
     start = time.perf_counter()
     voltage = system.node_voltages(x)
     branches = branch_quantities(net, report.contraction, voltage)
+    if not all(np.isfinite(values).all()
+               for values in (voltage, branches.current, branches.power)):
+        raise SolverFailed("the solution overflows double precision (IEEE 754 binary64): "
+                           "rescale the values, for example to other units")
     residual = np.abs(kcl_residual(net, branches.current))
     worst = int(np.argmax(residual)) if residual.size else 0
     timings["recover"] = time.perf_counter() - start

@@ -81,6 +81,17 @@ class SolveInfo:
     solve_seconds: float
 
 
+def shortfall(info: SolveInfo, rtol: float) -> str:
+    """Why a solve missed its target, in words: the residual reached, or the overflow that
+    left no finite residual (values beyond the double-precision range)."""
+    text = (f"{info.method} solve ended at relative residual {info.relative_residual:.3g} "
+            f"(rtol {rtol:g})")
+    if not np.isfinite(info.relative_residual):
+        text += ("; the values overflow double precision (IEEE 754 binary64): rescale them, "
+                 "for example to other units")
+    return text
+
+
 def relative_residual(matrix, x: np.ndarray, b: np.ndarray) -> float:
     """``max_j ||A x_j - b_j|| / ||b_j||`` over the columns (0 for a zero right-hand side)."""
     num = np.linalg.norm(matrix @ x - b, axis=0)
@@ -256,8 +267,7 @@ def solve_with_fallback(matrix, b, method: str = "auto", rtol: float = DEFAULT_R
         solver = DirectSolver(matrix, rtol)
         x, info = solver.solve(b)
     if not info.converged:
-        raise SolverFailed(f"{info.method} solve ended at relative residual "
-                           f"{info.relative_residual:.3g} (rtol {rtol:g})")
+        raise SolverFailed(shortfall(info, rtol))
     return x, info, solver, notes
 
 

@@ -14,6 +14,8 @@ import importlib.metadata
 import os
 import sys
 
+import numpy as np
+
 from ohmgraph.io.errors import EXIT_BAD_INPUT, EXIT_OK, UserError
 
 COMMANDS = ["check", "solve", "show", "generate", "demo", "compare", "diagnose", "tolerance",
@@ -36,10 +38,17 @@ def main(argv=None) -> int:
     """Run the command line; return the exit code."""
     args = build_parser().parse_args(argv)
     try:
-        return int(args.run(args))
+        # Overflow in extreme values shows in the residual checks and ends as a message and an
+        # exit code; NumPy's floating-point warnings would only add noise to standard error.
+        with np.errstate(all="ignore"):
+            return int(args.run(args))
     except UserError as error:
         print(f"ohmgraph {args.command}: error: {error}", file=sys.stderr)
         return error.exit_code
+    except MemoryError:
+        print(f"ohmgraph {args.command}: error: not enough memory for this input or size",
+              file=sys.stderr)
+        return EXIT_BAD_INPUT
     except KeyboardInterrupt:
         print("ohmgraph: interrupted", file=sys.stderr)
         return EXIT_BAD_INPUT
@@ -47,6 +56,12 @@ def main(argv=None) -> int:
         # The reader of our output (``| head``) went away: stop quietly, as other tools do.
         os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
         return EXIT_OK
+    except OSError as error:
+        # A file-system failure no reader caught, such as a name too long to look up.
+        where = f"{error.filename}: " if error.filename else ""
+        print(f"ohmgraph {args.command}: error: {where}cannot be used ({error.strerror or error})",
+              file=sys.stderr)
+        return EXIT_BAD_INPUT
 
 
 if __name__ == "__main__":

@@ -53,6 +53,8 @@ def _set_attrs(target, values: dict) -> None:
 def refuse_existing_group(path, name: str, force: bool) -> None:
     """For ``append``: the file must be readable HDF5; an existing group needs ``force``."""
     try:
+        if Path(path).is_dir():
+            raise OutputRefused(f"{path}: is a folder, not an HDF5 file")
         with h5py.File(path, "r") as h5:
             present = name in h5
     except FileNotFoundError:

@@ -19,7 +19,8 @@ ohms. An accuracy is ``±(P% of the reading + X)``, written ``P%``, ``X`` or ``P
 is accepted for the relative part. A global accuracy (``--accuracy``, repeatable) with a unit
 applies to readings of that kind; one without a unit to every kind. A row's own accuracy wins.
 
-Tolerance file (CSV): ``branch,tolerance`` with the tolerance in percent (``1%`` or ``1``).
+Tolerance file (CSV): ``branch,tolerance`` with the tolerance in percent (``1%`` or ``1``,
+below 100%).
 Every problem is reported as ``FILE:LINE: column 'x': message``.
 """
 
@@ -67,8 +68,10 @@ class Accuracy:
     kind: str | None
 
     def band(self, measured: np.ndarray) -> np.ndarray:
-        """Allowed deviation for the given readings."""
-        return self.percent / 100.0 * np.abs(measured) + self.absolute
+        """Allowed deviation for the given readings (the absolute part alone for an infinite
+        reading, whose percentage would allow any value)."""
+        finite = np.where(np.isfinite(measured), measured, 0.0)
+        return self.percent / 100.0 * np.abs(finite) + self.absolute
 
 
 def parse_quantity(text: str) -> Quantity:
@@ -152,7 +155,10 @@ def accuracy_rules(specs) -> dict:
 
 
 def parse_percent(text: str, what: str = "tolerance") -> float:
-    """A non-negative percentage (``1%`` or ``1``) as a fraction."""
+    """A percentage from 0 up to (not including) 100 (``1%`` or ``1``) as a fraction.
+
+    At 100% or more a resistor within tolerance could reach 0 ohm or a negative value.
+    """
     number = text.strip().removesuffix("%").strip()
     try:
         value = float(number)
@@ -160,6 +166,9 @@ def parse_percent(text: str, what: str = "tolerance") -> float:
         raise ValueError(f"{text.strip()!r} is not a percentage") from None
     if not np.isfinite(value) or value < 0:
         raise ValueError(f"{what} {text.strip()!r} must be a non-negative percentage")
+    if value >= 100:
+        raise ValueError(f"{what} {text.strip()!r} must be below 100% (a resistor within it "
+                         "could reach 0 ohm or less)")
     return value / 100.0
 
 
@@ -296,6 +305,10 @@ class _RowReader:
         if quantity.kind not in (None, kind):
             self.problems.add(line, f"column {column!r}: unit of {text!r} does not suit a "
                                     f"{kind} reading (expected {UNIT_NAME[kind]})")
+            return None
+        if not np.isfinite(quantity.value) and not (kind == "R" and quantity.value > 0):
+            self.problems.add(line, f"column {column!r}: {text!r} is not a finite number (only "
+                                    "a resistance reading may be inf, an open circuit)")
             return None
         return quantity.value
 

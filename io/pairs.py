@@ -43,17 +43,26 @@ def read_pairs(path, net: Network) -> tuple[np.ndarray, np.ndarray, np.ndarray, 
         the network does not have (message ``FILE:LINE: column 'b': ...``).
     """
     path = Path(path)
-    if not path.is_file():
+    if not path.exists():
         raise InputError(f"{path}: no such file")
+    if not path.is_file():
+        raise InputError(f"{path}: not a file")
     try:
-        table = pd.read_csv(path, dtype=str, keep_default_na=False, skip_blank_lines=False,
-                            skipinitialspace=True, encoding="utf-8")
+        # Read the header as a row, so a line with more fields than the header is an error
+        # (pandas would otherwise take its first field as a row label).
+        table = pd.read_csv(path, dtype=str, header=None, keep_default_na=False,
+                            skip_blank_lines=False, skipinitialspace=True, encoding="utf-8")
     except pd.errors.EmptyDataError:
         raise InputError(f"{path}: the file is empty (expected a header with columns a,b)") \
             from None
     except (pd.errors.ParserError, UnicodeDecodeError, ValueError) as error:
-        raise InputError(f"{path}: not a readable CSV file ({error})") from None
-    columns = {name.strip().lower(): name for name in table.columns}
+        raise InputError(f"{path}: not a readable CSV file ({str(error).strip()})") from None
+    table = table.iloc[HEADER_LINES:].set_axis(table.iloc[0].tolist(), axis=1)
+    names = [name.strip().lower() for name in table.columns]
+    repeated = [c for c in PAIR_COLUMNS if names.count(c) > 1]
+    if repeated:
+        raise InputError(f"{path}:1: the header repeats column {repeated[0]!r}")
+    columns = dict(zip(names, table.columns))
     missing = [c for c in PAIR_COLUMNS if c not in columns]
     if missing:
         raise InputError(f"{path}:1: missing column {missing[0]!r} (the header must name "

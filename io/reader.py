@@ -42,6 +42,9 @@ EDGE_LIST_FIELDS = ("from", "to", "value")
 _UNUSED_DELIMITER = "\x1f"
 # Accepted kind spellings after trimming and upper-casing; an empty field means a resistor.
 KIND_SPELLINGS = {**KIND_CODE, "": RESISTOR}
+# Labels and names are stored as HDF5 text, which ends at a NUL character; a label holding one
+# would come back as another label.
+NUL = "\x00"
 
 
 @dataclass(frozen=True)
@@ -196,6 +199,9 @@ def _convert(table: pa.Table) -> _Columns:
     for labels in (from_labels, to_labels):
         if pc.any(pc.equal(pc.utf8_length(labels), 0)).as_py():
             raise _Rejected
+    for column in ("from", "to", "name"):
+        if column in table.column_names and pc.any(pc.match_substring(table[column], NUL)).as_py():
+            raise _Rejected
     value = pc.cast(trimmed("value"), pa.float64()).to_numpy(zero_copy_only=False)
     if "kind" in table.column_names:
         spellings = pa.array(list(KIND_SPELLINGS))
@@ -318,6 +324,11 @@ class _ColumnsBuilder:
         for column in ("from", "to"):
             if not fields[column]:
                 problems.add(line, f"column {column!r}: empty node label")
+                ok = False
+        for column in ("from", "to", "name"):
+            if NUL in fields.get(column, ""):
+                problems.add(line, f"column {column!r}: holds a NUL character (not allowed "
+                                   "in labels and names)")
                 ok = False
         kind = KIND_SPELLINGS.get(fields.get("kind", "").upper())
         if kind is None:

@@ -53,6 +53,10 @@ REQUIRED_ATTRIBUTES = (
     "reference", "method", "rtol", "iterations", "relative_residual", "kcl_max_residual",
     "kcl_worst_node", "power_balance", "power_dissipated",
 )
+TEXT_ATTRIBUTES = ("reference", "method", "kcl_worst_node")
+INDEX_DATASETS = ("branches/from", "branches/to")
+NUMBER_DATASETS = ("nodes/voltage", "branches/value", "branches/current", "branches/voltage",
+                   "branches/power")
 UNITS = {
     "nodes/voltage": "V",
     "branches/value": "ohm|V|A by kind",
@@ -344,12 +348,30 @@ def _read_findings(h5: h5py.File, path) -> tuple[list, dict]:
 
 
 def _open(path) -> h5py.File:
-    if not Path(path).is_file():
+    if not Path(path).exists():
         raise InputError(f"{path}: no such file")
+    if not Path(path).is_file():
+        raise InputError(f"{path}: not a file")
     try:
         return h5py.File(path, "r")
     except OSError as error:
         raise InputError(f"{path}: not an HDF5 file ({error})") from error
+
+
+def _is_number(value) -> bool:
+    return isinstance(value, (int, float)) and not isinstance(value, bool)
+
+
+def _check_types(path, attrs: dict) -> None:
+    """Raise :class:`InputError` if a required root attribute has the wrong type."""
+    for name in REQUIRED_ATTRIBUTES:
+        text = name in TEXT_ATTRIBUTES
+        if not (isinstance(attrs[name], str) if text else _is_number(attrs[name])):
+            raise InputError(f"{path}: root attribute {name!r} is {attrs[name]!r}, expected "
+                             + ("text" if text else "a number"))
+    notes = attrs.get("notes", [])
+    if not (isinstance(notes, list) and all(isinstance(note, str) for note in notes)):
+        raise InputError(f"{path}: root attribute 'notes' is {notes!r}, expected a list of text")
 
 
 def read_solution(path) -> StoredSolution:
@@ -372,10 +394,19 @@ def read_solution(path) -> StoredSolution:
         if absent:
             raise InputError(f"{path}: not an ohmgraph solution file: missing root attribute "
                              f"{absent[0]!r}")
+        _check_types(path, attrs)
         data = {name: _dataset(h5, name) for name in REQUIRED_DATASETS}
         findings, check_summary = _read_findings(h5, path)
-        timings = ({stage: float(s) for stage, s in h5["timings"].attrs.items() if stage != "units"}
-                   if "timings" in h5 else {})
+        timings = ({stage: _plain(seconds) for stage, seconds in h5["timings"].attrs.items()
+                    if stage != "units"} if "timings" in h5 else {})
+    for names, kinds, what in ((INDEX_DATASETS, "iu", "integer"),
+                               (NUMBER_DATASETS, "iuf", "number")):
+        for name in names:
+            if data[name].dtype.kind not in kinds:
+                raise InputError(f"{path}: /{name} holds {data[name].dtype} values, "
+                                 f"expected {what}s")
+    if not all(_is_number(seconds) for seconds in timings.values()):
+        raise InputError(f"{path}: /timings has an attribute that is not a number")
     labels = data["nodes/label"]
     reference = np.flatnonzero(labels == attrs["reference"])
     if reference.size == 0:

@@ -15,7 +15,7 @@ import pandas as pd
 from ohmgraph.engine.measurements import ReadingModel, build_model, compare
 from ohmgraph.engine.solve import NetworkNotSolvable
 from ohmgraph.engine.solvers import DEFAULT_RTOL, SOLVERS, SolverFailed
-from ohmgraph.io.atomic import atomic_output, refuse_existing
+from ohmgraph.io.atomic import atomic_output, refuse_existing, refuse_input
 from ohmgraph.io.commands.argtypes import positive_float
 from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, InputError, SolverError, UserError
 from ohmgraph.io.jsonout import dumps
@@ -67,6 +67,8 @@ def check_output(args, suffixes=OUTPUT_SUFFIXES) -> None:
     suffix = Path(args.output).suffix.lower()
     if suffix not in suffixes:
         raise InputError(f"-o {args.output}: the name must end in {', '.join(suffixes)}")
+    refuse_input(args.output, (args.network, getattr(args, "measurements", None),
+                               getattr(args, "tolerances", None)))
     if args.append:
         if suffix not in HDF5_SUFFIXES:
             raise InputError(f"-o {args.output}: --append needs an HDF5 file (.h5, .hdf5)")

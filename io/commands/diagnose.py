@@ -98,7 +98,8 @@ def run(args) -> int:
     rules = accuracy_rules(args.accuracy)
     net = read_network(args.network, ground=args.ground)
     table = read_measurements(args.measurements, net, rules)
-    zero = np.flatnonzero(table.readings.band <= 0)
+    # An infinite (open-circuit) resistance reading takes no part in the fit; its band may be 0.
+    zero = np.flatnonzero((table.readings.band <= 0) & np.isfinite(table.readings.measured))
     if zero.size:
         raise InputError(f"{table.path}:{table.lines[zero[0]]}: column 'accuracy': the allowed "
                          "band is 0; diagnose weighs readings by their accuracy, which must be "

@@ -15,7 +15,7 @@ from tqdm import tqdm
 
 from ohmgraph.engine.resistance import ResistanceSolver
 from ohmgraph.engine.solvers import DEFAULT_RTOL, SOLVERS, SolverFailed
-from ohmgraph.io.atomic import refuse_existing
+from ohmgraph.io.atomic import refuse_existing, refuse_input
 from ohmgraph.io.commands.argtypes import positive_float, whole_number
 from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, InputError, SolverError
 from ohmgraph.io.jsonout import dumps
@@ -80,6 +80,7 @@ def run(args) -> int:
             raise InputError("-o writes a table: use it with --pairs, --to-reference or "
                              "--across-resistors")
         check_table_path(args.output)
+        refuse_input(args.output, (args.network, args.pairs))
         refuse_existing(args.output, args.force)
     net = read_network(args.network, ground=args.ground)
     try:

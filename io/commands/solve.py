@@ -8,7 +8,7 @@ from ohmgraph.engine.checks import check
 from ohmgraph.engine.solve import solve
 from ohmgraph.engine.solvers import DEFAULT_RTOL, SOLVERS, SolverFailed
 from ohmgraph.io.commands.argtypes import positive_float
-from ohmgraph.io.atomic import refuse_existing
+from ohmgraph.io.atomic import refuse_existing, refuse_input
 from ohmgraph.io.check_view import format_report, report_to_dict
 from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, SolverError
 from ohmgraph.io.jsonout import dumps
@@ -43,6 +43,7 @@ def register(subparsers) -> None:
 
 def run(args) -> int:
     """Run ``solve``; return the exit code (see :mod:`ohmgraph.io.errors`)."""
+    refuse_input(args.output, [args.network])
     refuse_existing(args.output, args.force)
     start = time.perf_counter()
     net = read_network(args.network, ground=args.ground)
