@@ -57,6 +57,8 @@ def read_pairs(path, net: Network) -> tuple[np.ndarray, np.ndarray, np.ndarray, 
             from None
     except (pd.errors.ParserError, UnicodeDecodeError, ValueError) as error:
         raise InputError(f"{path}: not a readable CSV file ({str(error).strip()})") from None
+    except (OSError, EOFError) as error:        # an unreadable or truncated .gz file
+        raise InputError(f"{path}: cannot be read ({error})") from None
     table = table.iloc[HEADER_LINES:].set_axis(table.iloc[0].tolist(), axis=1)
     names = [name.strip().lower() for name in table.columns]
     repeated = [c for c in PAIR_COLUMNS if names.count(c) > 1]
