@@ -65,7 +65,7 @@ def register(subparsers) -> None:
                         help="--across-resistors: sketch size K (overrides --epsilon)")
     parser.add_argument("--samples", type=whole_number(2), default=200,
                         help="--kirchhoff: Hutchinson samples (default 200)")
-    parser.add_argument("--seed", type=int, default=0, help="random seed (default 0)")
+    parser.add_argument("--seed", type=whole_number(0), default=0, help="random seed (default 0)")
     parser.add_argument("-o", "--output", metavar="OUT.csv|OUT.h5",
                         help="write the table (--pairs, --to-reference, --across-resistors)")
     parser.add_argument("--force", action="store_true", help="overwrite OUT if it exists")

@@ -43,7 +43,8 @@ def register(subparsers) -> None:
                         help="largest contributors listed per node (default 5)")
     parser.add_argument("--samples", type=whole_number(0), default=0, metavar="N",
                         help="Monte Carlo samples (values uniform within tolerance; default 0)")
-    parser.add_argument("--seed", type=int, default=0, help="Monte Carlo seed (default 0)")
+    parser.add_argument("--seed", type=whole_number(0), default=0,
+                        help="Monte Carlo seed (default 0)")
     add_output_arguments(parser, (".h5", ".hdf5"))
     parser.set_defaults(run=run, command_group="tolerance")
 
