@@ -161,12 +161,17 @@ def _format(columns: dict, summary: dict, failures_only: bool) -> str:
     return "\n".join(lines)
 
 
-def run(args) -> int:
-    """Run ``compare``; exit 0 when every reading passes, 1 when any fails."""
+def read_inputs(args):
+    """Refuse a bad output first, then read the network and its measurement table."""
     check_output(args)
     rules = accuracy_rules(args.accuracy)
     net = read_network(args.network, ground=args.ground)
-    table = read_measurements(args.measurements, net, rules)
+    return net, read_measurements(args.measurements, net, rules)
+
+
+def run(args) -> int:
+    """Run ``compare``; exit 0 when every reading passes, 1 when any fails."""
+    net, table = read_inputs(args)
     model = model_readings(args, net, table.readings)
     result = compare(model)
     columns = reading_columns(table, model, result)

@@ -8,13 +8,11 @@ import numpy as np
 from ohmgraph.engine.diagnosis import SHORT_RATIO, diagnose
 from ohmgraph.engine.measurements import compare
 from ohmgraph.io.commands.compare import (add_network_arguments, add_output_arguments,
-                                          add_reading_arguments, check_output, model_readings,
+                                          add_reading_arguments, model_readings, read_inputs,
                                           write_table)
 from ohmgraph.io.errors import EXIT_OK, InputError
 from ohmgraph.io.jsonout import dumps
 from ohmgraph.io.commands.argtypes import fraction, whole_number
-from ohmgraph.io.measurement_table import accuracy_rules, read_measurements
-from ohmgraph.io.reader import read_network
 
 
 def register(subparsers) -> None:
@@ -94,10 +92,7 @@ def _format(net, result, failed: int, readings: int) -> str:
 
 def run(args) -> int:
     """Run ``diagnose``; exit 0 once a diagnosis is printed."""
-    check_output(args)
-    rules = accuracy_rules(args.accuracy)
-    net = read_network(args.network, ground=args.ground)
-    table = read_measurements(args.measurements, net, rules)
+    net, table = read_inputs(args)
     # An infinite (open-circuit) resistance reading takes no part in the fit; its band may be 0.
     zero = np.flatnonzero((table.readings.band <= 0) & np.isfinite(table.readings.measured))
     if zero.size:
