@@ -20,10 +20,10 @@ import numpy as np
 import pytest
 
 from ohmgraph.datasets.generators import grid2d
-from ohmgraph.engine.diagnosis import diagnose
-from ohmgraph.engine.measurements import Readings, build_model, compare
+from ohmgraph.engine.readings.diagnosis import diagnose
+from ohmgraph.engine.readings.model import Readings, build_model, compare
 from ohmgraph.engine.network import CURRENT_SOURCE, RESISTOR, Network
-from ohmgraph.engine.sensitivity import resistor_candidates
+from ohmgraph.engine.readings.sensitivity import resistor_candidates
 
 SIZE = int(os.environ.get("OHMGRAPH_BENCH_SIZE", "316"))
 TRIALS = int(os.environ.get("OHMGRAPH_BENCH_TRIALS", "200"))

@@ -5,20 +5,15 @@ solvers, recovery of branch quantities with residual checks, effective-resistanc
 readings against the model (comparison, adjoint sensitivities, single-fault diagnosis).
 """
 
-from ohmgraph.engine.checks import CheckReport, Finding, check
-from ohmgraph.engine.network import (CURRENT_SOURCE, KIND_LETTERS, RESISTOR, VOLTAGE_SOURCE,
-                                     Network)
-from ohmgraph.engine.solve import NetworkNotSolvable, Solution, solve
-from ohmgraph.engine.solvers import (DEFAULT_RTOL, SolveInfo, SolverFailed, SPDSolver,
-                                     make_solver, solve_spd)
-from ohmgraph.engine.measurements import Comparison, ReadingModel, Readings, build_model, compare
-from ohmgraph.engine.sensitivity import (MonteCarloSpread, ToleranceSpread,
-                                         conductance_sensitivity, monte_carlo,
-                                         resistance_sensitivity, tolerance_spread)
-from ohmgraph.engine.diagnosis import Diagnosis, Hypothesis, diagnose
-from ohmgraph.engine.kron import kron_reduction, reduced_resistances
-from ohmgraph.engine.resistance import PairResistances, ResistanceSolver
-from ohmgraph.engine.sketch import KirchhoffIndex, ResistorResistances
+from .checks import CheckReport, Finding, check
+from .network import CURRENT_SOURCE, KIND_LETTERS, RESISTOR, VOLTAGE_SOURCE, Network
+from .readings import (Comparison, Diagnosis, Hypothesis, MonteCarloSpread, ReadingModel,
+                       Readings, ToleranceSpread, build_model, compare, conductance_sensitivity,
+                       diagnose, monte_carlo, resistance_sensitivity, tolerance_spread)
+from .resistance import (KirchhoffIndex, PairResistances, ResistanceSolver, ResistorResistances,
+                         kron_reduction, reduced_resistances)
+from .solve import NetworkNotSolvable, Solution, solve
+from .solvers import DEFAULT_RTOL, SolveInfo, SolverFailed, SPDSolver, make_solver, solve_spd
 
 __all__ = [
     "Network", "RESISTOR", "VOLTAGE_SOURCE", "CURRENT_SOURCE", "KIND_LETTERS",

@@ -23,8 +23,8 @@ import numpy as np
 import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components
 
-from ohmgraph.engine.contraction import Contraction, contract
-from ohmgraph.engine.network import CURRENT_SOURCE, RESISTOR, Network
+from .contraction import Contraction, contract
+from .network import CURRENT_SOURCE, RESISTOR, Network
 
 ERROR, WARNING, INFO = "error", "warning", "info"
 CONDUCTANCE_SPREAD_LIMIT = 1e12

@@ -25,7 +25,7 @@ from dataclasses import dataclass
 import numba
 import numpy as np
 
-from ohmgraph.engine.network import RESISTOR, VOLTAGE_SOURCE, Network
+from .network import RESISTOR, VOLTAGE_SOURCE, Network
 
 
 @numba.njit(cache=True)

@@ -29,8 +29,8 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.sparse as sp
 
-from ohmgraph.engine.contraction import Contraction
-from ohmgraph.engine.network import CURRENT_SOURCE, RESISTOR, Network
+from .contraction import Contraction
+from .network import CURRENT_SOURCE, RESISTOR, Network
 
 
 @dataclass(frozen=True)

@@ -24,8 +24,8 @@ import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 from scipy.sparse.csgraph import breadth_first_order
 
-from ohmgraph.engine.contraction import Contraction
-from ohmgraph.engine.network import CURRENT_SOURCE, RESISTOR, Network
+from .contraction import Contraction
+from .network import CURRENT_SOURCE, RESISTOR, Network
 
 
 @numba.njit(cache=True)

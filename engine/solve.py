@@ -13,11 +13,11 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ohmgraph.engine.checks import CheckReport, check
-from ohmgraph.engine.formulation import ReducedSystem, assemble
-from ohmgraph.engine.network import CURRENT_SOURCE, RESISTOR, VOLTAGE_SOURCE, Network
-from ohmgraph.engine.recovery import branch_quantities, kcl_residual
-from ohmgraph.engine.solvers import DEFAULT_RTOL, SPDSolver, SolverFailed, solve_with_fallback
+from .checks import CheckReport, check
+from .formulation import ReducedSystem, assemble
+from .network import CURRENT_SOURCE, RESISTOR, VOLTAGE_SOURCE, Network
+from .recovery import branch_quantities, kcl_residual
+from .solvers import DEFAULT_RTOL, SPDSolver, SolverFailed, solve_with_fallback
 
 
 class NetworkNotSolvable(ValueError):

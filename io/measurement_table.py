@@ -34,7 +34,7 @@ from pathlib import Path
 
 import numpy as np
 
-from ohmgraph.engine.measurements import READING_KINDS, Readings
+from ohmgraph.engine.readings.model import READING_KINDS, Readings
 from ohmgraph.engine.network import RESISTOR, Network
 from ohmgraph.io.errors import InputError, ProblemList
 

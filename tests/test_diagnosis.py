@@ -6,10 +6,10 @@ import networkx as nx
 import numpy as np
 import pytest
 
-from ohmgraph.engine.diagnosis import diagnose, predicted_change
-from ohmgraph.engine.measurements import Readings, build_model, compare
+from ohmgraph.engine.readings.diagnosis import diagnose, predicted_change
+from ohmgraph.engine.readings.model import Readings, build_model, compare
 from ohmgraph.engine.network import CURRENT_SOURCE, RESISTOR, VOLTAGE_SOURCE, Network
-from ohmgraph.engine.sensitivity import resistor_candidates
+from ohmgraph.engine.readings.sensitivity import resistor_candidates
 from ohmgraph.engine.solve import NetworkNotSolvable
 
 

@@ -6,7 +6,7 @@ import networkx as nx
 import numpy as np
 import pytest
 
-from ohmgraph.engine.measurements import Readings, build_model, compare
+from ohmgraph.engine.readings.model import Readings, build_model, compare
 from ohmgraph.engine.network import Network
 from ohmgraph.io.errors import InputError
 from ohmgraph.io.measurement_table import (accuracy_rules, parse_accuracy, parse_quantity,

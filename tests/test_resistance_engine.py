@@ -9,9 +9,9 @@ import numpy as np
 import pytest
 
 from ohmgraph.datasets.generators import grid2d
-from ohmgraph.engine.kron import kron_reduction, reduced_resistances
+from ohmgraph.engine.resistance.kron import kron_reduction, reduced_resistances
 from ohmgraph.engine.network import Network
-from ohmgraph.engine.reach import pair_energies_reference
+from ohmgraph.engine.resistance.reach import pair_energies_reference
 from ohmgraph.engine.resistance import ResistanceSolver
 
 
@@ -303,7 +303,7 @@ def test_exact_across_resistors_on_a_small_torus_is_uniform():
 
 
 def test_auto_sets_the_solver_up_for_the_query(monkeypatch):
-    import ohmgraph.engine.resistance as resistance
+    import ohmgraph.engine.resistance.pairs as resistance
 
     monkeypatch.setattr(resistance, "AUTO_DIRECT_LIMIT", 100)    # pretend the lattice is large
     net = grid2d(20, 20, 1.0)

@@ -5,9 +5,9 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from ohmgraph.engine.measurements import Readings, build_model
+from ohmgraph.engine.readings.model import Readings, build_model
 from ohmgraph.engine.network import CURRENT_SOURCE, RESISTOR, VOLTAGE_SOURCE, Network
-from ohmgraph.engine.sensitivity import (monte_carlo, resistance_sensitivity,
+from ohmgraph.engine.readings.sensitivity import (monte_carlo, resistance_sensitivity,
                                          resistor_candidates, tolerance_spread)
 
 

@@ -12,7 +12,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from ohmgraph.engine.measurements import ReadingModel, build_model, compare
+from ohmgraph.engine.readings.model import ReadingModel, build_model, compare
 from ohmgraph.engine.solve import NetworkNotSolvable
 from ohmgraph.engine.solvers import DEFAULT_RTOL, SOLVERS, SolverFailed
 from ohmgraph.io.atomic import atomic_output, refuse_existing, refuse_input

@@ -5,8 +5,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from ohmgraph.engine.diagnosis import SHORT_RATIO, diagnose
-from ohmgraph.engine.measurements import compare
+from ohmgraph.engine.readings.diagnosis import SHORT_RATIO, diagnose
+from ohmgraph.engine.readings.model import compare
 from ohmgraph.io.commands.compare import (add_network_arguments, add_output_arguments,
                                           add_reading_arguments, model_readings, read_inputs,
                                           write_table)

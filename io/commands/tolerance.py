@@ -7,8 +7,8 @@ import argparse
 import numpy as np
 from tqdm import tqdm
 
-from ohmgraph.engine.measurements import Readings
-from ohmgraph.engine.sensitivity import monte_carlo, tolerance_spread
+from ohmgraph.engine.readings.model import Readings
+from ohmgraph.engine.readings.sensitivity import monte_carlo, tolerance_spread
 from ohmgraph.io.commands.compare import (add_network_arguments, add_output_arguments,
                                           check_output, model_readings, write_table)
 from ohmgraph.io.commands.argtypes import whole_number

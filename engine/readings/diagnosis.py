@@ -10,7 +10,7 @@ the Sherman–Morrison formula (Sherman & Morrison, Ann. Math. Statist. 21(1), 1
 so every reading changes exactly by ``f(dg) q_ik`` with ``f(dg) = dg / (1 + dg z_k)``,
 ``z_k = c_k^T A^{-1} c_k`` (the resistor's own effective resistance in the grounded system) and
 ``q_ik = dr_i/dg_k`` the first-order sensitivity, which one adjoint solve per reading gives for
-all resistors at once (:func:`ohmgraph.engine.sensitivity.conductance_sensitivity`). Resistance
+all resistors at once (:func:`ohmgraph.engine.readings.sensitivity.conductance_sensitivity`). Resistance
 readings live on the passive network, which has its own ``z_k``.
 
 Each hypothesis is scored by weighted least squares against the readings' accuracy bands,
@@ -39,9 +39,9 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ohmgraph.engine.measurements import ReadingModel
-from ohmgraph.engine.sensitivity import (conductance_sensitivity, grounded_self_resistance,
-                                         resistor_candidates)
+from .model import ReadingModel
+from .sensitivity import (conductance_sensitivity, grounded_self_resistance,
+                          resistor_candidates)
 
 SHORT_RATIO = 1e-6
 KIND_MARGIN = 1.0

@@ -18,7 +18,7 @@ import numpy as np
 import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components
 
-from ohmgraph.engine.solvers import DEFAULT_RTOL, make_solver
+from ..solvers import DEFAULT_RTOL, make_solver
 
 
 def kron_reduction(laplacian, terminals, method: str = "auto",

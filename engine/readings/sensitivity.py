@@ -9,7 +9,7 @@ reading gives its derivative with respect to every resistor at once::
     dr/dg_k = -(c_k^T lambda)^2                   (two-point resistance, passive network)
 
 with ``v_k`` the resistor's branch voltage and ``beta_k`` its coefficient in a current reading
-(:mod:`ohmgraph.engine.measurements`). For a resistance, ``dr/dR_k = -(dr/dg_k) / R_k^2``.
+(:mod:`ohmgraph.engine.readings.model`). For a resistance, ``dr/dR_k = -(dr/dg_k) / R_k^2``.
 
 The spread of a reading from component tolerances ``t_k`` (fractions of ``R_k``) to first order
 is the worst case ``sum_k |dr/dR_k| t_k R_k`` and the root-sum-square ``sqrt(sum_k (dr/dR_k t_k
@@ -25,10 +25,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ohmgraph.engine.formulation import assemble
-from ohmgraph.engine.measurements import POWERED, ReadingModel, ReadingSystem
-from ohmgraph.engine.network import RESISTOR, Network
-from ohmgraph.engine.solvers import solve_with_fallback
+from ..formulation import assemble
+from ..network import RESISTOR, Network
+from ..solvers import solve_with_fallback
+from .model import POWERED, ReadingModel, ReadingSystem
 
 SELF_RESISTANCE_BATCH = 64
 

@@ -41,16 +41,15 @@ import numpy as np
 import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components, dijkstra
 
-from ohmgraph.engine.checks import SMALLEST_RESISTANCE
-from ohmgraph.engine.contraction import contract
-from ohmgraph.engine.formulation import grounded_matrix, supernode_graph
-from ohmgraph.engine.kron import kron_reduction
-from ohmgraph.engine.network import RESISTOR, Network
-from ohmgraph.engine.reach import FactorPairs
-from ohmgraph.engine.sketch import across_resistors, block_columns, kirchhoff_index
-from ohmgraph.engine.solvers import (AUTO_DIRECT_LIMIT, DEFAULT_RTOL, DIRECT_FALLBACK_LIMIT,
-                                     SOLVERS, DirectSolver, SolverFailed, make_solver,
-                                     shortfall)
+from ..checks import SMALLEST_RESISTANCE
+from ..contraction import contract
+from ..formulation import grounded_matrix, supernode_graph
+from ..network import RESISTOR, Network
+from ..solvers import (AUTO_DIRECT_LIMIT, DEFAULT_RTOL, DIRECT_FALLBACK_LIMIT, SOLVERS,
+                       DirectSolver, SolverFailed, make_solver, shortfall)
+from .kron import kron_reduction
+from .reach import FactorPairs
+from .sketch import across_resistors, block_columns, kirchhoff_index
 
 # Unknowns up to which "auto" factorises (direct) once a query needs more than FEW_SOLVES
 # right-hand sides: one factorisation then pays off far beyond the single-solve threshold
@@ -60,7 +59,7 @@ FEW_SOLVES = 2
 # Terminal reduction in pairs(): used when there are at most this many distinct terminals and
 # fewer terminals than distinct pairs (one solve per terminal instead of one per pair).
 KRON_TERMINAL_LIMIT = 2000
-# A sparse forward solve from the factor (engine/reach.py) costs at most about this fraction of a
+# A sparse forward solve from the factor (engine/resistance/reach.py) costs at most about this fraction of a
 # full solve (measured 0.06-0.3 on 10^5- to 10^6-node lattices); terminal reduction must beat it.
 REACH_COST = 0.3
 # Pairs per call of the sparse-forward-solve kernel (progress is reported between calls).
@@ -83,7 +82,7 @@ class PairResistances:
         Relative error bound of each value (see the module notes); 0 where the value is exact.
     method : str
         ``"pair solves"`` (one right-hand side per distinct pair), ``"factor reach"`` (one
-        sparse forward solve per distinct pair, :mod:`ohmgraph.engine.reach`), ``"terminal
+        sparse forward solve per distinct pair, :mod:`ohmgraph.engine.resistance.reach`), ``"terminal
         reduction"`` (one solve per distinct terminal) or ``"trivial"`` (nothing to solve).
     solves : int
         Right-hand sides solved (full or sparse forward solves).
@@ -355,7 +354,7 @@ class ResistanceSolver:
         return values, bounds
 
     def factor_pairs(self):
-        """The sparse-forward-solve shortcut (:class:`~ohmgraph.engine.reach.FactorPairs`), or None.
+        """The sparse-forward-solve shortcut (:class:`~ohmgraph.engine.resistance.reach.FactorPairs`), or None.
 
         Available when the shared solver is a direct factorisation in LDLᵀ form. On first use it
         is checked against a full solve of one pair, and the factorisation's relative residual on
@@ -386,7 +385,7 @@ class ResistanceSolver:
         return reach
 
     def _pairs_by_reach(self, reach, keys, progress) -> tuple[np.ndarray, np.ndarray]:
-        """Each distinct pair by one sparse forward solve from the factor (engine/reach.py).
+        """Each distinct pair by one sparse forward solve from the factor (engine/resistance/reach.py).
 
         Accuracy is estimated, not bounded: the first-order bound ``||r||_1 sqrt(D / R)`` with the
         factorisation's relative residual measured on the check pair standing in for ``||r||_1``.
@@ -462,12 +461,12 @@ class ResistanceSolver:
     def across_resistors(self, exact=None, epsilon: float = 0.1, k=None, seed: int = 0,
                          progress=None):
         """Effective resistance across every resistor (see
-        :func:`ohmgraph.engine.sketch.across_resistors`)."""
+        :func:`ohmgraph.engine.resistance.sketch.across_resistors`)."""
         return across_resistors(self, exact, epsilon, k, seed, progress)
 
     def kirchhoff_index(self, exact=None, samples: int = 200, seed: int = 0,
                         confidence: float = 0.95, progress=None):
-        """The Kirchhoff index (see :func:`ohmgraph.engine.sketch.kirchhoff_index`)."""
+        """The Kirchhoff index (see :func:`ohmgraph.engine.resistance.sketch.kirchhoff_index`)."""
         return kirchhoff_index(self, exact, samples, seed, confidence, progress)
 
     def kron_reduction(self, nodes) -> tuple[np.ndarray, np.ndarray]:
@@ -478,7 +477,7 @@ class ResistanceSolver:
         supernodes : ndarray of int64
             The distinct terminal supernodes, in order of first appearance in ``nodes``.
         reduced : ndarray, shape (t, t)
-            Their Kron-reduced Laplacian (:func:`ohmgraph.engine.kron.kron_reduction`).
+            Their Kron-reduced Laplacian (:func:`ohmgraph.engine.resistance.kron.kron_reduction`).
         """
         supers = self.supernode[np.asarray(nodes, np.int64).reshape(-1)]
         _, first = np.unique(supers, return_index=True)

@@ -20,8 +20,8 @@ of nodes on its ``from`` side, minus the net current leaving that set through ev
 (a cut set; Chua, Desoer & Kuh, *Linear and Nonlinear Circuits*, 1987, ch. 10).
 
 The adjoint solution ``lambda = A^{-1} w`` of a reading (one solve per reading, the matrix being
-symmetric) gives its sensitivity to every resistor at once (:mod:`ohmgraph.engine.sensitivity`)
-and the single-fault predictions of :mod:`ohmgraph.engine.diagnosis`.
+symmetric) gives its sensitivity to every resistor at once (:mod:`ohmgraph.engine.readings.sensitivity`)
+and the single-fault predictions of :mod:`ohmgraph.engine.readings.diagnosis`.
 """
 
 from __future__ import annotations
@@ -33,11 +33,11 @@ import numpy as np
 import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components
 
-from ohmgraph.engine.checks import check
-from ohmgraph.engine.formulation import ReducedSystem, assemble
-from ohmgraph.engine.network import CURRENT_SOURCE, RESISTOR, Network
-from ohmgraph.engine.solve import NetworkNotSolvable, Solution, solve
-from ohmgraph.engine.solvers import DEFAULT_RTOL, SolveInfo, SPDSolver, make_solver
+from ..checks import check
+from ..formulation import ReducedSystem, assemble
+from ..network import CURRENT_SOURCE, RESISTOR, Network
+from ..solve import NetworkNotSolvable, Solution, solve
+from ..solvers import DEFAULT_RTOL, SolveInfo, SPDSolver, make_solver
 
 READING_KINDS = ("V", "R", "I")
 POWERED, PASSIVE = "powered", "passive"

@@ -1,0 +1,125 @@
+"""The solver interface: set up once for a symmetric positive-definite matrix, solve many
+right-hand sides.
+
+A solver is built once for a matrix (factorisation or multigrid hierarchy) and then solves any
+number of right-hand sides, one vector or a block of columns, returning the solution and a
+:class:`SolveInfo` with what it did. Back ends live one per module beside this one and register
+in :data:`ohmgraph.engine.solvers.SOLVERS`.
+
+Every back end sets up and solves with the BLAS limited to one thread (threadpoolctl). Conjugate
+gradient calls BLAS dot products on vectors of 10^4 to 10^6 entries; OpenBLAS splits each of them
+over threads, and on two busy cores that made whole solves 3 to 20 times slower (the core type
+OpenBLAS picks made no difference); SuperLU's block solves gain too. Numbers in
+``benchmarks/README.md``.
+"""
+
+from __future__ import annotations
+
+import functools
+import time
+from abc import ABC, abstractmethod
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.sparse as sp
+from threadpoolctl import ThreadpoolController
+
+DEFAULT_RTOL = 1e-10
+DIRECT_RESIDUAL_LIMIT = 1e-8
+
+
+@functools.cache
+def _blas_threads():
+    """One controller of the loaded BLAS libraries (cheap to apply once built)."""
+    return ThreadpoolController()
+
+
+def single_threaded_blas():
+    """Context manager that limits every loaded BLAS library to one thread."""
+    return _blas_threads().limit(limits=1, user_api="blas")
+
+
+class SolverFailed(RuntimeError):
+    """The solve did not reach the requested accuracy and no fallback applied."""
+
+
+@dataclass(frozen=True)
+class SolveInfo:
+    """What one solve did.
+
+    Attributes
+    ----------
+    method : str
+        ``"direct"`` or ``"amg-cg"``.
+    iterations : int
+        Conjugate-gradient iterations (the largest over a block); 0 for ``direct``.
+    relative_residual : float
+        ``max_j ||A x_j - b_j|| / ||b_j||`` measured after the solve.
+    converged : bool
+        ``relative_residual <= rtol`` (always True for ``direct`` unless the matrix is singular).
+    setup_seconds, solve_seconds : float
+    """
+
+    method: str
+    iterations: int
+    relative_residual: float
+    converged: bool
+    setup_seconds: float
+    solve_seconds: float
+
+
+def shortfall(info: SolveInfo, rtol: float) -> str:
+    """Why a solve missed its target, in words: the residual reached, or the overflow that
+    left no finite residual (values beyond the double-precision range)."""
+    text = (f"{info.method} solve ended at relative residual {info.relative_residual:.3g} "
+            f"(rtol {rtol:g})")
+    if not np.isfinite(info.relative_residual):
+        text += ("; the values overflow double precision (IEEE 754 binary64): rescale them, "
+                 "for example to other units")
+    return text
+
+
+def relative_residual(matrix, x: np.ndarray, b: np.ndarray) -> float:
+    """``max_j ||A x_j - b_j|| / ||b_j||`` over the columns (0 for a zero right-hand side)."""
+    num = np.linalg.norm(matrix @ x - b, axis=0)
+    den = np.linalg.norm(b, axis=0)
+    ratio = np.where(den > 0, num / np.where(den > 0, den, 1.0), num)
+    return float(np.max(ratio)) if np.size(ratio) else 0.0
+
+
+class SPDSolver(ABC):
+    """Set up once for a symmetric positive-definite matrix, solve many right-hand sides."""
+
+    method: str = ""
+
+    def __init__(self, matrix, rtol: float = DEFAULT_RTOL):
+        self.matrix = sp.csr_matrix(matrix)
+        self.rtol = float(rtol)
+        start = time.perf_counter()
+        with single_threaded_blas():
+            self._setup()
+        self.setup_seconds = time.perf_counter() - start
+
+    @abstractmethod
+    def _setup(self) -> None:
+        """Factorise or build the preconditioner."""
+
+    @abstractmethod
+    def _solve(self, b: np.ndarray) -> tuple[np.ndarray, int]:
+        """Solve for a 1-D or 2-D right-hand side; return the solution and iteration count."""
+
+    def solve(self, b: np.ndarray) -> tuple[np.ndarray, SolveInfo]:
+        """Solve ``A x = b`` for one column (shape ``(n,)``) or a block (shape ``(n, r)``)."""
+        b = np.asarray(b, dtype=np.float64)
+        start = time.perf_counter()
+        if self.matrix.shape[0] == 0:
+            x, iterations = np.zeros_like(b), 0
+        else:
+            with single_threaded_blas():
+                x, iterations = self._solve(b)
+        elapsed = time.perf_counter() - start
+        residual = relative_residual(self.matrix, x, b) if b.size else 0.0
+        target = max(self.rtol, DIRECT_RESIDUAL_LIMIT) if self.method == "direct" else self.rtol
+        converged = bool(np.isfinite(residual) and residual <= target)
+        return x, SolveInfo(self.method, iterations, residual, converged,
+                            self.setup_seconds, elapsed)
