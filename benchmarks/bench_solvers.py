@@ -17,8 +17,9 @@ import pytest
 import scipy.sparse.linalg as spla
 from conftest import RTOL, SIZE, Stopwatch, reduced_system, relative_residual, supplied_lattice
 
-from ohmgraph.engine.solvers import (AUTO_DIRECT_LIMIT, make_solver, single_threaded_blas,
-                                     solve_spd)
+from ohmgraph.engine import solve_spd
+from ohmgraph.engine.solvers import SOLVERS, single_threaded_blas
+from ohmgraph.engine.solvers.choice import AUTO_DIRECT_LIMIT
 
 SAME_MATRIX_SECONDS: dict[str, float] = {}
 
@@ -75,7 +76,7 @@ def test_direct_against_amg(benchmark, side, method):
     benchmark.group = f"crossover: lattice {side} x {side} ({system.n_unknowns} unknowns)"
 
     def setup_and_solve():
-        solver = make_solver(system.matrix, method, RTOL)
+        solver = SOLVERS[method](system.matrix, RTOL)
         return solver, *solver.solve(system.rhs)
 
     run = Stopwatch(setup_and_solve)
@@ -96,7 +97,7 @@ BLOCK_SIDE = min(SIZE, 300)
 @pytest.mark.parametrize("method,width", [("direct", 16), ("amg-cg", 4)])
 def test_block_right_hand_sides(benchmark, method, width, shape):
     system = reduced_system(supplied_lattice(BLOCK_SIDE))
-    solver = make_solver(system.matrix, method, RTOL)
+    solver = SOLVERS[method](system.matrix, RTOL)
     block = np.random.default_rng(0).standard_normal((system.n_unknowns, width))
     benchmark.group = f"{width} right-hand sides, {method}, {system.n_unknowns} unknowns"
 
@@ -115,7 +116,7 @@ def test_pg1(benchmark, pg1_system, method):
     benchmark.group = f"pg1 ({pg1_system.n_unknowns} unknowns)"
 
     def setup_and_solve():
-        return make_solver(pg1_system.matrix, method, RTOL).solve(pg1_system.rhs)[1]
+        return SOLVERS[method](pg1_system.matrix, RTOL).solve(pg1_system.rhs)[1]
 
     run = Stopwatch(setup_and_solve)
     info = benchmark.pedantic(run, rounds=3, iterations=1)

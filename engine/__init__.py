@@ -13,13 +13,14 @@ from .readings import (Comparison, Diagnosis, Hypothesis, MonteCarloSpread, Read
 from .resistance import (KirchhoffIndex, PairResistances, ResistanceSolver, ResistorResistances,
                          kron_reduction, reduced_resistances)
 from .solve import NetworkNotSolvable, Solution, solve
-from .solvers import DEFAULT_RTOL, SolveInfo, SolverFailed, SPDSolver, make_solver, solve_spd
+from .session import SessionStats, SolveSession, solve_spd
+from .solvers import DEFAULT_RTOL, SOLVERS, SolveInfo, SolverFailed, SPDSolver
 
 __all__ = [
     "Network", "RESISTOR", "VOLTAGE_SOURCE", "CURRENT_SOURCE", "KIND_LETTERS",
     "check", "CheckReport", "Finding",
     "solve", "Solution", "NetworkNotSolvable",
-    "solve_spd", "make_solver", "SPDSolver", "SolveInfo", "SolverFailed", "DEFAULT_RTOL",
+    "SolveSession", "SessionStats", "solve_spd", "SOLVERS", "SPDSolver", "SolveInfo", "SolverFailed", "DEFAULT_RTOL",
     "Readings", "ReadingModel", "build_model", "compare", "Comparison",
     "conductance_sensitivity", "resistance_sensitivity", "tolerance_spread", "ToleranceSpread",
     "monte_carlo", "MonteCarloSpread", "diagnose", "Diagnosis", "Hypothesis",

@@ -17,7 +17,8 @@ from .checks import CheckReport, check
 from .formulation import ReducedSystem, assemble
 from .network import CURRENT_SOURCE, RESISTOR, VOLTAGE_SOURCE, Network
 from .recovery import branch_quantities, kcl_residual
-from .solvers import DEFAULT_RTOL, SPDSolver, SolverFailed, solve_with_fallback
+from .session import SolveSession
+from .solvers import DEFAULT_RTOL, SolverFailed
 
 
 class NetworkNotSolvable(ValueError):
@@ -63,7 +64,9 @@ class Solution:
     report : CheckReport
     system : ReducedSystem
         Kept for reuse (further right-hand sides, sensitivities).
-    solver : SPDSolver
+    session : SolveSession
+        The solve session of the reduced system, set up and reusable for further right-hand
+        sides (adjoint solves, sensitivities).
     """
 
     network: Network
@@ -84,7 +87,7 @@ class Solution:
     notes: list = field(default_factory=list)
     report: CheckReport | None = None
     system: ReducedSystem | None = None
-    solver: SPDSolver | None = None
+    session: SolveSession | None = None
 
     @property
     def power_delivered(self) -> float:
@@ -147,20 +150,24 @@ class Solution:
 
 
 def solve(net: Network, *, method: str = "auto", rtol: float = DEFAULT_RTOL,
-          allow_floating: bool = False, report: CheckReport | None = None) -> Solution:
+          allow_floating: bool = False, report: CheckReport | None = None,
+          memory_budget: float | None = None) -> Solution:
     """Solve a network: every node voltage and every branch current, voltage and power.
 
     Parameters
     ----------
     net : Network
-    method : {"auto", "direct", "amg-cg"}
-        Linear solver for the reduced system (:mod:`ohmgraph.engine.solvers`).
+    method : str
+        ``"auto"`` or a back end of :data:`ohmgraph.engine.solvers.SOLVERS`, through one
+        :class:`~ohmgraph.engine.session.SolveSession`.
     rtol : float
-        Relative residual target of iterative solves.
+        Relative residual the reduced system's solution must reach.
     allow_floating : bool
         Pin one node of every island without a path to the reference at 0 V.
     report : CheckReport, optional
         A report from :func:`check` with the same ``allow_floating``, to avoid checking twice.
+    memory_budget : float, optional
+        Bytes the solver's set-up may use (``auto`` chooses within it).
 
     Raises
     ------
@@ -182,8 +189,10 @@ def solve(net: Network, *, method: str = "auto", rtol: float = DEFAULT_RTOL,
     system = assemble(net, report.contraction, report.pinned_nodes)
     timings["assemble"] = time.perf_counter() - start
 
-    x, info, solver, notes = solve_with_fallback(system.matrix, system.rhs, method, rtol)
-    timings["setup"], timings["solve"] = solver.setup_seconds, info.solve_seconds
+    session = SolveSession(system.matrix, method, rtol, memory_budget=memory_budget)
+    x = session.solve(system.rhs)
+    stats = session.stats
+    timings["setup"], timings["solve"] = stats.setup_seconds, stats.solve_seconds
 
     start = time.perf_counter()
     voltage = system.node_voltages(x)
@@ -198,13 +207,13 @@ def solve(net: Network, *, method: str = "auto", rtol: float = DEFAULT_RTOL,
     return Solution(
         network=net, node_voltage=voltage, branch_current=branches.current,
         branch_voltage=branches.voltage, branch_power=branches.power,
-        current_determined=branches.determined, method=info.method, rtol=rtol,
-        iterations=info.iterations, relative_residual=info.relative_residual,
+        current_determined=branches.determined, method=stats.method, rtol=rtol,
+        iterations=stats.max_iterations, relative_residual=stats.max_relative_residual,
         kcl_max_residual=float(residual[worst]) if residual.size else 0.0, kcl_worst_node=worst,
         power_balance=float(branches.power.sum()),
         power_dissipated=float(branches.power[net.kind == RESISTOR].sum()),
-        timings=timings, notes=notes + _pinned_notes(net, report), report=report,
-        system=system, solver=solver)
+        timings=timings, notes=stats.notes + _pinned_notes(net, report), report=report,
+        system=system, session=session)
 
 
 def _pinned_notes(net: Network, report: CheckReport) -> list:

@@ -9,8 +9,9 @@ import pytest
 import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 
-from ohmgraph.engine import Network, SolverFailed, solve, solve_spd
+from ohmgraph.engine import Network, SolverFailed, SolveSession, solve, solve_spd
 from ohmgraph.engine import solvers
+from ohmgraph.engine.solvers import choice
 from ohmgraph.engine.network import RESISTOR
 from reference_mna import mna_solve
 
@@ -129,8 +130,10 @@ def test_solve_spd_matches_scipy_spsolve(method):
     matrix = grounded_grid_laplacian(40)
     b = np.random.default_rng(5).standard_normal(matrix.shape[0])
     expected = spla.spsolve(matrix.tocsc(), b)  # scipy reference
-    x, info, _, notes = solvers.solve_with_fallback(matrix, b, method, rtol=1e-10)
-    assert info.method == method and not notes
+    session = SolveSession(matrix, method, rtol=1e-10)
+    x = session.solve(b)
+    info = session.last
+    assert info.method == method and not session.stats.notes
     assert info.relative_residual <= 1e-10
     # Perturbation bound ||x - x*|| <= cond(A) * residual * ||x*|| (Golub & Van Loan, §2.6).
     bound = condition_number(matrix) * max(info.relative_residual, 1e-15) * np.linalg.norm(expected)
@@ -145,8 +148,9 @@ def test_amg_cg_block_of_columns_matches_spsolve():
     matrix = grounded_grid_laplacian(40)
     b = np.random.default_rng(6).standard_normal((matrix.shape[0], 3))
     expected = spla.spsolve(matrix.tocsc(), b)  # scipy reference, column by column
-    solver = solvers.make_solver(matrix, "amg-cg", rtol=1e-10)
-    x, info = solver.solve(b)
+    session = SolveSession(matrix, "amg-cg", rtol=1e-10)
+    x = session.solve(b)
+    info = session.last
     assert info.converged and info.iterations > 1
     bound = condition_number(matrix) * info.relative_residual * np.linalg.norm(expected, axis=0)
     assert np.all(np.linalg.norm(x - expected, axis=0) <= bound)
@@ -166,6 +170,6 @@ def test_amg_cg_falls_back_to_direct_and_says_so(make_network, monkeypatch):
 
 def test_solver_failed_when_no_fallback_applies(make_network, monkeypatch):
     monkeypatch.setattr(solvers.AmgCgSolver, "max_iterations", 1)
-    monkeypatch.setattr(solvers, "DIRECT_FALLBACK_LIMIT", 0)
+    monkeypatch.setattr(choice, "DIRECT_FALLBACK_LIMIT", 0)
     with pytest.raises(SolverFailed, match="too large for the direct fallback"):
         solve(make_network(3, n_nodes=1000, extra_resistors=1000), method="amg-cg")

@@ -111,7 +111,7 @@ def test_factor_reach_kernel_matches_its_reference():
     solver = ResistanceSolver(net)
     solver.prepare(100)
     reach = solver.factor_pairs()
-    lu = solver.solver.factors
+    lu = solver.session.factors
     rng = np.random.default_rng(1)
     into, out = rng.integers(-1, solver.free.size, (2, 50))   # -1: the grounded node
     a = np.where(into >= 0, reach.position[np.maximum(into, 0)], -1)
@@ -303,12 +303,12 @@ def test_exact_across_resistors_on_a_small_torus_is_uniform():
 
 
 def test_auto_sets_the_solver_up_for_the_query(monkeypatch):
-    import ohmgraph.engine.resistance.pairs as resistance
+    import ohmgraph.engine.solvers.choice as choice
 
-    monkeypatch.setattr(resistance, "AUTO_DIRECT_LIMIT", 100)    # pretend the lattice is large
+    monkeypatch.setattr(choice, "AUTO_DIRECT_LIMIT", 100)        # pretend the lattice is large
     net = grid2d(20, 20, 1.0)
     solver = ResistanceSolver(net)
-    assert solver.solver is None
+    assert solver.session.method == "not set up"
     one = solver.pair(0, 399)
     assert solver.stats.method == "amg-cg"                       # one pair: no factorisation
     many = solver.pairs(np.arange(50), np.arange(50, 100))

@@ -37,7 +37,8 @@ from ..checks import check
 from ..formulation import ReducedSystem, assemble
 from ..network import CURRENT_SOURCE, RESISTOR, Network
 from ..solve import NetworkNotSolvable, Solution, solve
-from ..solvers import DEFAULT_RTOL, SolveInfo, SPDSolver, make_solver
+from ..session import SolveSession
+from ..solvers import DEFAULT_RTOL, SolveInfo
 
 READING_KINDS = ("V", "R", "I")
 POWERED, PASSIVE = "powered", "passive"
@@ -152,8 +153,8 @@ class ReadingSystem:
     ----------
     name : {"powered", "passive"}
     system : ReducedSystem
-    solver : SPDSolver
-        Set up once; solves the adjoint block.
+    session : SolveSession
+        Set up once; solves the adjoint block (every solution proven to its ``rtol``).
     rows : ndarray of int64
         Indices (into the readings) of the readings on this network.
     weights : scipy.sparse.csc_matrix, shape (n_unknowns, len(rows))
@@ -170,7 +171,7 @@ class ReadingSystem:
 
     name: str
     system: ReducedSystem
-    solver: SPDSolver
+    session: SolveSession
     rows: np.ndarray
     weights: sp.csc_matrix
     direct: sp.csr_matrix
@@ -192,7 +193,9 @@ class ReadingSystem:
             a known potential (so that :meth:`incidence_products` can gather without branching).
         """
         if self.adjoint is None:
-            solved, self.adjoint_info = self.solver.solve(self.weights.toarray())
+            self.session.expect(self.weights.shape[1])
+            solved = self.session.solve(self.weights.toarray())
+            self.adjoint_info = self.session.last
             self.adjoint = np.vstack([solved, np.zeros((1, solved.shape[1]))])
         return self.adjoint
 
@@ -321,7 +324,7 @@ def _powered_system(net: Network, readings: Readings, rows: np.ndarray,
         shape=(count, system.n_unknowns + 1))
     scaled = direct[:, graph_branches].multiply(conductance[graph_branches]).tocsr()
     current_weights = (scaled @ incidence).T.tocsc()[1:]
-    return ReadingSystem(POWERED, system, solution.solver, rows,
+    return ReadingSystem(POWERED, system, solution.session, rows,
                          sp.csc_matrix(weights + current_weights), direct,
                          solution.branch_voltage)
 
@@ -333,9 +336,10 @@ def _passive_system(net: Network, readings: Readings, rows: np.ndarray, method: 
     if not report.solvable:
         raise NetworkNotSolvable(report)
     system = assemble(passive, report.contraction, report.pinned_nodes)
-    solver = make_solver(system.matrix, method, rtol)
+    session = SolveSession(system.matrix, method, rtol)
+    session.expect(rows.size)
     a, b = readings.node_a[rows], readings.node_b[rows]
-    rs = ReadingSystem(PASSIVE, system, solver, rows,
+    rs = ReadingSystem(PASSIVE, system, session, rows,
                        _unit_weights(system, np.arange(rows.size), a, b, rows.size),
                        sp.csr_matrix((rows.size, net.n_branches)), None)
     adjoint = rs.solve_adjoint()

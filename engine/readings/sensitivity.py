@@ -27,7 +27,7 @@ import numpy as np
 
 from ..formulation import assemble
 from ..network import RESISTOR, Network
-from ..solvers import solve_with_fallback
+from ..session import SolveSession
 from .model import POWERED, ReadingModel, ReadingSystem
 
 SELF_RESISTANCE_BATCH = 64
@@ -91,6 +91,7 @@ def grounded_self_resistance(rs: ReadingSystem, net: Network, branches: np.ndarr
     result = np.zeros(branches.size)
     active = np.flatnonzero(ua != ub)
     n = rs.system.n_unknowns
+    rs.session.expect(active.size)
     for start in range(0, active.size, batch):
         chosen = active[start:start + batch]
         columns = np.arange(chosen.size)
@@ -98,7 +99,7 @@ def grounded_self_resistance(rs: ReadingSystem, net: Network, branches: np.ndarr
         has_a, has_b = ua[chosen] >= 0, ub[chosen] >= 0
         block[ua[chosen][has_a], columns[has_a]] = 1.0
         block[ub[chosen][has_b], columns[has_b]] = -1.0
-        solved, _ = rs.solver.solve(block)
+        solved = rs.session.solve(block)
         result[chosen] = ((np.where(has_a, solved[np.maximum(ua[chosen], 0), columns], 0.0))
                           - np.where(has_b, solved[np.maximum(ub[chosen], 0), columns], 0.0))
     return result
@@ -224,8 +225,8 @@ def monte_carlo(model: ReadingModel, tolerance: np.ndarray, samples: int, seed: 
         ohms = net.value.copy()
         ohms[resistors] *= 1.0 + spread * generator.uniform(-1.0, 1.0, resistors.size)
         system = assemble(net.with_values(ohms), report.contraction, report.pinned_nodes)
-        x = solve_with_fallback(system.matrix, system.rhs, model.solution.method,
-                                model.solution.rtol)[0]
+        x = SolveSession(system.matrix, model.solution.method,
+                         model.solution.rtol).solve(system.rhs)
         volts = system.node_voltages(x)
         values[sample] = volts[readings.node_a] - volts[readings.node_b]
         if on_sample is not None:

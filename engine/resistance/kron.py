@@ -18,7 +18,8 @@ import numpy as np
 import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components
 
-from ..solvers import DEFAULT_RTOL, make_solver
+from ..session import SolveSession
+from ..solvers import DEFAULT_RTOL
 
 
 def kron_reduction(laplacian, terminals, method: str = "auto",
@@ -32,7 +33,12 @@ def kron_reduction(laplacian, terminals, method: str = "auto",
     terminals : array_like of int
         Distinct node indices to keep.
     method, rtol
-        Solver for the interior block (see :func:`ohmgraph.engine.solvers.make_solver`).
+        Solve session for the interior block (:class:`ohmgraph.engine.session.SolveSession`).
+
+    Raises
+    ------
+    SolverFailed
+        When the interior solve misses ``rtol``.
     """
     laplacian = sp.csr_matrix(laplacian)
     terminals = np.asarray(terminals, np.int64)
@@ -47,8 +53,9 @@ def kron_reduction(laplacian, terminals, method: str = "auto",
     if interior.size == 0:
         return reduced
     coupling = laplacian[interior][:, terminals].toarray()            # L_IT
-    solver = make_solver(laplacian[interior][:, interior], method, rtol)
-    x, _ = solver.solve(coupling)
+    session = SolveSession(laplacian[interior][:, interior], method, rtol)
+    session.expect(terminals.size)
+    x = session.solve(coupling)
     return reduced - coupling.T @ x
 
 

@@ -45,17 +45,12 @@ from ..checks import SMALLEST_RESISTANCE
 from ..contraction import contract
 from ..formulation import grounded_matrix, supernode_graph
 from ..network import RESISTOR, Network
-from ..solvers import (AUTO_DIRECT_LIMIT, DEFAULT_RTOL, DIRECT_FALLBACK_LIMIT, SOLVERS,
-                       DirectSolver, SolverFailed, make_solver, shortfall)
+from ..session import SolveSession
+from ..solvers import DEFAULT_RTOL
 from .kron import kron_reduction
 from .reach import FactorPairs
 from .sketch import across_resistors, block_columns, kirchhoff_index
 
-# Unknowns up to which "auto" factorises (direct) once a query needs more than FEW_SOLVES
-# right-hand sides: one factorisation then pays off far beyond the single-solve threshold
-# (solvers.AUTO_DIRECT_LIMIT), which still decides for a query of FEW_SOLVES or fewer.
-RESISTANCE_DIRECT_LIMIT = DIRECT_FALLBACK_LIMIT
-FEW_SOLVES = 2
 # Terminal reduction in pairs(): used when there are at most this many distinct terminals and
 # fewer terminals than distinct pairs (one solve per terminal instead of one per pair).
 KRON_TERMINAL_LIMIT = 2000
@@ -96,20 +91,6 @@ class PairResistances:
     seconds: float
 
 
-@dataclass
-class SolverStats:
-    """What the shared solver has done so far (accumulated over every query)."""
-
-    method: str
-    unknowns: int
-    setup_seconds: float
-    solves: int = 0
-    solve_seconds: float = 0.0
-    max_iterations: int = 0
-    max_relative_residual: float = 0.0
-    notes: list = field(default_factory=list)
-
-
 class ResistanceSolver:
     """Effective resistances of one network, with one solver set up and reused for every query.
 
@@ -118,14 +99,14 @@ class ResistanceSolver:
     net : Network
         Any network; its sources are zeroed (:meth:`Network.passive`). Resistances must be
         finite and non-negative (as :func:`ohmgraph.engine.check` requires).
-    method : {"auto", "direct", "amg-cg"}
-        ``auto`` sets the solver up at the first query, knowing its size: ``direct`` up to
-        :data:`~ohmgraph.engine.solvers.AUTO_DIRECT_LIMIT` unknowns, and up to
-        :data:`RESISTANCE_DIRECT_LIMIT` for queries of more than :data:`FEW_SOLVES` right-hand
-        sides; ``amg-cg`` otherwise. A later larger query on an ``auto`` multigrid solver
-        switches it to ``direct`` under the same rule.
+    method : str
+        ``"auto"`` or a back end of :data:`ohmgraph.engine.solvers.SOLVERS`. Every solve goes
+        through one :class:`~ohmgraph.engine.session.SolveSession` (:attr:`session`), set up at
+        the first query knowing how many right-hand sides it needs; with ``auto`` a later,
+        larger query may switch it to a factorisation
+        (:func:`ohmgraph.engine.solvers.choice.choose`).
     rtol : float
-        Relative residual target of iterative solves.
+        Relative residual every solve must reach.
 
     Raises
     ------
@@ -164,11 +145,9 @@ class ResistanceSolver:
         self.matrix = grounded_matrix(self.graph, free, unknown_of)
         self.ground_distance = self._ground_distance(conductance)
         self.rtol = float(rtol)
-        if method != "auto" and method not in SOLVERS:
-            raise ValueError(f"unknown method {method!r} (expected auto, {', '.join(SOLVERS)})")
         self.method = method
-        self.solver = None                 # set up by prepare() at the first query
-        self.stats = SolverStats("not set up", int(free.size), time.perf_counter() - start)
+        self.session = SolveSession(self.matrix, method, rtol)   # set up at the first query
+        self.preparation_seconds = time.perf_counter() - start
         self._factor_pairs = None          # built on first use (see factor_pairs)
         self._factor_checked = False
         self._factor_residual = 0.0
@@ -201,59 +180,26 @@ class ResistanceSolver:
     def n_nodes(self) -> int:
         return self.network.n_nodes
 
+    @property
+    def stats(self):
+        """The session's :class:`~ohmgraph.engine.session.SessionStats` (every query so far)."""
+        return self.session.stats
+
     def prepare(self, solves: int) -> None:
-        """Set up (or, for ``auto``, upgrade) the shared solver for a query of ``solves``
-        right-hand sides (see the ``method`` parameter)."""
-        n = self.free.size
-        wanted = self.method
-        if wanted == "auto":
-            factorise = n <= AUTO_DIRECT_LIMIT or (solves > FEW_SOLVES
-                                                  and n <= RESISTANCE_DIRECT_LIMIT)
-            wanted = "direct" if factorise else "amg-cg"
-            if self.solver is not None and self.solver.method == "direct":
-                wanted = "direct"
-        if self.solver is not None and self.solver.method == wanted:
-            return
-        start = time.perf_counter()
-        self.solver = make_solver(self.matrix, wanted, self.rtol)
-        if self.stats.method != "not set up":
-            self.stats.notes.append(f"switched to {wanted} for a query of {solves} solves")
-        self.stats.method = wanted
-        self.stats.setup_seconds += time.perf_counter() - start
+        """Set the session up for a query of ``solves`` right-hand sides
+        (:meth:`SolveSession.expect`)."""
+        self.session.expect(solves)
 
     def solve_block(self, rhs: np.ndarray) -> np.ndarray:
-        """Solve ``A X = rhs`` (columns over the unknowns) with the shared solver.
-
-        An iterative solve that misses ``rtol`` switches the shared solver to ``direct`` (when the
-        system is small enough) and solves again; the switch is noted in :attr:`stats`.
+        """Solve ``A X = rhs`` (columns over the unknowns) through the session: every returned
+        column meets ``rtol``.
 
         Raises
         ------
         SolverFailed
-            When no solver reaches the target.
+            When no allowed back end reaches the target.
         """
-        columns = 1 if rhs.ndim == 1 else rhs.shape[1]
-        if self.solver is None:
-            self.prepare(columns)
-        x, info = self.solver.solve(rhs)
-        if not info.converged and self.solver.method != "direct":
-            if self.matrix.shape[0] > DIRECT_FALLBACK_LIMIT:
-                raise SolverFailed(
-                    f"{info.method} stopped at relative residual {info.relative_residual:.3g} "
-                    f"(rtol {self.rtol:g}); the system is too large for the direct fallback")
-            self.stats.notes.append(f"{info.method} reached relative residual "
-                                    f"{info.relative_residual:.3g}; switched to direct")
-            self.solver = DirectSolver(self.matrix, self.rtol)
-            self.stats.method = "direct"
-            x, info = self.solver.solve(rhs)
-        if not info.converged:
-            raise SolverFailed(shortfall(info, self.rtol))
-        self.stats.solves += columns
-        self.stats.solve_seconds += info.solve_seconds
-        self.stats.max_iterations = max(self.stats.max_iterations, info.iterations)
-        self.stats.max_relative_residual = max(self.stats.max_relative_residual,
-                                               info.relative_residual)
-        return x
+        return self.session.solve(rhs)
 
     def residual_energy_bound(self, residual: np.ndarray) -> np.ndarray:
         """Upper bound of ``r^T A^{-1} r`` for each residual column: sum over islands of
@@ -360,13 +306,13 @@ class ResistanceSolver:
         is checked against a full solve of one pair, and the factorisation's relative residual on
         that solve (``||r||_1 / ||d||_1``) is kept to estimate the accuracy of its values.
         """
-        if self.solver is None or self.solver.method != "direct" or self.free.size < 2:
+        if self.session.factors is None or self.free.size < 2:
             return None
         if self._factor_checked:
             return self._factor_pairs
         self._factor_checked = True
         try:
-            reach = FactorPairs(self.solver.factors)
+            reach = FactorPairs(self.session.factors)
         except ValueError as error:
             self.stats.notes.append(f"pair values by full solves: {error}")
             return None

@@ -40,7 +40,17 @@ def single_threaded_blas():
 
 
 class SolverFailed(RuntimeError):
-    """The solve did not reach the requested accuracy and no fallback applied."""
+    """The solve did not reach the requested accuracy and no fallback applied.
+
+    Attributes
+    ----------
+    info : SolveInfo or None
+        The last solve's record (its residual is the shortfall), when there was one.
+    """
+
+    def __init__(self, message: str, info: "SolveInfo | None" = None):
+        super().__init__(message)
+        self.info = info
 
 
 @dataclass(frozen=True)

@@ -1,0 +1,190 @@
+"""The one door for every linear solve: :class:`SolveSession`.
+
+Every solve in the engine (the network solution, effective resistances, Kron reduction, adjoint
+solves for readings, sensitivities, diagnosis and tolerance) goes through a session. A session
+owns, for one symmetric positive-definite matrix:
+
+* the method choice (``auto`` asks :func:`ohmgraph.engine.solvers.choice.choose`, which knows how
+  many right-hand sides are coming, and may switch an iterative set-up to a factorisation when a
+  larger query arrives);
+* the set-up, done once and reused for every right-hand side;
+* the convergence check: every returned vector has a measured relative residual
+  ``||A x - b|| / ||b|| <= rtol`` (a factorisation is held to ``max(rtol, 1e-8)``);
+* the fallback: an iterative solve that misses its target is redone by a factorisation when the
+  choice module allows one; otherwise, and when the factorisation misses too,
+  :class:`~ohmgraph.engine.solvers.SolverFailed` is raised with the shortfall;
+* the statistics (:class:`SessionStats`), returned to the caller and stored with results.
+
+Nothing downstream of a session ever sees an unproven vector.
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass, field
+
+import numpy as np
+import scipy.sparse as sp
+
+from .solvers import DEFAULT_RTOL, SOLVERS, SolveInfo, SolverFailed, SPDSolver, shortfall
+from .solvers.choice import choose, direct_fallback_allowed
+
+
+@dataclass
+class SessionStats:
+    """What a session has done so far, accumulated over every solve.
+
+    Attributes
+    ----------
+    method : str
+        The back end now in use (``"not set up"`` before the first solve).
+    unknowns : int
+    reason : str
+        Why that back end (the choice, or the fallback).
+    setup_seconds, solve_seconds : float
+        Totals over every set-up and every solve.
+    solves : int
+        Right-hand sides solved.
+    max_iterations : int
+    max_relative_residual : float
+        The largest measured ``||A x - b|| / ||b||`` over every returned solution.
+    notes : list of str
+        Switches and fallbacks, in words.
+    """
+
+    method: str
+    unknowns: int
+    reason: str = ""
+    setup_seconds: float = 0.0
+    solve_seconds: float = 0.0
+    solves: int = 0
+    max_iterations: int = 0
+    max_relative_residual: float = 0.0
+    notes: list = field(default_factory=list)
+
+
+class SolveSession:
+    """Method choice, set-up, convergence check, fallback and statistics for one SPD matrix.
+
+    Parameters
+    ----------
+    matrix : sparse matrix, shape (n, n)
+        Symmetric positive definite.
+    method : str
+        ``"auto"`` or a key of :data:`ohmgraph.engine.solvers.SOLVERS`.
+    rtol : float
+        Relative residual every returned solution must reach.
+    memory_budget : float, optional
+        Bytes a set-up may use (``auto`` chooses within it); None for no limit.
+
+    Raises
+    ------
+    ValueError
+        On an unknown method or a non-square matrix.
+    """
+
+    def __init__(self, matrix, method: str = "auto", rtol: float = DEFAULT_RTOL, *,
+                 memory_budget: float | None = None):
+        if method != "auto" and method not in SOLVERS:
+            raise ValueError(f"unknown method {method!r} (expected auto, {', '.join(SOLVERS)})")
+        self.matrix = sp.csr_matrix(matrix)
+        if self.matrix.shape[0] != self.matrix.shape[1]:
+            raise ValueError(f"the matrix is not square: {self.matrix.shape}")
+        self.requested = method
+        self.rtol = float(rtol)
+        self.memory_budget = memory_budget
+        self.stats = SessionStats("not set up", int(self.matrix.shape[0]))
+        self.last: SolveInfo | None = None
+        self._solver: SPDSolver | None = None
+
+    @property
+    def method(self) -> str:
+        """The back end in use (``"not set up"`` before the first solve or :meth:`expect`)."""
+        return self.stats.method
+
+    @property
+    def factors(self):
+        """The sparse factorisation when the back end is ``direct``, else None (for callers that
+        exploit its sparsity, :mod:`ohmgraph.engine.resistance.reach`)."""
+        return getattr(self._solver, "factors", None)
+
+    def expect(self, solves: int) -> None:
+        """Set up for a query of ``solves`` right-hand sides.
+
+        With ``auto`` the choice may switch an iterative set-up to a factorisation for a larger
+        query (never back: a factorisation serves every later query).
+        """
+        if self.requested != "auto":
+            if self._solver is None:
+                self._set_up(self.requested, "asked for")
+            return
+        if self._solver is not None and self._solver.method == "direct":
+            return
+        choice = choose(self.matrix, solves, self.memory_budget)
+        if self._solver is None or choice.method != self._solver.method:
+            if self._solver is not None:
+                self.stats.notes.append(f"switched to {choice.method} for a query of {solves} "
+                                        f"right-hand sides: {choice.reason}")
+            self._set_up(choice.method, choice.reason)
+
+    def _set_up(self, method: str, reason: str) -> None:
+        start = time.perf_counter()
+        self._solver = SOLVERS[method](self.matrix, self.rtol)
+        self.stats.setup_seconds += time.perf_counter() - start
+        self.stats.method, self.stats.reason = method, reason
+
+    def solve(self, b: np.ndarray) -> np.ndarray:
+        """Solve ``A x = b`` for one column (shape ``(n,)``) or a block (shape ``(n, r)``).
+
+        Returns
+        -------
+        ndarray
+            A solution whose measured relative residual meets ``rtol`` (see :attr:`last`).
+
+        Raises
+        ------
+        SolverFailed
+            When no allowed back end reaches ``rtol``; the message gives the residual reached.
+        """
+        b = np.asarray(b, dtype=np.float64)
+        if self._solver is None:
+            self.expect(1 if b.ndim == 1 else b.shape[1])
+        x, info = self._solver.solve(b)
+        if not info.converged and self._solver.method != "direct":
+            allowed, why = direct_fallback_allowed(self.matrix, self.memory_budget)
+            if not allowed:
+                raise SolverFailed(f"{shortfall(info, self.rtol)} after {info.iterations} "
+                                   f"iterations; {why}", info)
+            self.stats.notes.append(
+                f"{info.method} reached relative residual {info.relative_residual:.3g} after "
+                f"{info.iterations} iterations (rtol {self.rtol:g}); fell back to direct")
+            self.stats.solve_seconds += info.solve_seconds
+            self._set_up("direct", f"fallback: {info.method} missed rtol")
+            x, info = self._solver.solve(b)
+        if not info.converged:
+            raise SolverFailed(shortfall(info, self.rtol), info)
+        self.last = info
+        stats = self.stats
+        stats.solves += 1 if b.ndim == 1 else b.shape[1]
+        stats.solve_seconds += info.solve_seconds
+        stats.max_iterations = max(stats.max_iterations, info.iterations)
+        stats.max_relative_residual = max(stats.max_relative_residual, info.relative_residual)
+        return x
+
+
+def solve_spd(A, b, rtol: float = DEFAULT_RTOL, method: str = "auto") -> np.ndarray:
+    """Solve a symmetric positive-definite sparse system ``A x = b`` through one session.
+
+    The same path :func:`ohmgraph.engine.solve` takes, exposed so benchmarks can compare it with
+    other solvers on one matrix.
+
+    Parameters
+    ----------
+    A : sparse matrix, shape (n, n)
+    b : ndarray, shape (n,) or (n, r)
+    rtol : float
+        Relative residual target ``||A x - b|| / ||b||``.
+    method : str
+        ``"auto"`` or a key of :data:`ohmgraph.engine.solvers.SOLVERS`.
+    """
+    return SolveSession(A, method, rtol).solve(b)
