@@ -6,6 +6,14 @@ import numpy as np
 import pytest
 
 from ohmgraph.engine.network import Network
+from ohmgraph.engine.solvers import SOLVERS, UNAVAILABLE
+
+# Every registered back end, and every known optional one that is not installed here (skipped,
+# with the reason): capability tests run over this list, never over a hard-coded one.
+BACK_ENDS = ([pytest.param(name, id=name) for name in SOLVERS]
+             + [pytest.param(name, id=name, marks=pytest.mark.skip(
+                 reason=f"back end {name!r} is not available here: {why}"))
+                for name, why in UNAVAILABLE.items()])
 
 
 def random_tree_edges(rng: np.random.Generator, n_nodes: int) -> tuple[np.ndarray, np.ndarray]:

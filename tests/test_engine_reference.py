@@ -13,9 +13,10 @@ from ohmgraph.engine import Network, SolverFailed, SolveSession, solve, solve_sp
 from ohmgraph.engine import solvers
 from ohmgraph.engine.solvers import choice
 from ohmgraph.engine.network import RESISTOR
+from conftest import BACK_ENDS
 from reference_mna import mna_solve
 
-METHODS = ["direct", "amg-cg"]
+METHODS = BACK_ENDS
 SIZES = list(enumerate([60, 150, 300, 700, 1200, 2000]))
 
 

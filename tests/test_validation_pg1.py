@@ -11,6 +11,7 @@ import pandas as pd
 import pytest
 
 from ohmgraph.engine import Network, check, solve
+from conftest import BACK_ENDS
 from reference_mna import mna_solve
 
 PG1 = Path(__file__).resolve().parents[1].parent / "shared/validation/pg1.csv.gz"
@@ -39,7 +40,7 @@ def test_pg1_is_well_posed_as_described(pg1):
     assert report.summary["components"] == 1
 
 
-@pytest.mark.parametrize("method", ["direct", "amg-cg"])
+@pytest.mark.parametrize("method", BACK_ENDS)
 def test_pg1_every_node_voltage_matches_mna(pg1, pg1_reference, method):
     solution = solve(pg1, method=method)
     # The brief's acceptance level for this benchmark: every node within 1 microvolt.

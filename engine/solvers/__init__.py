@@ -18,7 +18,10 @@ from .base import (DEFAULT_RTOL, DIRECT_RESIDUAL_LIMIT, SolveInfo, SolverFailed,
 from .direct import DirectSolver
 
 SOLVERS = {"direct": DirectSolver, "amg-cg": AmgCgSolver}
+# Optional back ends that are known but cannot run here: name -> why (for example a library that
+# is not installed). Tests list them as skipped, with the reason.
+UNAVAILABLE: dict[str, str] = {}
 
 __all__ = ["SPDSolver", "SolveInfo", "SolverFailed", "DirectSolver", "AmgCgSolver", "SOLVERS",
-           "DEFAULT_RTOL", "DIRECT_RESIDUAL_LIMIT", "relative_residual", "shortfall",
+           "UNAVAILABLE", "DEFAULT_RTOL", "DIRECT_RESIDUAL_LIMIT", "relative_residual", "shortfall",
            "single_threaded_blas"]
