@@ -7,7 +7,11 @@ Formats, chosen by the file extension after an optional ``.gz``:
   required; a missing ``name`` column names each branch by its 1-based row number, a missing
   ``kind`` column makes every branch a resistor, and an empty ``kind`` field means ``R``.
 * any other extension: a plain edge list, one resistor per line as ``from to ohms`` separated by
-  spaces or tabs, with ``#`` comments (whole lines or trailing) and blank lines allowed.
+  spaces or tabs, with ``#`` comments (whole lines or trailing) and blank lines allowed. A file
+  whose lines all hold two fields (``from to``, the usual form of an unweighted graph) is read as
+  1 ohm resistors, and :func:`read_network_file` says so with an ``info`` finding
+  (``default-resistance``); a file that mixes two- and three-field lines is refused at the first
+  line that differs from the first branch line.
 
 Surrounding spaces are trimmed from every field. Node labels are arbitrary text.
 
@@ -22,7 +26,7 @@ from __future__ import annotations
 
 import csv
 import gzip
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
@@ -30,6 +34,7 @@ import pyarrow as pa
 import pyarrow.compute as pc
 import pyarrow.csv as pa_csv
 
+from ohmgraph.engine.checks import INFO, CheckReport, Finding, check
 from ohmgraph.engine.network import KIND_CODE, RESISTOR, Network
 from ohmgraph.io.errors import InputError, ProblemList
 
@@ -37,6 +42,9 @@ COLUMNS = ("name", "kind", "from", "to", "value")
 REQUIRED_COLUMNS = ("from", "to", "value")
 TABLE_DELIMITERS = {".csv": ",", ".tsv": "\t"}
 EDGE_LIST_FIELDS = ("from", "to", "value")
+# Edge-list line forms by field count: weighted (from to ohms) and unweighted (from to).
+EDGE_LIST_FORMS = {3: "from to ohms", 2: "from to"}
+DEFAULT_OHMS = 1.0          # the resistance of every branch of a two-field edge list
 # Edge-list lines are read whole by splitting on a control character (ASCII unit separator) that
 # text files do not hold; a line that does hold one goes to the exact pass.
 _UNUSED_DELIMITER = "\x1f"
@@ -56,6 +64,30 @@ class _Columns:
     value: np.ndarray
     kind: np.ndarray
     names: pa.Array | None
+    values_defaulted: bool = False
+
+
+@dataclass(frozen=True)
+class NetworkFile:
+    """A network read from a file, with the facts the reader had to assume.
+
+    Attributes
+    ----------
+    path : Path
+    network : Network
+    findings : tuple of Finding
+        ``info`` findings about the reading itself (for example ``default-resistance`` when
+        every value was defaulted to 1 ohm); :meth:`check` adds them to the check report.
+    """
+
+    path: Path
+    network: Network
+    findings: tuple = ()
+
+    def check(self, allow_floating: bool = False) -> CheckReport:
+        """:func:`ohmgraph.engine.check` of the network, the reader's findings appended."""
+        report = check(self.network, allow_floating=allow_floating)
+        return replace(report, findings=report.findings + list(self.findings))
 
 
 class _Rejected(Exception):
@@ -64,7 +96,27 @@ class _Rejected(Exception):
 
 # ---------------------------------------------------------------------------------- public API
 def read_network(path, ground: str = "0") -> Network:
-    """Read a network file.
+    """Read a network file (:func:`read_network_file` without the reader's findings).
+
+    Parameters
+    ----------
+    path : str or Path
+    ground : str, default ``"0"``
+
+    Returns
+    -------
+    Network
+
+    Raises
+    ------
+    InputError
+        As for :func:`read_network_file`.
+    """
+    return read_network_file(path, ground).network
+
+
+def read_network_file(path, ground: str = "0") -> NetworkFile:
+    """Read a network file and record what the reader assumed.
 
     Parameters
     ----------
@@ -76,7 +128,7 @@ def read_network(path, ground: str = "0") -> Network:
 
     Returns
     -------
-    Network
+    NetworkFile
 
     Raises
     ------
@@ -97,7 +149,17 @@ def read_network(path, ground: str = "0") -> Network:
             columns = _read_table(path, delimiter)
     except (OSError, EOFError) as error:      # unreadable gzip stream or a failing disk
         raise InputError(f"{path}: cannot be read ({error})") from None
-    return _build_network(path, columns, str(ground))
+    network = _build_network(path, columns, str(ground))
+    return NetworkFile(path, network, _reading_findings(columns))
+
+
+def _reading_findings(columns: _Columns) -> tuple:
+    if not columns.values_defaulted:
+        return ()
+    count = len(columns.from_labels)
+    return (Finding(INFO, "default-resistance",
+                    f"the edge list gives no values (two fields per line, from to): each of "
+                    f"its {count} branch(es) is read as a {DEFAULT_OHMS:g} ohm resistor"),)
 
 
 def locate_lines(path, rows) -> np.ndarray:
@@ -180,12 +242,14 @@ def _read_edge_list(path: Path) -> _Columns:
             lines = pc.list_element(pc.split_pattern(lines, "#", max_splits=1), 0)
         fields = pc.utf8_split_whitespace(lines)
         count = pc.list_value_length(fields).to_numpy()
-        if np.any((count != 0) & (count != len(EDGE_LIST_FIELDS))):
+        widths = np.unique(count[count != 0])
+        width = int(widths[0]) if widths.size else len(EDGE_LIST_FIELDS)
+        if widths.size > 1 or width not in EDGE_LIST_FORMS:
             raise _Rejected
         flat = pc.list_flatten(fields)
-        every_third = np.arange(0, len(flat), len(EDGE_LIST_FIELDS))
-        return _convert(pa.table({name: flat.take(every_third + k)
-                                  for k, name in enumerate(EDGE_LIST_FIELDS)}))
+        starts = np.arange(0, len(flat), width)
+        return _convert(pa.table({name: flat.take(starts + k)
+                                  for k, name in enumerate(EDGE_LIST_FIELDS[:width])}))
     except (pa.ArrowInvalid, _Rejected):
         return _exact_edge_list(path)
 
@@ -202,7 +266,9 @@ def _convert(table: pa.Table) -> _Columns:
     for column in ("from", "to", "name"):
         if column in table.column_names and pc.any(pc.match_substring(table[column], NUL)).as_py():
             raise _Rejected
-    value = pc.cast(trimmed("value"), pa.float64()).to_numpy(zero_copy_only=False)
+    defaulted = "value" not in table.column_names
+    value = (np.full(len(table), DEFAULT_OHMS) if defaulted else
+             pc.cast(trimmed("value"), pa.float64()).to_numpy(zero_copy_only=False))
     if "kind" in table.column_names:
         spellings = pa.array(list(KIND_SPELLINGS))
         position = pc.index_in(pc.utf8_upper(trimmed("kind")), value_set=spellings)
@@ -212,7 +278,7 @@ def _convert(table: pa.Table) -> _Columns:
     else:
         kind = np.full(len(table), RESISTOR, np.uint8)
     names = trimmed("name") if "name" in table.column_names else None
-    return _Columns(from_labels, to_labels, value, kind, names)
+    return _Columns(from_labels, to_labels, value, kind, names, defaulted)
 
 
 def _build_network(path: Path, columns: _Columns, ground: str) -> Network:
@@ -336,7 +402,7 @@ class _ColumnsBuilder:
                                "(R, V or I)")
             ok = False
         try:
-            value = _parse_number(fields["value"])
+            value = _parse_number(fields["value"]) if "value" in fields else DEFAULT_OHMS
         except ValueError:
             problems.add(line, "column 'value': " + (f"{fields['value']!r} is not a number"
                                                      if fields["value"] else "empty"))
@@ -348,10 +414,10 @@ class _ColumnsBuilder:
             self.kinds.append(kind)
             self.names.append(fields.get("name"))
 
-    def columns(self, named: bool) -> _Columns:
+    def columns(self, named: bool, values_defaulted: bool = False) -> _Columns:
         return _Columns(pa.array(self.from_labels, pa.string()), pa.array(self.to_labels, pa.string()),
                         np.asarray(self.values, np.float64), np.asarray(self.kinds, np.uint8),
-                        pa.array(self.names, pa.string()) if named else None)
+                        pa.array(self.names, pa.string()) if named else None, values_defaulted)
 
 
 def _exact_table(path: Path, delimiter: str, header: list) -> _Columns:
@@ -369,14 +435,23 @@ def _exact_table(path: Path, delimiter: str, header: list) -> _Columns:
 
 
 def _exact_edge_list(path: Path) -> _Columns:
+    """Every line must have the form of the first branch line: ``from to ohms`` or ``from to``."""
     problems, rows = ProblemList(path), _ColumnsBuilder()
+    width = first = None
     for line, fields in _edge_records(path):
-        if len(fields) != len(EDGE_LIST_FIELDS):
-            problems.add(line, f"{len(fields)} field(s), expected 3 (from to ohms)")
+        if width is None and len(fields) in EDGE_LIST_FORMS:
+            width, first = len(fields), line
+        if width is None:
+            problems.add(line, f"{len(fields)} field(s), expected 3 (from to ohms) or 2 (from to)")
+            continue
+        if len(fields) != width:
+            problems.add(line, f"{len(fields)} field(s), expected {width} "
+                               f"({EDGE_LIST_FORMS[width]}) like line {first}; an edge list "
+                               "gives every line a value or none")
             continue
         rows.add_row(problems, line, dict(zip(EDGE_LIST_FIELDS, fields)))
     problems.raise_if_any()
-    return rows.columns(named=False)
+    return rows.columns(named=False, values_defaulted=width == 2)
 
 
-__all__ = ["read_network", "locate_lines", "table_delimiter", "COLUMNS", "REQUIRED_COLUMNS"]
+__all__ = ["read_network", "read_network_file", "NetworkFile", "locate_lines", "table_delimiter", "COLUMNS", "REQUIRED_COLUMNS"]

@@ -7,11 +7,10 @@ the file cannot be read.
 
 from __future__ import annotations
 
-from ohmgraph.engine.checks import check
 from ohmgraph.io.check_view import format_report, report_to_dict
 from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK
 from ohmgraph.io.jsonout import dumps
-from ohmgraph.io.reader import read_network
+from ohmgraph.io.reader import read_network_file
 
 
 def register(subparsers) -> None:
@@ -37,8 +36,9 @@ def register(subparsers) -> None:
 
 def run(args) -> int:
     """Read, check and report; return the exit code."""
-    net = read_network(args.network, ground=args.ground)
-    report = check(net, allow_floating=args.allow_floating)
+    read = read_network_file(args.network, ground=args.ground)
+    net = read.network
+    report = read.check(allow_floating=args.allow_floating)
     if args.json:
         print(dumps(report_to_dict(report, net, source=args.network)))
     else:

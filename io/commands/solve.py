@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import time
 
-from ohmgraph.engine.checks import check
 from ohmgraph.engine.solve import solve
 from ohmgraph.engine.solvers import DEFAULT_RTOL, SOLVERS, SolverFailed
 from ohmgraph.io.commands.argtypes import positive_float
@@ -12,7 +11,7 @@ from ohmgraph.io.atomic import refuse_existing, refuse_input
 from ohmgraph.io.check_view import format_report, report_to_dict
 from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, SolverError
 from ohmgraph.io.jsonout import dumps
-from ohmgraph.io.reader import read_network
+from ohmgraph.io.reader import read_network_file
 from ohmgraph.io.solution_view import format_solution, solution_summary
 from ohmgraph.io.store import write_solution
 
@@ -46,11 +45,12 @@ def run(args) -> int:
     refuse_input(args.output, [args.network])
     refuse_existing(args.output, args.force)
     start = time.perf_counter()
-    net = read_network(args.network, ground=args.ground)
+    read = read_network_file(args.network, ground=args.ground)
+    net = read.network
     read_seconds = time.perf_counter() - start
 
     start = time.perf_counter()
-    report = check(net, allow_floating=args.allow_floating)
+    report = read.check(allow_floating=args.allow_floating)
     check_seconds = time.perf_counter() - start
     if not report.solvable:
         print(dumps(report_to_dict(report, net, args.network)) if args.json
