@@ -1,11 +1,15 @@
-"""Read a network from a branch table (CSV or TSV) or a plain edge list.
+"""Read a network from a branch table (CSV, TSV or Parquet) or a plain edge list.
 
-Formats, chosen by the file extension after an optional ``.gz``:
+Formats, chosen by the file extension (after an optional ``.gz``) through
+:mod:`ohmgraph.io.formats`:
 
 * ``.csv`` (comma) and ``.tsv`` (tab): a header row naming the columns ``name``, ``kind``,
   ``from``, ``to``, ``value`` in any order (case-insensitive). ``from``, ``to`` and ``value`` are
   required; a missing ``name`` column names each branch by its 1-based row number, a missing
   ``kind`` column makes every branch a resistor, and an empty ``kind`` field means ``R``.
+* ``.parquet``: the same columns and rules as a branch table (any column types: numbers and
+  labels are read through their text, so integer labels become decimal text and values keep
+  every digit); problems are reported by row (``FILE:row 3: column 'value': ...``).
 * any other extension: a plain edge list, one resistor per line as ``from to ohms`` separated by
   spaces or tabs, with ``#`` comments (whole lines or trailing) and blank lines allowed. A file
   whose lines all hold two fields (``from to``, the usual form of an unweighted graph) is read as
@@ -33,14 +37,15 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 import pyarrow.csv as pa_csv
+import pyarrow.parquet as pq
 
 from ohmgraph.engine.checks import INFO, CheckReport, Finding, check
 from ohmgraph.engine.network import KIND_CODE, RESISTOR, Network
 from ohmgraph.io.errors import InputError, ProblemList
+from ohmgraph.io.formats import EDGE_LIST, PARQUET, network_format
 
 COLUMNS = ("name", "kind", "from", "to", "value")
 REQUIRED_COLUMNS = ("from", "to", "value")
-TABLE_DELIMITERS = {".csv": ",", ".tsv": "\t"}
 EDGE_LIST_FIELDS = ("from", "to", "value")
 # Edge-list line forms by field count: weighted (from to ohms) and unweighted (from to).
 EDGE_LIST_FORMS = {3: "from to ohms", 2: "from to"}
@@ -122,7 +127,7 @@ def read_network_file(path, ground: str = "0") -> NetworkFile:
     ----------
     path : str or Path
         A ``.csv`` / ``.tsv`` branch table or a whitespace edge list, optionally gzip-compressed
-        (``.gz``).
+        (``.gz``), or a ``.parquet`` branch table.
     ground : str, default ``"0"``
         Label of the reference (0 V) node; it must be one of the nodes.
 
@@ -141,12 +146,14 @@ def read_network_file(path, ground: str = "0") -> NetworkFile:
         raise InputError(f"{path}: no such file")
     if not path.is_file():
         raise InputError(f"{path}: not a file")
-    delimiter = table_delimiter(path)
+    found = network_format(path)
     try:
-        if delimiter is None:
+        if found.name == EDGE_LIST:
             columns = _read_edge_list(path)
+        elif found.name == PARQUET:
+            columns = _read_parquet(path)
         else:
-            columns = _read_table(path, delimiter)
+            columns = _read_table(path, found.format.delimiter)
     except (OSError, EOFError) as error:      # unreadable gzip stream or a failing disk
         raise InputError(f"{path}: cannot be read ({error})") from None
     network = _build_network(path, columns, str(ground))
@@ -163,9 +170,10 @@ def _reading_findings(columns: _Columns) -> tuple:
 
 
 def locate_lines(path, rows) -> np.ndarray:
-    """Physical 1-based line numbers of the given 0-based branch rows of a network file.
+    """Physical 1-based line numbers of the given 0-based branch rows of a text network file.
 
-    An exact (slow) pass over the file, meant for decorating a few findings.
+    An exact (slow) pass over the file, meant for decorating a few findings. Formats without
+    lines (Parquet) give the 1-based row numbers.
 
     Parameters
     ----------
@@ -189,7 +197,10 @@ def locate_lines(path, rows) -> np.ndarray:
     wanted = set(rows.ravel().tolist())
     last = max(wanted)
     found = {}
-    delimiter = table_delimiter(path)
+    file_format = network_format(path)
+    if not file_format.format.lines:
+        return rows + 1
+    delimiter = file_format.format.delimiter
     records = _edge_records(path) if delimiter is None else _table_records(path, delimiter)
     if delimiter is not None:
         next(records, None)                     # the header
@@ -202,14 +213,6 @@ def locate_lines(path, rows) -> np.ndarray:
     if missing:
         raise InputError(f"{path}: has no branch row {min(missing)} (0-based)")
     return np.vectorize(found.__getitem__, otypes=[np.int64])(rows)
-
-
-def table_delimiter(path) -> str | None:
-    """Field delimiter of a branch table (``","`` or tab), or None for a whitespace edge list."""
-    name = Path(path).name.lower()
-    if name.endswith(".gz"):
-        name = name[:-3]
-    return TABLE_DELIMITERS.get(Path(name).suffix)
 
 
 # ---------------------------------------------------------------------------------- fast path
@@ -226,6 +229,25 @@ def _read_table(path: Path, delimiter: str) -> _Columns:
         return _convert(table)
     except (pa.ArrowInvalid, _Rejected):
         return _exact_table(path, delimiter, header)
+
+
+def _read_parquet(path: Path) -> _Columns:
+    """A Parquet branch table: every column through its text, then the table's conversions."""
+    try:
+        table = pq.read_table(path)
+    except (pa.ArrowException, OSError) as error:
+        raise InputError(f"{path}: not a readable Parquet file ({error})") from None
+    header = _check_header(f"{path}: columns", [name.strip().lower() for name in
+                                                table.column_names])
+    try:
+        text = pa.table({name: pc.fill_null(pc.cast(table.column(k), pa.string()), "")
+                         for k, name in enumerate(header)})
+    except pa.ArrowException as error:
+        raise InputError(f"{path}: a column cannot be read as text ({error})") from None
+    try:
+        return _convert(text)
+    except (pa.ArrowInvalid, _Rejected):
+        return _exact_rows(path, text, header)
 
 
 def _read_edge_list(path: Path) -> _Columns:
@@ -356,8 +378,12 @@ def _read_header(path: Path, delimiter: str) -> tuple[int, list]:
     if first is None:
         raise InputError(f"{path}: the file is empty")
     line, fields = first
-    header = [field.strip().lower() for field in fields]
-    where = f"{path}:{line}: header"
+    return line, _check_header(f"{path}:{line}: header", [field.strip().lower()
+                                                          for field in fields])
+
+
+def _check_header(where: str, header: list) -> list:
+    """The canonical column names, or :class:`InputError` for unknown, repeated or missing ones."""
     unknown = [name for name in header if name not in COLUMNS]
     if unknown:
         raise InputError(f"{where} has unknown column(s) {', '.join(map(repr, unknown))} "
@@ -369,7 +395,7 @@ def _read_header(path: Path, delimiter: str) -> tuple[int, list]:
     if missing:
         raise InputError(f"{where} has no column {', '.join(map(repr, missing))} "
                          f"(found {', '.join(map(repr, header))})")
-    return line, header
+    return header
 
 
 def _parse_number(text: str) -> float:
@@ -385,7 +411,7 @@ class _ColumnsBuilder:
     def __init__(self):
         self.from_labels, self.to_labels, self.values, self.kinds, self.names = [], [], [], [], []
 
-    def add_row(self, problems: ProblemList, line: int, fields: dict) -> None:
+    def add_row(self, problems: ProblemList, line: int | str, fields: dict) -> None:
         ok = True
         for column in ("from", "to"):
             if not fields[column]:
@@ -434,6 +460,15 @@ def _exact_table(path: Path, delimiter: str, header: list) -> _Columns:
     return rows.columns(named="name" in header)
 
 
+def _exact_rows(path: Path, text: pa.Table, header: list) -> _Columns:
+    """Exact pass over a table without lines (Parquet): problems are named by 1-based row."""
+    problems, rows = ProblemList(path), _ColumnsBuilder()
+    for row, fields in enumerate(text.to_pylist(), start=1):
+        rows.add_row(problems, f"row {row}", {name: fields[name].strip() for name in header})
+    problems.raise_if_any()
+    return rows.columns(named="name" in header)
+
+
 def _exact_edge_list(path: Path) -> _Columns:
     """Every line must have the form of the first branch line: ``from to ohms`` or ``from to``."""
     problems, rows = ProblemList(path), _ColumnsBuilder()
@@ -454,4 +489,5 @@ def _exact_edge_list(path: Path) -> _Columns:
     return rows.columns(named=False, values_defaulted=width == 2)
 
 
-__all__ = ["read_network", "read_network_file", "NetworkFile", "locate_lines", "table_delimiter", "COLUMNS", "REQUIRED_COLUMNS"]
+__all__ = ["read_network", "read_network_file", "NetworkFile", "locate_lines", "COLUMNS",
+           "REQUIRED_COLUMNS"]

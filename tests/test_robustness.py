@@ -91,6 +91,7 @@ FILES = {
     "tol_hundred.csv": "branch,tolerance\nr_upper,100%\n",
     "tol_source.csv": "branch,tolerance\nsupply,1%\n",
     "notes.txt": "not hdf5\n",
+    "broken.parquet": b"PAR1 not really a Parquet file",
 }
 FOLDERS = ("folder", "folder.h5", "folder.csv", "demo/sensor_board.csv")
 SOLUTIONS = {
@@ -172,8 +173,18 @@ REFUSED = [
     ("check folder", EXIT_BAD_INPUT, "folder: not a file"),
     ("check empty.csv", EXIT_BAD_INPUT, "empty.csv: the file is empty"),
     ("check header_only.csv", EXIT_BAD_INPUT, "holds no branches"),
-    ("check mixed.txt", EXIT_BAD_INPUT, "mixed.txt:2: 3 field(s), expected 2 (from to) like line 1"),
+    ("check mixed.txt", EXIT_BAD_INPUT,
+     "mixed.txt:2: 3 field(s), expected 2 (from to) like line 1"),
     ("solve mixed.txt -o out.h5", EXIT_BAD_INPUT, "mixed.txt:2: 3 field(s)"),
+    ("check sol.h5", EXIT_BAD_INPUT, "sol.h5: an HDF5 file is not a network file"),
+    ("check broken.parquet", EXIT_BAD_INPUT, "broken.parquet: not a readable Parquet file"),
+    ("resistance net.csv --pairs pairs.csv -o out.txt", EXIT_BAD_INPUT,
+     "-o out.txt: unsuitable output type '.txt'"),
+    ("compare net.csv meas.csv --accuracy 1% -o out.parquet", EXIT_BAD_INPUT,
+     "unsuitable output type '.parquet'"),
+    ("tolerance net.csv --observe mid --default 1% -o out.csv", EXIT_BAD_INPUT,
+     "(expected .h5, .hdf5)"),
+    ("generate ladder 3 -o net.xlsx", EXIT_BAD_INPUT, "unknown output type '.xlsx'"),
     ("check nul_label.csv", EXIT_BAD_INPUT, "nul_label.csv:2: column 'from': holds a NUL"),
     ("check net.csv --ground nowhere", EXIT_BAD_INPUT, "reference node 'nowhere'"),
     ("solve net.csv -o out.h5 --ground nowhere", EXIT_BAD_INPUT, "reference node 'nowhere'"),

@@ -22,8 +22,8 @@ def register(subparsers) -> None:
                     "sources, floating islands, bad values. Exit 0 when solvable, 1 when not, "
                     "2 when the file cannot be read.")
     parser.add_argument("network", metavar="NET",
-                        help="branch table (.csv or .tsv, optionally .gz) or whitespace edge "
-                             "list (from to ohms)")
+                        help="branch table (.csv or .tsv, optionally .gz, or .parquet) or "
+                             "whitespace edge list (from to ohms, or from to for 1 ohm)")
     parser.add_argument("--ground", default="0", metavar="LABEL",
                         help="label of the reference (0 V) node (default: 0)")
     parser.add_argument("--allow-floating", action="store_true",

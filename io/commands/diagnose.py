@@ -2,17 +2,17 @@
 
 from __future__ import annotations
 
-
 import numpy as np
 
 from ohmgraph.engine.readings.diagnosis import SHORT_RATIO, diagnose
 from ohmgraph.engine.readings.model import compare
-from ohmgraph.io.commands.compare import (add_network_arguments, add_output_arguments,
-                                          add_reading_arguments, model_readings, read_inputs,
-                                          write_table)
+from ohmgraph.io.commands.argtypes import fraction, whole_number
+from ohmgraph.io.commands.reading_model import model_readings, read_inputs, write_table
+from ohmgraph.io.commands.reading_options import (add_full_precision_argument,
+                                                  add_network_arguments, add_output_arguments,
+                                                  add_reading_arguments)
 from ohmgraph.io.errors import EXIT_OK, InputError
 from ohmgraph.io.jsonout import dumps
-from ohmgraph.io.commands.argtypes import fraction, whole_number
 
 
 def register(subparsers) -> None:
@@ -30,6 +30,7 @@ def register(subparsers) -> None:
     parser.add_argument("--short-ratio", type=fraction, default=SHORT_RATIO, metavar="F",
                         help=f"a short is the resistance times F (default {SHORT_RATIO:g})")
     add_output_arguments(parser)
+    add_full_precision_argument(parser)
     parser.set_defaults(run=run, command_group="diagnosis")
 
 

@@ -23,8 +23,8 @@ def register(subparsers) -> None:
                     "in a new HDF5 file and print a summary with the residual evidence. If the "
                     "network is not well-posed the check report is printed, nothing is written "
                     "and the exit code is 1.")
-    parser.add_argument("network", metavar="NET", help="network file (.csv, .tsv, edge list; "
-                                                       "optionally .gz)")
+    parser.add_argument("network", metavar="NET",
+                        help="network file (.csv, .tsv, .parquet, edge list; optionally .gz)")
     parser.add_argument("-o", "--output", required=True, metavar="OUT.h5",
                         help="HDF5 file to create")
     parser.add_argument("--method", choices=["auto", *SOLVERS], default="auto",

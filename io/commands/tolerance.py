@@ -9,9 +9,11 @@ from tqdm import tqdm
 
 from ohmgraph.engine.readings.model import Readings
 from ohmgraph.engine.readings.sensitivity import monte_carlo, tolerance_spread
-from ohmgraph.io.commands.compare import (add_network_arguments, add_output_arguments,
-                                          check_output, model_readings, write_table)
 from ohmgraph.io.commands.argtypes import whole_number
+from ohmgraph.io.commands.reading_model import model_readings, write_table
+from ohmgraph.io.commands.reading_options import (add_network_arguments, add_output_arguments,
+                                                  check_output)
+from ohmgraph.io.formats import HDF5
 from ohmgraph.io.errors import EXIT_OK, InputError
 from ohmgraph.io.jsonout import dumps
 from ohmgraph.io.measurement_table import parse_percent, read_tolerances
@@ -45,7 +47,7 @@ def register(subparsers) -> None:
                         help="Monte Carlo samples (values uniform within tolerance; default 0)")
     parser.add_argument("--seed", type=whole_number(0), default=0,
                         help="Monte Carlo seed (default 0)")
-    add_output_arguments(parser, (".h5", ".hdf5"))
+    add_output_arguments(parser, (HDF5,))
     parser.set_defaults(run=run, command_group="tolerance")
 
 
@@ -84,7 +86,7 @@ def _format(net, labels, spread, model, top, carlo) -> str:
 
 def run(args) -> int:
     """Run ``tolerance``; exit 0 after the analysis."""
-    check_output(args, (".h5", ".hdf5"))
+    check_output(args)
     if args.tolerances is None and args.default is None:
         raise InputError("give --tolerances FILE, --default PCT, or both")
     net = read_network(args.network, ground=args.ground)
