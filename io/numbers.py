@@ -8,8 +8,13 @@ Rules (the README's "Printed numbers" section states them for users):
   digit shown is the first one the accuracy leaves uncertain (common practice in measurement
   reporting: a result is rounded to the decimal place of its uncertainty). Relative accuracy
   1e-9 gives 9 digits; 8 % gives 2.
-* A value with no stated accuracy is shown to :data:`DEFAULT_DIGITS` digits; an error bound or
-  band itself to :data:`UNCERTAINTY_DIGITS`.
+* A value shown beside its absolute uncertainty ``u`` (a reading beside its instrument band, a
+  Monte Carlo range beside its standard deviation) is rounded to the decimal place of the
+  second significant digit of ``u``, and ``u`` itself is shown to
+  :data:`UNCERTAINTY_DIGITS` digits (the rule of the Guide to the Expression of Uncertainty in
+  Measurement, JCGM 100:2008, 7.2.6: uncertainties to at most two significant digits, the
+  value to the same decimal place): :func:`digits_beside`.
+* A value with no stated accuracy is shown to :data:`DEFAULT_DIGITS` digits.
 * CSV files hold at most :data:`CSV_DIGITS` significant digits; with full precision (the
   ``--full-precision`` option) every float is written as Python's ``repr``, the shortest text
   that reads back to the same double. HDF5 files always hold the doubles themselves.
@@ -55,12 +60,43 @@ def digits_for(relative_accuracy, default: int = DEFAULT_DIGITS) -> int:
     return min(MAX_DIGITS, max(1, math.ceil(-math.log10(accuracy) - 1e-9)))
 
 
-def significant(value, digits: int = DEFAULT_DIGITS) -> str:
-    """``value`` to ``digits`` significant digits (``g`` style, ``-0`` shown as ``0``)."""
+def digits_beside(value, uncertainty, default: int = DEFAULT_DIGITS) -> int:
+    """Significant digits that round ``value`` to the decimal place of the second significant
+    digit of its absolute ``uncertainty`` (clipped to ``[1, MAX_DIGITS]``).
+
+    Parameters
+    ----------
+    value, uncertainty : float
+    default : int
+        Digits when either is zero or not finite.
+    """
+    value, uncertainty = abs(float(value)), abs(float(uncertainty))
+    if not (math.isfinite(value) and math.isfinite(uncertainty)) or value == 0 or \
+            uncertainty == 0:
+        return default
+    place = math.floor(math.log10(value)) - math.floor(math.log10(uncertainty))
+    return min(MAX_DIGITS, max(1, place + UNCERTAINTY_DIGITS))
+
+
+def significant(value, digits: int = DEFAULT_DIGITS, sign: bool = False) -> str:
+    """``value`` to ``digits`` significant digits (``g`` style, ``-0`` shown as ``0``).
+
+    With ``sign``, positive values (and zero) get a ``+``.
+    """
+    value = float(value)
+    plus = "+" if sign else ""
+    if not math.isfinite(value):
+        return f"{value:{plus}}"
+    return f"{value + 0.0:{plus}.{int(digits)}g}"
+
+
+def uncertainty(value) -> str:
+    """An uncertainty, band or spread to :data:`UNCERTAINTY_DIGITS` digits, trailing zeros kept
+    (``0.0020``), so the decimal place the value beside it is rounded to stays visible."""
     value = float(value)
     if not math.isfinite(value):
         return str(value)
-    return f"{value + 0.0:.{int(digits)}g}"
+    return f"{value + 0.0:#.{UNCERTAINTY_DIGITS}g}".rstrip(".").replace(".e", "e")
 
 
 def quantity(value, unit: str, digits: int = DEFAULT_DIGITS) -> str:
@@ -77,5 +113,5 @@ def csv_float_format(full_precision: bool = False) -> str | None:
     return None if full_precision else f"%.{CSV_DIGITS}g"
 
 
-__all__ = ["digits_for", "significant", "quantity", "csv_float_format", "DEFAULT_DIGITS",
+__all__ = ["digits_for", "digits_beside", "significant", "uncertainty", "quantity", "csv_float_format", "DEFAULT_DIGITS",
            "UNCERTAINTY_DIGITS", "MAX_DIGITS", "CSV_DIGITS"]

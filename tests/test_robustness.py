@@ -276,6 +276,7 @@ ACCEPTED = [
     # an open-circuit reading against a connected pair fails its comparison (common practice)
     ("compare net.csv meas_open.csv --accuracy 1%", EXIT_FAILED, "FAIL"),
     ("resistance net.csv --pairs pairs_same_node.csv", EXIT_OK, "mid,mid,0"),
+    ("resistance net.csv --pairs pairs.csv --full-precision", EXIT_OK, "top,mid,"),
     ("resistance islands.csv --pairs pairs_islands.csv", EXIT_OK, "a,b,inf"),
     ("diagnose sources_only.csv meas_sources_only.csv --accuracy 1%", EXIT_OK,
      "nothing to diagnose"),

@@ -12,6 +12,7 @@ from ohmgraph.io.commands.reading_options import (add_full_precision_argument,
 from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK
 from ohmgraph.io.jsonout import dumps
 from ohmgraph.io.measurement_table import UNIT_NAME
+from ohmgraph.io.numbers import UNCERTAINTY_DIGITS, digits_beside, significant, uncertainty
 
 
 def register(subparsers) -> None:
@@ -49,18 +50,22 @@ def _format(columns: dict, summary: dict, failures_only: bool) -> str:
         if failures_only and columns["status"][row] == "pass":
             continue
         unit = UNIT_NAME[columns["kind"][row]]
+        band = columns["band"][row]
+        measured, model = columns["measured"][row], columns["model"][row]
         lines.append(
             f"{columns['line'][row]:>5} {columns['kind'][row]:4} {columns['a'][row]:>12} "
-            f"{columns['b'][row] or '-':>12} {columns['measured'][row]:>12.6g} {unit:<1} "
-            f"{columns['model'][row]:>12.6g} {unit:<1} {columns['deviation'][row]:>+12.4g} "
-            f"{columns['band'][row]:>11.4g} {columns['status'][row]}")
+            f"{columns['b'][row] or '-':>12} "
+            f"{significant(measured, digits_beside(measured, band)):>12} {unit:<1} "
+            f"{significant(model, digits_beside(model, band)):>12} {unit:<1} "
+            f"{significant(columns['deviation'][row], UNCERTAINTY_DIGITS + 1, sign=True):>12} "
+            f"{uncertainty(band):>11} {columns['status'][row]}")
     lines.append(f"{summary['passed']} of {summary['readings']} reading(s) within accuracy, "
                  f"{summary['failed']} outside"
                  + (f" ({summary['unusable']} with no unique model value)"
                     if summary["unusable"] else ""))
     if summary["worst_line"] is not None and summary["failed"]:
         lines.append(f"worst: line {summary['worst_line']}, "
-                     f"{summary['worst_normalized_deviation']:+.3g} bands")
+                     f"{significant(summary['worst_normalized_deviation'], 3, sign=True)} bands")
     return "\n".join(lines)
 
 
