@@ -185,6 +185,7 @@ REFUSED = [
     ("tolerance net.csv --observe mid --default 1% -o out.csv", EXIT_BAD_INPUT,
      "(expected .h5, .hdf5)"),
     ("generate ladder 3 -o net.xlsx", EXIT_BAD_INPUT, "unknown output type '.xlsx'"),
+    ("solve net.csv -o out.csv", EXIT_BAD_INPUT, "-o out.csv: unsuitable output type '.csv'"),
     ("check nul_label.csv", EXIT_BAD_INPUT, "nul_label.csv:2: column 'from': holds a NUL"),
     ("check net.csv --ground nowhere", EXIT_BAD_INPUT, "reference node 'nowhere'"),
     ("solve net.csv -o out.h5 --ground nowhere", EXIT_BAD_INPUT, "reference node 'nowhere'"),

@@ -10,6 +10,7 @@ from ohmgraph.io.commands.argtypes import positive_float
 from ohmgraph.io.atomic import refuse_existing, refuse_input
 from ohmgraph.io.check_view import format_report, report_to_dict
 from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, SolverError
+from ohmgraph.io.formats import HDF5, require_format
 from ohmgraph.io.jsonout import dumps
 from ohmgraph.io.reader import read_network_file
 from ohmgraph.io.solution_view import format_solution, solution_summary
@@ -44,6 +45,7 @@ def run(args) -> int:
     """Run ``solve``; return the exit code (see :mod:`ohmgraph.io.errors`)."""
     refuse_input(args.output, [args.network])
     refuse_existing(args.output, args.force)
+    require_format(args.output, (HDF5,), role="-o")
     start = time.perf_counter()
     read = read_network_file(args.network, ground=args.ground)
     net = read.network
