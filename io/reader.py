@@ -264,9 +264,9 @@ def _read_edge_list(path: Path) -> _Columns:
             lines = pc.list_element(pc.split_pattern(lines, "#", max_splits=1), 0)
         fields = pc.utf8_split_whitespace(lines)
         count = pc.list_value_length(fields).to_numpy()
-        widths = np.unique(count[count != 0])
-        width = int(widths[0]) if widths.size else len(EDGE_LIST_FIELDS)
-        if widths.size > 1 or width not in EDGE_LIST_FORMS:
+        counted = count[count != 0]
+        width = int(counted[0]) if counted.size else len(EDGE_LIST_FIELDS)
+        if width not in EDGE_LIST_FORMS or (counted.size and counted.min() != counted.max()):
             raise _Rejected
         flat = pc.list_flatten(fields)
         starts = np.arange(0, len(flat), width)

@@ -38,6 +38,8 @@ from ohmgraph.io.store import (decode_strings, encode_strings, file_sha256, flat
                                tool_version)
 
 COMPRESS_FROM = 4096
+# Defaults the commands set for themselves, not options a user gave.
+INTERNAL_ARGUMENTS = ("command_group", "output_formats")
 
 
 def _plain_array(values) -> np.ndarray:
@@ -87,9 +89,9 @@ def provenance(sources: dict | None = None, command: str | None = None,
 
 
 def command_options(args) -> dict:
-    """The plain options of a parsed command line (functions and private names left out)."""
+    """The plain options of a parsed command line (functions and internal defaults left out)."""
     return {key: value for key, value in vars(args).items()
-            if not key.startswith("_") and not callable(value)
+            if key not in INTERNAL_ARGUMENTS and not callable(value)
             and isinstance(value, (str, int, float, bool, list, tuple, type(None)))}
 
 

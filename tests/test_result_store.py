@@ -40,6 +40,7 @@ def test_resistance_group_carries_provenance_and_layout_version(tmp_path, divide
         assert attrs["pairs_file"] == "pairs.csv" and attrs["command"] == "resistance"
     options = json.loads(group["command_options"])
     assert options["pairs"] == str(pairs) and options["method"] == "auto"
+    assert "run" not in options and "output_formats" not in options
     assert root["result"] == "resistance" and "created" in group and "tool_version" in group
 
 
