@@ -10,6 +10,8 @@ import numpy as np
 
 from ohmgraph.engine.checks import CheckReport, Finding
 from ohmgraph.engine.network import Network
+from ohmgraph.io.formats import network_format
+from ohmgraph.io.numbers import significant
 from ohmgraph.io.reader import locate_lines
 
 SHOWN_IN_TEXT = 5
@@ -30,14 +32,19 @@ def _listing(items: list, total: int) -> str:
     return ", ".join(items) + more
 
 
-def _finding_text(finding: Finding, net: Network, lines: dict) -> list:
+def _place_word(source) -> str:
+    """``line`` for text files, ``row`` for files without lines (Parquet)."""
+    return "line" if source is None or network_format(source).format.lines else "row"
+
+
+def _finding_text(finding: Finding, net: Network, lines: dict, word: str = "line") -> list:
     text = [f"{finding.severity} {finding.code}: {finding.message}"]
     if finding.nodes.size:
         labels = [repr(str(label)) for label in net.node_labels[finding.nodes[:SHOWN_IN_TEXT]]]
         text.append(f"    nodes: {_listing(labels, finding.nodes.size)}")
     if finding.branches.size:
         shown = finding.branches[:SHOWN_IN_TEXT].tolist()
-        names = [repr(str(net.branch_names[k])) + (f" (line {lines[k]})" if k in lines else "")
+        names = [repr(str(net.branch_names[k])) + (f" ({word} {lines[k]})" if k in lines else "")
                  for k in shown]
         text.append(f"    branches: {_listing(names, finding.branches.size)}")
     return text
@@ -54,7 +61,7 @@ def _summary_text(summary: dict) -> list:
         f"supernodes {summary['supernodes']}, unknowns {summary['unknowns']}, "
         f"rank {summary['rank']}",
         "conductance spread " + ("n/a (no positive resistance)" if spread is None
-                                 else f"{spread:.3g}"),
+                                 else significant(spread, 3)),
     ]
 
 
@@ -86,8 +93,9 @@ def format_report(report: CheckReport, net: Network, source=None) -> str:
     """
     lines = _branch_lines(report, source, SHOWN_IN_TEXT)
     text = ([f"network {source}"] if source is not None else []) + _summary_text(report.summary)
+    word = _place_word(source)
     for finding in report.findings:
-        text += _finding_text(finding, net, lines)
+        text += _finding_text(finding, net, lines, word)
     text.append(verdict(report))
     return "\n".join(text)
 

@@ -29,6 +29,13 @@ class OutputRefused(UserError):
     exit_code = EXIT_OUTPUT_REFUSED
 
 
+class NotWellPosed(UserError):
+    """The network (or its passive version, for resistance queries) fails its checks: it has no
+    unique solution. The message carries the check report or the reason."""
+
+    exit_code = EXIT_FAILED
+
+
 class SolverError(UserError):
     """The linear solve did not reach the requested accuracy."""
 
@@ -50,7 +57,8 @@ class ProblemList:
         self.messages = []
         self.count = 0
 
-    def add(self, line: int, message: str) -> None:
+    def add(self, line: int | str, message: str) -> None:
+        """Record a problem at ``line`` (a line number, or ``"row N"`` for files without lines)."""
         self.count += 1
         if len(self.messages) < MAX_REPORTED_PROBLEMS:
             self.messages.append(f"{self.path}:{line}: {message}")

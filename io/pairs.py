@@ -1,12 +1,9 @@
-"""Pairs files in, resistance tables out.
+"""Pairs files: the node pairs of a batch resistance query.
 
 A pairs file is CSV with a header naming the columns ``a`` and ``b`` (case-insensitive, any
 order, other columns ignored), one node pair per line. Every problem is reported with the file,
-the physical line and the column; blank lines count as lines with empty fields.
-
-Result tables are written atomically (:func:`ohmgraph.io.atomic.atomic_output`) as CSV, or as
-HDF5 when the output name ends in ``.h5`` or ``.hdf5``: one dataset per column in the group
-``/resistance``, text as UTF-8 strings, with the run's summary as attributes of the group.
+the physical line and the column; blank lines count as lines with empty fields. (The result
+tables are written by :mod:`ohmgraph.io.result_table`.)
 """
 
 from __future__ import annotations
@@ -17,13 +14,9 @@ import numpy as np
 import pandas as pd
 
 from ohmgraph.engine.network import Network
-from ohmgraph.io.atomic import atomic_output
 from ohmgraph.io.errors import InputError
 
 PAIR_COLUMNS = ("a", "b")
-HDF5_SUFFIXES = (".h5", ".hdf5")
-TABLE_SUFFIXES = (".csv", *HDF5_SUFFIXES)
-HDF5_GROUP = "resistance"
 HEADER_LINES = 1
 
 
@@ -88,50 +81,3 @@ def read_pairs(path, net: Network) -> tuple[np.ndarray, np.ndarray, np.ndarray, 
         labels.append(values)
         indices.append(found)
     return labels[0], labels[1], indices[0], indices[1]
-
-
-def check_table_path(path) -> Path:
-    """Refuse an output name whose extension is neither CSV nor HDF5 (before any work)."""
-    path = Path(path)
-    if path.suffix.lower() not in TABLE_SUFFIXES:
-        raise InputError(f"{path}: unknown output type {path.suffix!r} "
-                         f"(expected {', '.join(TABLE_SUFFIXES)})")
-    return path
-
-
-def write_table(path, columns: dict, force: bool = False, attributes: dict | None = None) -> None:
-    """Write named, equal-length columns as a CSV or HDF5 table, atomically.
-
-    Parameters
-    ----------
-    path : str or Path
-        ``.csv``, ``.h5`` or ``.hdf5``.
-    columns : dict of str -> array_like
-    force : bool
-        Overwrite an existing file.
-    attributes : dict, optional
-        HDF5 only: scalar summary values stored as attributes of ``/resistance``.
-    """
-    path = check_table_path(path)
-    frame = pd.DataFrame(columns)
-    with atomic_output(path, force) as temporary:
-        if path.suffix.lower() in HDF5_SUFFIXES:
-            _write_hdf5(temporary, frame, attributes or {})
-        else:
-            frame.to_csv(temporary, index=False, float_format="%.17g")
-
-
-def _write_hdf5(path: Path, frame: pd.DataFrame, attributes: dict) -> None:
-    import h5py
-
-    with h5py.File(path, "w") as store:
-        group = store.create_group(HDF5_GROUP)
-        for name in frame.columns:
-            values = frame[name].to_numpy()
-            if values.dtype.kind in "OUS":
-                group.create_dataset(name, data=values.astype(str).astype(object),
-                                     dtype=h5py.string_dtype("utf-8"))
-            else:
-                group.create_dataset(name, data=values)
-        for key, value in attributes.items():
-            group.attrs[key] = value

@@ -1,13 +1,21 @@
-"""Read a network from a branch table (CSV or TSV) or a plain edge list.
+"""Read a network from a branch table (CSV, TSV or Parquet) or a plain edge list.
 
-Formats, chosen by the file extension after an optional ``.gz``:
+Formats, chosen by the file extension (after an optional ``.gz``) through
+:mod:`ohmgraph.io.formats`:
 
 * ``.csv`` (comma) and ``.tsv`` (tab): a header row naming the columns ``name``, ``kind``,
   ``from``, ``to``, ``value`` in any order (case-insensitive). ``from``, ``to`` and ``value`` are
   required; a missing ``name`` column names each branch by its 1-based row number, a missing
   ``kind`` column makes every branch a resistor, and an empty ``kind`` field means ``R``.
+* ``.parquet``: the same columns and rules as a branch table (any column types: numbers and
+  labels are read through their text, so integer labels become decimal text and values keep
+  every digit); problems are reported by row (``FILE:row 3: column 'value': ...``).
 * any other extension: a plain edge list, one resistor per line as ``from to ohms`` separated by
-  spaces or tabs, with ``#`` comments (whole lines or trailing) and blank lines allowed.
+  spaces or tabs, with ``#`` comments (whole lines or trailing) and blank lines allowed. A file
+  whose lines all hold two fields (``from to``, the usual form of an unweighted graph) is read as
+  1 ohm resistors, and :func:`read_network_file` says so with an ``info`` finding
+  (``default-resistance``); a file that mixes two- and three-field lines is refused at the first
+  line that differs from the first branch line.
 
 Surrounding spaces are trimmed from every field. Node labels are arbitrary text.
 
@@ -22,21 +30,26 @@ from __future__ import annotations
 
 import csv
 import gzip
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 import pyarrow.csv as pa_csv
+import pyarrow.parquet as pq
 
+from ohmgraph.engine.checks import INFO, CheckReport, Finding, check
 from ohmgraph.engine.network import KIND_CODE, RESISTOR, Network
 from ohmgraph.io.errors import InputError, ProblemList
+from ohmgraph.io.formats import EDGE_LIST, PARQUET, network_format
 
 COLUMNS = ("name", "kind", "from", "to", "value")
 REQUIRED_COLUMNS = ("from", "to", "value")
-TABLE_DELIMITERS = {".csv": ",", ".tsv": "\t"}
 EDGE_LIST_FIELDS = ("from", "to", "value")
+# Edge-list line forms by field count: weighted (from to ohms) and unweighted (from to).
+EDGE_LIST_FORMS = {3: "from to ohms", 2: "from to"}
+DEFAULT_OHMS = 1.0          # the resistance of every branch of a two-field edge list
 # Edge-list lines are read whole by splitting on a control character (ASCII unit separator) that
 # text files do not hold; a line that does hold one goes to the exact pass.
 _UNUSED_DELIMITER = "\x1f"
@@ -56,6 +69,30 @@ class _Columns:
     value: np.ndarray
     kind: np.ndarray
     names: pa.Array | None
+    values_defaulted: bool = False
+
+
+@dataclass(frozen=True)
+class NetworkFile:
+    """A network read from a file, with the facts the reader had to assume.
+
+    Attributes
+    ----------
+    path : Path
+    network : Network
+    findings : tuple of Finding
+        ``info`` findings about the reading itself (for example ``default-resistance`` when
+        every value was defaulted to 1 ohm); :meth:`check` adds them to the check report.
+    """
+
+    path: Path
+    network: Network
+    findings: tuple = ()
+
+    def check(self, allow_floating: bool = False) -> CheckReport:
+        """:func:`ohmgraph.engine.check` of the network, the reader's findings appended."""
+        report = check(self.network, allow_floating=allow_floating)
+        return replace(report, findings=report.findings + list(self.findings))
 
 
 class _Rejected(Exception):
@@ -64,19 +101,39 @@ class _Rejected(Exception):
 
 # ---------------------------------------------------------------------------------- public API
 def read_network(path, ground: str = "0") -> Network:
-    """Read a network file.
+    """Read a network file (:func:`read_network_file` without the reader's findings).
+
+    Parameters
+    ----------
+    path : str or Path
+    ground : str, default ``"0"``
+
+    Returns
+    -------
+    Network
+
+    Raises
+    ------
+    InputError
+        As for :func:`read_network_file`.
+    """
+    return read_network_file(path, ground).network
+
+
+def read_network_file(path, ground: str = "0") -> NetworkFile:
+    """Read a network file and record what the reader assumed.
 
     Parameters
     ----------
     path : str or Path
         A ``.csv`` / ``.tsv`` branch table or a whitespace edge list, optionally gzip-compressed
-        (``.gz``).
+        (``.gz``), or a ``.parquet`` branch table.
     ground : str, default ``"0"``
         Label of the reference (0 V) node; it must be one of the nodes.
 
     Returns
     -------
-    Network
+    NetworkFile
 
     Raises
     ------
@@ -89,21 +146,34 @@ def read_network(path, ground: str = "0") -> Network:
         raise InputError(f"{path}: no such file")
     if not path.is_file():
         raise InputError(f"{path}: not a file")
-    delimiter = table_delimiter(path)
+    found = network_format(path)
     try:
-        if delimiter is None:
+        if found.name == EDGE_LIST:
             columns = _read_edge_list(path)
+        elif found.name == PARQUET:
+            columns = _read_parquet(path)
         else:
-            columns = _read_table(path, delimiter)
+            columns = _read_table(path, found.format.delimiter)
     except (OSError, EOFError) as error:      # unreadable gzip stream or a failing disk
         raise InputError(f"{path}: cannot be read ({error})") from None
-    return _build_network(path, columns, str(ground))
+    network = _build_network(path, columns, str(ground))
+    return NetworkFile(path, network, _reading_findings(columns))
+
+
+def _reading_findings(columns: _Columns) -> tuple:
+    if not columns.values_defaulted:
+        return ()
+    count = len(columns.from_labels)
+    return (Finding(INFO, "default-resistance",
+                    f"the edge list gives no values (two fields per line, from to): each of "
+                    f"its {count} branch(es) is read as a {DEFAULT_OHMS:g} ohm resistor"),)
 
 
 def locate_lines(path, rows) -> np.ndarray:
-    """Physical 1-based line numbers of the given 0-based branch rows of a network file.
+    """Physical 1-based line numbers of the given 0-based branch rows of a text network file.
 
-    An exact (slow) pass over the file, meant for decorating a few findings.
+    An exact (slow) pass over the file, meant for decorating a few findings. Formats without
+    lines (Parquet) give the 1-based row numbers.
 
     Parameters
     ----------
@@ -127,7 +197,10 @@ def locate_lines(path, rows) -> np.ndarray:
     wanted = set(rows.ravel().tolist())
     last = max(wanted)
     found = {}
-    delimiter = table_delimiter(path)
+    file_format = network_format(path)
+    if not file_format.format.lines:
+        return rows + 1
+    delimiter = file_format.format.delimiter
     records = _edge_records(path) if delimiter is None else _table_records(path, delimiter)
     if delimiter is not None:
         next(records, None)                     # the header
@@ -140,14 +213,6 @@ def locate_lines(path, rows) -> np.ndarray:
     if missing:
         raise InputError(f"{path}: has no branch row {min(missing)} (0-based)")
     return np.vectorize(found.__getitem__, otypes=[np.int64])(rows)
-
-
-def table_delimiter(path) -> str | None:
-    """Field delimiter of a branch table (``","`` or tab), or None for a whitespace edge list."""
-    name = Path(path).name.lower()
-    if name.endswith(".gz"):
-        name = name[:-3]
-    return TABLE_DELIMITERS.get(Path(name).suffix)
 
 
 # ---------------------------------------------------------------------------------- fast path
@@ -166,6 +231,25 @@ def _read_table(path: Path, delimiter: str) -> _Columns:
         return _exact_table(path, delimiter, header)
 
 
+def _read_parquet(path: Path) -> _Columns:
+    """A Parquet branch table: every column through its text, then the table's conversions."""
+    try:
+        table = pq.read_table(path)
+    except (pa.ArrowException, OSError) as error:
+        raise InputError(f"{path}: not a readable Parquet file ({error})") from None
+    header = _check_header(f"{path}: columns", [name.strip().lower() for name in
+                                                table.column_names])
+    try:
+        text = pa.table({name: pc.fill_null(pc.cast(table.column(k), pa.string()), "")
+                         for k, name in enumerate(header)})
+    except pa.ArrowException as error:
+        raise InputError(f"{path}: a column cannot be read as text ({error})") from None
+    try:
+        return _convert(text)
+    except (pa.ArrowInvalid, _Rejected):
+        return _exact_rows(path, text, header)
+
+
 def _read_edge_list(path: Path) -> _Columns:
     """Whole lines through ``pyarrow.csv`` (no delimiter, no quoting), then vectorised splitting."""
     try:
@@ -180,12 +264,14 @@ def _read_edge_list(path: Path) -> _Columns:
             lines = pc.list_element(pc.split_pattern(lines, "#", max_splits=1), 0)
         fields = pc.utf8_split_whitespace(lines)
         count = pc.list_value_length(fields).to_numpy()
-        if np.any((count != 0) & (count != len(EDGE_LIST_FIELDS))):
+        counted = count[count != 0]
+        width = int(counted[0]) if counted.size else len(EDGE_LIST_FIELDS)
+        if width not in EDGE_LIST_FORMS or (counted.size and counted.min() != counted.max()):
             raise _Rejected
         flat = pc.list_flatten(fields)
-        every_third = np.arange(0, len(flat), len(EDGE_LIST_FIELDS))
-        return _convert(pa.table({name: flat.take(every_third + k)
-                                  for k, name in enumerate(EDGE_LIST_FIELDS)}))
+        starts = np.arange(0, len(flat), width)
+        return _convert(pa.table({name: flat.take(starts + k)
+                                  for k, name in enumerate(EDGE_LIST_FIELDS[:width])}))
     except (pa.ArrowInvalid, _Rejected):
         return _exact_edge_list(path)
 
@@ -202,7 +288,9 @@ def _convert(table: pa.Table) -> _Columns:
     for column in ("from", "to", "name"):
         if column in table.column_names and pc.any(pc.match_substring(table[column], NUL)).as_py():
             raise _Rejected
-    value = pc.cast(trimmed("value"), pa.float64()).to_numpy(zero_copy_only=False)
+    defaulted = "value" not in table.column_names
+    value = (np.full(len(table), DEFAULT_OHMS) if defaulted else
+             pc.cast(trimmed("value"), pa.float64()).to_numpy(zero_copy_only=False))
     if "kind" in table.column_names:
         spellings = pa.array(list(KIND_SPELLINGS))
         position = pc.index_in(pc.utf8_upper(trimmed("kind")), value_set=spellings)
@@ -212,7 +300,7 @@ def _convert(table: pa.Table) -> _Columns:
     else:
         kind = np.full(len(table), RESISTOR, np.uint8)
     names = trimmed("name") if "name" in table.column_names else None
-    return _Columns(from_labels, to_labels, value, kind, names)
+    return _Columns(from_labels, to_labels, value, kind, names, defaulted)
 
 
 def _build_network(path: Path, columns: _Columns, ground: str) -> Network:
@@ -290,8 +378,12 @@ def _read_header(path: Path, delimiter: str) -> tuple[int, list]:
     if first is None:
         raise InputError(f"{path}: the file is empty")
     line, fields = first
-    header = [field.strip().lower() for field in fields]
-    where = f"{path}:{line}: header"
+    return line, _check_header(f"{path}:{line}: header", [field.strip().lower()
+                                                          for field in fields])
+
+
+def _check_header(where: str, header: list) -> list:
+    """The canonical column names, or :class:`InputError` for unknown, repeated or missing ones."""
     unknown = [name for name in header if name not in COLUMNS]
     if unknown:
         raise InputError(f"{where} has unknown column(s) {', '.join(map(repr, unknown))} "
@@ -303,7 +395,7 @@ def _read_header(path: Path, delimiter: str) -> tuple[int, list]:
     if missing:
         raise InputError(f"{where} has no column {', '.join(map(repr, missing))} "
                          f"(found {', '.join(map(repr, header))})")
-    return line, header
+    return header
 
 
 def _parse_number(text: str) -> float:
@@ -319,7 +411,7 @@ class _ColumnsBuilder:
     def __init__(self):
         self.from_labels, self.to_labels, self.values, self.kinds, self.names = [], [], [], [], []
 
-    def add_row(self, problems: ProblemList, line: int, fields: dict) -> None:
+    def add_row(self, problems: ProblemList, line: int | str, fields: dict) -> None:
         ok = True
         for column in ("from", "to"):
             if not fields[column]:
@@ -336,7 +428,7 @@ class _ColumnsBuilder:
                                "(R, V or I)")
             ok = False
         try:
-            value = _parse_number(fields["value"])
+            value = _parse_number(fields["value"]) if "value" in fields else DEFAULT_OHMS
         except ValueError:
             problems.add(line, "column 'value': " + (f"{fields['value']!r} is not a number"
                                                      if fields["value"] else "empty"))
@@ -348,10 +440,10 @@ class _ColumnsBuilder:
             self.kinds.append(kind)
             self.names.append(fields.get("name"))
 
-    def columns(self, named: bool) -> _Columns:
+    def columns(self, named: bool, values_defaulted: bool = False) -> _Columns:
         return _Columns(pa.array(self.from_labels, pa.string()), pa.array(self.to_labels, pa.string()),
                         np.asarray(self.values, np.float64), np.asarray(self.kinds, np.uint8),
-                        pa.array(self.names, pa.string()) if named else None)
+                        pa.array(self.names, pa.string()) if named else None, values_defaulted)
 
 
 def _exact_table(path: Path, delimiter: str, header: list) -> _Columns:
@@ -368,15 +460,34 @@ def _exact_table(path: Path, delimiter: str, header: list) -> _Columns:
     return rows.columns(named="name" in header)
 
 
-def _exact_edge_list(path: Path) -> _Columns:
+def _exact_rows(path: Path, text: pa.Table, header: list) -> _Columns:
+    """Exact pass over a table without lines (Parquet): problems are named by 1-based row."""
     problems, rows = ProblemList(path), _ColumnsBuilder()
+    for row, fields in enumerate(text.to_pylist(), start=1):
+        rows.add_row(problems, f"row {row}", {name: fields[name].strip() for name in header})
+    problems.raise_if_any()
+    return rows.columns(named="name" in header)
+
+
+def _exact_edge_list(path: Path) -> _Columns:
+    """Every line must have the form of the first branch line: ``from to ohms`` or ``from to``."""
+    problems, rows = ProblemList(path), _ColumnsBuilder()
+    width = first = None
     for line, fields in _edge_records(path):
-        if len(fields) != len(EDGE_LIST_FIELDS):
-            problems.add(line, f"{len(fields)} field(s), expected 3 (from to ohms)")
+        if width is None and len(fields) in EDGE_LIST_FORMS:
+            width, first = len(fields), line
+        if width is None:
+            problems.add(line, f"{len(fields)} field(s), expected 3 (from to ohms) or 2 (from to)")
+            continue
+        if len(fields) != width:
+            problems.add(line, f"{len(fields)} field(s), expected {width} "
+                               f"({EDGE_LIST_FORMS[width]}) like line {first}; an edge list "
+                               "gives every line a value or none")
             continue
         rows.add_row(problems, line, dict(zip(EDGE_LIST_FIELDS, fields)))
     problems.raise_if_any()
-    return rows.columns(named=False)
+    return rows.columns(named=False, values_defaulted=width == 2)
 
 
-__all__ = ["read_network", "locate_lines", "table_delimiter", "COLUMNS", "REQUIRED_COLUMNS"]
+__all__ = ["read_network", "read_network_file", "NetworkFile", "locate_lines", "COLUMNS",
+           "REQUIRED_COLUMNS"]

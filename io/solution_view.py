@@ -10,9 +10,12 @@ from __future__ import annotations
 import numpy as np
 
 from ohmgraph.engine.solve import Solution
+from ohmgraph.io.numbers import digits_for, quantity, significant
 from ohmgraph.io.store import StoredSolution
 
 POWER_CAUTION = "caution: computed power is not a rating check; compare with each part's rating"
+EVIDENCE_DIGITS = 3       # residuals and balances: sizes of errors, not values
+TIME_DIGITS = 3
 
 
 def _findings_digest(findings) -> list:
@@ -46,17 +49,12 @@ def summary_from_stored(stored: StoredSolution) -> dict:
     return summary
 
 
-def _number(value: float) -> str:
-    """Six significant digits; negative zero shown as 0."""
-    return f"{value + 0.0:.6g}"
-
-
-def _table(rows: list, unit: str) -> list:
+def _table(rows: list, unit: str, digits: int) -> list:
     """Aligned lines for a list of ``{"branch", "kind", "from", "to", "value"}`` rows."""
     if not rows:
         return ["  (none)"]
-    cells = [(r["branch"], r["kind"], f'{r["from"]} -> {r["to"]}', f'{_number(r["value"])} {unit}')
-             for r in rows]
+    cells = [(r["branch"], r["kind"], f'{r["from"]} -> {r["to"]}',
+              quantity(r["value"], unit, digits)) for r in rows]
     widths = [max(len(c[i]) for c in cells) for i in range(4)]
     return ["  " + "  ".join(c[i].ljust(widths[i]) if i < 3 else c[i].rjust(widths[i])
                              for i in range(4)) for c in cells]
@@ -68,31 +66,41 @@ def format_solution(summary: dict) -> str:
     Shows the size of the network, the solver and its evidence (relative residual of the
     reduced system, largest KCL residual and where, power balance), the voltage range, the
     largest branch currents, resistor powers and source powers, check findings other than
-    errors, notes and the time spent per stage.
+    errors, notes and the time spent per stage. Solved values are shown to the digits the
+    solver's ``rtol`` supports (:func:`ohmgraph.io.numbers.digits_for`), residuals to three.
     """
     s = summary
+    digits = digits_for(s["rtol"])
+
+    def value(number, unit):
+        return quantity(number, unit, digits)
+
+    def evidence(number):
+        return significant(number, EVIDENCE_DIGITS)
+
     unknowns = "" if s.get("unknowns") is None else f", {s['unknowns']:,} unknown(s)"
     low, high = s["voltage_min"], s["voltage_max"]
     lines = [
         f"network   {s['nodes']:,} nodes, {s['branches']:,} branches, reference node "
         f"{s['reference']}",
         f"solver    {s['method']}, {s['iterations']} iteration(s), rtol {s['rtol']:.1e}{unknowns}",
-        f"evidence  relative residual {s['relative_residual']:.3e}",
-        f"          KCL max residual {s['kcl_max_residual_A']:.3e} A (node {s['kcl_worst_node']})",
-        f"          power balance {s['power_balance_W']:.3e} W (sources deliver "
-        f"{_number(s['power_delivered_W'])} W; resistors dissipate "
-        f"{_number(s['power_dissipated_W'])} W, sources absorb "
-        f"{_number(s['power_absorbed_by_sources_W'])} W)",
-        f"voltages  min {_number(low['volts'])} V (node {low['node']}), "
-        f"max {_number(high['volts'])} V (node {high['node']})",
+        f"evidence  relative residual {evidence(s['relative_residual'])}",
+        f"          KCL max residual {evidence(s['kcl_max_residual_A'])} A "
+        f"(node {s['kcl_worst_node']})",
+        f"          power balance {evidence(s['power_balance_W'])} W (sources deliver "
+        f"{value(s['power_delivered_W'], 'W')}; resistors dissipate "
+        f"{value(s['power_dissipated_W'], 'W')}, sources absorb "
+        f"{value(s['power_absorbed_by_sources_W'], 'W')})",
+        f"voltages  min {value(low['volts'], 'V')} (node {low['node']}), "
+        f"max {value(high['volts'], 'V')} (node {high['node']})",
     ]
     if s.get("undetermined_currents"):
         lines.append(f"          {s['undetermined_currents']} branch current(s) left undetermined "
                      "by source loops (stored as 0 A)")
-    lines += ["", "largest branch currents", *_table(s["largest_currents_A"], "A")]
-    lines += ["", "largest resistor powers", *_table(s["largest_resistor_powers_W"], "W"),
+    lines += ["", "largest branch currents", *_table(s["largest_currents_A"], "A", digits)]
+    lines += ["", "largest resistor powers", *_table(s["largest_resistor_powers_W"], "W", digits),
               f"  {POWER_CAUTION}"]
-    lines += ["", "source powers (negative = delivering)", *_table(s["source_powers_W"], "W")]
+    lines += ["", "source powers (negative = delivering)", *_table(s["source_powers_W"], "W", digits)]
     shown = [f for f in s.get("findings", []) if f["severity"] != "error"]
     if shown:
         lines += ["", "check findings"]
@@ -101,6 +109,8 @@ def format_solution(summary: dict) -> str:
         lines += ["", "notes", *(f"  {note}" for note in s["notes"])]
     timings = s.get("timings_s", {})
     if timings:
-        stages = "  ".join(f"{stage} {seconds:.3g}" for stage, seconds in timings.items())
-        lines += ["", f"time (s)  {stages}  total {sum(timings.values()):.3g}"]
+        stages = "  ".join(f"{stage} {significant(seconds, TIME_DIGITS)}"
+                           for stage, seconds in timings.items())
+        lines += ["", f"time (s)  {stages}  total "
+                      f"{significant(sum(timings.values()), TIME_DIGITS)}"]
     return "\n".join(lines)

@@ -38,8 +38,7 @@ from ohmgraph.engine.network import KIND_LETTERS, Network, kind_codes
 from ohmgraph.engine.solve import Solution
 from ohmgraph.io.atomic import atomic_output
 from ohmgraph.io.errors import InputError, OutputRefused
-
-LAYOUT_VERSION = 1
+from ohmgraph.io.layout import LAYOUT_VERSION, check_layout_version
 COMPRESS_FROM = 4096          # arrays shorter than this are stored contiguous, uncompressed
 CHUNK_ELEMENTS = 1 << 18
 GZIP_LEVEL = 1
@@ -390,6 +389,7 @@ def read_solution(path) -> StoredSolution:
                              f"/{missing[0]}" + (f" and {len(missing) - 1} more" if len(missing) > 1
                                                   else ""))
         attrs = {key: _plain(value) for key, value in h5.attrs.items()}
+        check_layout_version(str(path), attrs)
         absent = [name for name in REQUIRED_ATTRIBUTES if name not in attrs]
         if absent:
             raise InputError(f"{path}: not an ohmgraph solution file: missing root attribute "

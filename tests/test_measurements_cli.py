@@ -8,7 +8,7 @@ from importlib import resources
 import pytest
 
 from ohmgraph.io.cli import main
-from ohmgraph.io.measurement_store import read_results
+from ohmgraph.io.result_store import read_results
 
 VIN, R1, R2 = 12.0, 1500.0, 4700.0
 VOUT = VIN * R2 / (R1 + R2)          # voltage-divider rule (common practice)
@@ -150,7 +150,7 @@ def test_not_well_posed_network_exits_1(tmp_path, capsys):
 
 
 def test_result_store_round_trip_and_failures(tmp_path, monkeypatch):
-    import ohmgraph.io.measurement_store as store
+    import ohmgraph.io.result_store as store
     from ohmgraph.io.errors import InputError
 
     out = tmp_path / "r.h5"

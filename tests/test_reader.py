@@ -150,6 +150,48 @@ def test_fast_path_agrees_with_exact_pass(tmp_path):
     exact = reader._build_network(path, reader._exact_edge_list(path), "0")
     assert branch_table(fast) == branch_table(exact)
 
+    unweighted = "\n".join(f"n{a}\tn{b}" for a, b in zip(frm, to)) + "\n# end\nn0 0\n"
+    path = write(tmp_path, "graph.txt", unweighted)
+    fast = reader.read_network_file(path)
+    exact_columns = reader._exact_edge_list(path)
+    exact = reader._build_network(path, exact_columns, "0")
+    assert branch_table(fast.network) == branch_table(exact)
+    assert exact_columns.values_defaulted and [f.code for f in fast.findings] == [
+        "default-resistance"]
+
+
+def test_two_field_edge_list_is_one_ohm_resistors_with_an_info_finding(tmp_path, capsys):
+    # the usual form of an unweighted graph: 'from to' per line
+    path = write(tmp_path, "graph.txt", "# path graph\na b\nb 0  # trailing comment\n\na 0\n")
+    read = reader.read_network_file(path)
+    assert branch_table(read.network) == [("1", RESISTOR, "a", "b", 1.0),
+                                          ("2", RESISTOR, "b", "0", 1.0),
+                                          ("3", RESISTOR, "a", "0", 1.0)]
+    (finding,) = read.findings
+    assert (finding.severity, finding.code) == ("info", "default-resistance")
+    assert "3 branch(es) is read as a 1 ohm resistor" in finding.message
+    report = read.check()
+    assert report.solvable and report.findings[-1] is finding
+    assert main(["check", str(path)]) == 0
+    assert "info default-resistance:" in capsys.readouterr().out
+    # a weighted list has no such finding
+    assert reader.read_network_file(write(tmp_path, "w.txt", "a 0 2\n")).findings == ()
+
+
+@pytest.mark.parametrize("text, line, count, width", [
+    ("a b\n\nb 0 2\na 0\n", 3, 3, 2),      # first branch line two fields, line 3 three
+    ("# w\na b 2\nb 0\n", 3, 2, 3),         # first branch line three fields, line 3 two
+])
+def test_mixed_two_and_three_field_edge_list_is_refused_at_first_offender(tmp_path, capsys,
+                                                                         text, line, count,
+                                                                         width):
+    path = write(tmp_path, "mixed.txt", text)
+    with pytest.raises(InputError) as raised:
+        read_network(path)
+    first = str(raised.value).splitlines()[0]
+    assert first.startswith(f"{path}:{line}: {count} field(s), expected {width}")
+    assert "every line a value or none" in first
+
 
 def test_readme_three_branch_example(tmp_path):
     """The sign-convention example of the README, solved and checked by hand.
@@ -212,6 +254,8 @@ BAD_INPUTS = [
     ("under.csv", "from,to,value\na,0,1_000\n", ["under.csv:2:", "'1_000' is not a number"]),
     ("value.tsv", "from\tto\tvalue\na\t0\t1 ohm\n", ["value.tsv:2:", "'1 ohm'"]),
     ("ladder.txt", "# c\n\na 0 1\nb 0\n", ["ladder.txt:4:", "2 field(s), expected 3"]),
+    ("single.txt", "a\nb 0\n", ["single.txt:1:", "1 field(s), expected 3 (from to ohms) or 2"]),
+    ("four.txt", "a 0 1\nb 0 1 2\n", ["four.txt:2:", "4 field(s), expected 3"]),
     ("ladder.edges", "a 0 1\n  # c\nb 0 1k\n", ["ladder.edges:3:", "column 'value'", "'1k'"]),
     ("comments.txt", "# only comments\n\n", ["comments.txt", "no branches"]),
     ("header.csv", "name,from,to,value\n", ["header.csv", "no branches"]),

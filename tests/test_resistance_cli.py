@@ -137,7 +137,7 @@ def test_bad_queries_exit_2(small, tmp_path, capsys):
     code, _, err = run(capsys, "resistance", tmp_path / "missing.csv", "--between", "0", "a")
     assert code == 2 and "no such file" in err
     code, _, err = run(capsys, "resistance", small, "--across-resistors", "-o", tmp_path / "x.txt")
-    assert code == 2 and "unknown output type" in err
+    assert code == 2 and "unsuitable output type '.txt'" in err
     code, _, err = run(capsys, "resistance", small, "--kirchhoff", "-o", tmp_path / "k.csv")
     assert code == 2 and "-o writes a table" in err and not (tmp_path / "k.csv").exists()
     with pytest.raises(SystemExit) as stop:

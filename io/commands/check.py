@@ -7,11 +7,10 @@ the file cannot be read.
 
 from __future__ import annotations
 
-from ohmgraph.engine.checks import check
 from ohmgraph.io.check_view import format_report, report_to_dict
 from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK
 from ohmgraph.io.jsonout import dumps
-from ohmgraph.io.reader import read_network
+from ohmgraph.io.reader import read_network_file
 
 
 def register(subparsers) -> None:
@@ -23,8 +22,8 @@ def register(subparsers) -> None:
                     "sources, floating islands, bad values. Exit 0 when solvable, 1 when not, "
                     "2 when the file cannot be read.")
     parser.add_argument("network", metavar="NET",
-                        help="branch table (.csv or .tsv, optionally .gz) or whitespace edge "
-                             "list (from to ohms)")
+                        help="branch table (.csv or .tsv, optionally .gz, or .parquet) or "
+                             "whitespace edge list (from to ohms, or from to for 1 ohm)")
     parser.add_argument("--ground", default="0", metavar="LABEL",
                         help="label of the reference (0 V) node (default: 0)")
     parser.add_argument("--allow-floating", action="store_true",
@@ -37,8 +36,9 @@ def register(subparsers) -> None:
 
 def run(args) -> int:
     """Read, check and report; return the exit code."""
-    net = read_network(args.network, ground=args.ground)
-    report = check(net, allow_floating=args.allow_floating)
+    read = read_network_file(args.network, ground=args.ground)
+    net = read.network
+    report = read.check(allow_floating=args.allow_floating)
     if args.json:
         print(dumps(report_to_dict(report, net, source=args.network)))
     else:

@@ -1,115 +1,18 @@
-"""``ohmgraph compare NET MEAS.csv``: every reading against its model value, within accuracy.
-
-Also holds what the three reading commands (``compare``, ``diagnose``, ``tolerance``) share:
-their common arguments, reading the network, building the reading model and writing tables.
-"""
+"""``ohmgraph compare NET MEAS.csv``: every reading against its model value, within accuracy."""
 
 from __future__ import annotations
 
-import argparse
-from pathlib import Path
-
 import numpy as np
-import pandas as pd
 
-from ohmgraph.engine.readings.model import ReadingModel, build_model, compare
-from ohmgraph.engine.solve import NetworkNotSolvable
-from ohmgraph.engine.solvers import DEFAULT_RTOL, SOLVERS, SolverFailed
-from ohmgraph.io.atomic import atomic_output, refuse_existing, refuse_input
-from ohmgraph.io.commands.argtypes import positive_float
-from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, InputError, SolverError, UserError
+from ohmgraph.engine.readings.model import ReadingModel, compare
+from ohmgraph.io.commands.reading_model import model_readings, read_inputs, write_table
+from ohmgraph.io.commands.reading_options import (add_full_precision_argument,
+                                                  add_network_arguments, add_output_arguments,
+                                                  add_reading_arguments)
+from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK
 from ohmgraph.io.jsonout import dumps
-from ohmgraph.io.measurement_store import refuse_existing_group, write_results
-from ohmgraph.io.measurement_table import UNIT_NAME, accuracy_rules, read_measurements
-from ohmgraph.io.reader import read_network
-
-OUTPUT_SUFFIXES = (".csv", ".h5", ".hdf5")
-HDF5_SUFFIXES = (".h5", ".hdf5")
-
-
-class NotWellPosed(UserError):
-    """The network (or its passive version, for resistance readings) has no unique solution."""
-
-    exit_code = EXIT_FAILED
-
-
-def add_network_arguments(parser: argparse.ArgumentParser) -> None:
-    """Arguments every reading command takes: the network and how to solve it."""
-    parser.add_argument("network", metavar="NET",
-                        help="network file (.csv, .tsv, edge list; optionally .gz)")
-    parser.add_argument("--ground", default="0", metavar="LABEL",
-                        help="reference (0 V) node label (default 0)")
-    parser.add_argument("--method", choices=["auto", *SOLVERS], default="auto",
-                        help="linear solver (default: auto)")
-    parser.add_argument("--rtol", type=positive_float, default=DEFAULT_RTOL,
-                        help=f"relative residual target (default {DEFAULT_RTOL:g})")
-    parser.add_argument("--allow-floating", action="store_true",
-                        help="pin one node of every island without a path to the reference")
-
-
-def add_output_arguments(parser: argparse.ArgumentParser, suffixes=OUTPUT_SUFFIXES) -> None:
-    parser.add_argument("-o", "--output", metavar="OUT",
-                        help=f"also write the results to a new file ({', '.join(suffixes)})")
-    parser.add_argument("--append", action="store_true",
-                        help="add the result group to an existing HDF5 file OUT (for example "
-                             "the solution file of 'ohmgraph solve') instead of creating OUT")
-    parser.add_argument("--force", action="store_true",
-                        help="overwrite OUT if it exists (with --append: replace the group)")
-    parser.add_argument("--json", action="store_true", help="print the results as JSON")
-
-
-def check_output(args, suffixes=OUTPUT_SUFFIXES) -> None:
-    """Refuse a bad output name or an existing file before any work is done."""
-    if args.output is None:
-        if args.append:
-            raise InputError("--append needs -o OUT.h5")
-        return
-    suffix = Path(args.output).suffix.lower()
-    if suffix not in suffixes:
-        raise InputError(f"-o {args.output}: the name must end in {', '.join(suffixes)}")
-    refuse_input(args.output, (args.network, getattr(args, "measurements", None),
-                               getattr(args, "tolerances", None)))
-    if args.append:
-        if suffix not in HDF5_SUFFIXES:
-            raise InputError(f"-o {args.output}: --append needs an HDF5 file (.h5, .hdf5)")
-        refuse_existing_group(args.output, args.command_group, args.force)
-    else:
-        refuse_existing(args.output, args.force)
-
-
-def model_readings(args, net, readings, solution=None) -> ReadingModel:
-    """Build the reading model; a network without a unique solution exits with code 1."""
-    try:
-        return build_model(net, readings, method=args.method, rtol=args.rtol,
-                           allow_floating=args.allow_floating, solution=solution)
-    except NetworkNotSolvable as error:
-        from ohmgraph.io.check_view import format_report
-
-        raise NotWellPosed(f"{args.network}: the network is not well-posed\n"
-                           + format_report(error.report, net, source=args.network)) from None
-    except SolverFailed as error:
-        raise SolverError(f"{args.network}: {error}") from None
-
-
-def write_table(args, columns: dict, *, units=None, attrs=None, matrices=None,
-                sources=None) -> None:
-    """Write ``columns`` to ``args.output`` as CSV (pandas) or as the command's HDF5 group."""
-    if Path(args.output).suffix.lower() == ".csv":
-        with atomic_output(args.output, args.force) as temporary:
-            pd.DataFrame(columns).to_csv(temporary, index=False, float_format="%.17g")
-        return
-    write_results(args.output, args.command_group, columns, units=units, attrs=attrs, matrices=matrices,
-                  sources=sources, force=args.force, append=args.append)
-
-
-def add_reading_arguments(parser) -> None:
-    """The measurement table and the global accuracy (compare, diagnose)."""
-    parser.add_argument("measurements", metavar="MEAS.csv",
-                        help="measurement table: kind,a,b,value[,accuracy]")
-    parser.add_argument("--accuracy", action="append", metavar="SPEC",
-                        help="global instrument accuracy ±(percent of reading + absolute), e.g. "
-                             "0.5%%+1mV; repeat once per unit (V, A, ohm); a row's own "
-                             "accuracy wins")
+from ohmgraph.io.measurement_table import UNIT_NAME
+from ohmgraph.io.numbers import UNCERTAINTY_DIGITS, digits_beside, significant, uncertainty
 
 
 def register(subparsers) -> None:
@@ -124,6 +27,7 @@ def register(subparsers) -> None:
     parser.add_argument("--failures-only", action="store_true",
                         help="list only the readings that fail")
     add_output_arguments(parser)
+    add_full_precision_argument(parser)
     parser.set_defaults(run=run, command_group="comparison")
 
 
@@ -146,27 +50,23 @@ def _format(columns: dict, summary: dict, failures_only: bool) -> str:
         if failures_only and columns["status"][row] == "pass":
             continue
         unit = UNIT_NAME[columns["kind"][row]]
+        band = columns["band"][row]
+        measured, model = columns["measured"][row], columns["model"][row]
         lines.append(
             f"{columns['line'][row]:>5} {columns['kind'][row]:4} {columns['a'][row]:>12} "
-            f"{columns['b'][row] or '-':>12} {columns['measured'][row]:>12.6g} {unit:<1} "
-            f"{columns['model'][row]:>12.6g} {unit:<1} {columns['deviation'][row]:>+12.4g} "
-            f"{columns['band'][row]:>11.4g} {columns['status'][row]}")
+            f"{columns['b'][row] or '-':>12} "
+            f"{significant(measured, digits_beside(measured, band)):>12} {unit:<1} "
+            f"{significant(model, digits_beside(model, band)):>12} {unit:<1} "
+            f"{significant(columns['deviation'][row], UNCERTAINTY_DIGITS + 1, sign=True):>12} "
+            f"{uncertainty(band):>11} {columns['status'][row]}")
     lines.append(f"{summary['passed']} of {summary['readings']} reading(s) within accuracy, "
                  f"{summary['failed']} outside"
                  + (f" ({summary['unusable']} with no unique model value)"
                     if summary["unusable"] else ""))
     if summary["worst_line"] is not None and summary["failed"]:
         lines.append(f"worst: line {summary['worst_line']}, "
-                     f"{summary['worst_normalized_deviation']:+.3g} bands")
+                     f"{significant(summary['worst_normalized_deviation'], 3, sign=True)} bands")
     return "\n".join(lines)
-
-
-def read_inputs(args):
-    """Refuse a bad output first, then read the network and its measurement table."""
-    check_output(args)
-    rules = accuracy_rules(args.accuracy)
-    net = read_network(args.network, ground=args.ground)
-    return net, read_measurements(args.measurements, net, rules)
 
 
 def run(args) -> int:

@@ -23,6 +23,7 @@ from ohmgraph.io.branch_table import write_branch_table
 from ohmgraph.io.check_view import format_report
 from ohmgraph.io.commands.argtypes import whole_number
 from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, OutputRefused, SolverError
+from ohmgraph.io.numbers import quantity
 from ohmgraph.io.reader import read_network
 from ohmgraph.io.solution_view import format_solution, solution_summary
 from ohmgraph.io.store import write_solution
@@ -70,7 +71,7 @@ def supply_drop_line(net, node_voltage: np.ndarray) -> str:
     mesh = np.flatnonzero(np.arange(net.n_nodes) != net.reference)
     lowest = mesh[np.argmin(node_voltage[mesh])]
     drop = SUPPLY_VOLTS - node_voltage[lowest]
-    return (f"largest supply drop: {drop * 1e3:.3f} mV below {SUPPLY_VOLTS} V "
+    return (f"largest supply drop: {quantity(drop * 1e3, 'mV')} below {SUPPLY_VOLTS} V "
             f"at node {net.node_labels[lowest]}")
 
 

@@ -2,17 +2,20 @@
 
 from __future__ import annotations
 
-
 import numpy as np
 
 from ohmgraph.engine.readings.diagnosis import SHORT_RATIO, diagnose
 from ohmgraph.engine.readings.model import compare
-from ohmgraph.io.commands.compare import (add_network_arguments, add_output_arguments,
-                                          add_reading_arguments, model_readings, read_inputs,
-                                          write_table)
+from ohmgraph.io.commands.argtypes import fraction, whole_number
+from ohmgraph.io.commands.reading_model import model_readings, read_inputs, write_table
+from ohmgraph.io.commands.reading_options import (add_full_precision_argument,
+                                                  add_network_arguments, add_output_arguments,
+                                                  add_reading_arguments)
 from ohmgraph.io.errors import EXIT_OK, InputError
 from ohmgraph.io.jsonout import dumps
-from ohmgraph.io.commands.argtypes import fraction, whole_number
+from ohmgraph.io.numbers import quantity, significant
+
+CHI2_DIGITS = 4
 
 
 def register(subparsers) -> None:
@@ -30,6 +33,7 @@ def register(subparsers) -> None:
     parser.add_argument("--short-ratio", type=fraction, default=SHORT_RATIO, metavar="F",
                         help=f"a short is the resistance times F (default {SHORT_RATIO:g})")
     add_output_arguments(parser)
+    add_full_precision_argument(parser)
     parser.set_defaults(run=run, command_group="diagnosis")
 
 
@@ -52,16 +56,17 @@ def hypothesis_columns(net, result) -> dict:
 
 def _describe(kind: str, nominal: float, estimated: float) -> str:
     if kind == "open":
-        return f"open (model {nominal:.6g} ohm)"
+        return f"open (model {quantity(nominal, 'ohm')})"
     if kind == "short":
-        return f"short (model {nominal:.6g} ohm)"
-    return f"{estimated:.6g} ohm instead of {nominal:.6g} ohm ({estimated / nominal - 1:+.1%})"
+        return f"short (model {quantity(nominal, 'ohm')})"
+    return (f"{quantity(estimated, 'ohm')} instead of {quantity(nominal, 'ohm')} "
+            f"({estimated / nominal - 1:+.1%})")
 
 
 def _format(net, result, failed: int, readings: int) -> str:
     lines = [f"{failed} of {readings} reading(s) outside their accuracy; chi-square of the "
-             f"model as it is: {result.baseline_chi2:.4g} over {result.readings_used.size} "
-             "reading(s)"]
+             f"model as it is: {significant(result.baseline_chi2, CHI2_DIGITS)} over "
+             f"{result.readings_used.size} reading(s)"]
     if not failed:
         lines.append("every reading is within accuracy: no fault is indicated; the ranking "
                      "below is for information only")
@@ -69,7 +74,8 @@ def _format(net, result, failed: int, readings: int) -> str:
     for rank, hypothesis in enumerate(result.hypotheses, start=1):
         fits = "yes" if hypothesis.explains_all else "no"
         for member, branch in enumerate(hypothesis.branches):
-            head = (f"{rank:>4} {hypothesis.chi2:>10.4g} {fits:>4}  " if member == 0
+            head = (f"{rank:>4} {significant(hypothesis.chi2, CHI2_DIGITS):>10} {fits:>4}  "
+                    if member == 0
                     else " " * 22)
             lines.append(head + f"{net.branch_names[branch]}: "
                          + _describe(hypothesis.kinds[member], hypothesis.nominal_ohms[member],

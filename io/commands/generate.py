@@ -2,7 +2,7 @@
 
 The kinds are the generators of :mod:`ohmgraph.datasets.generators`; each has its own sizes
 (positional) and options. The output format follows the file name (``.csv``, ``.tsv``, optionally
-``.gz``; see :mod:`ohmgraph.io.branch_table`).
+``.gz``, or ``.parquet``; see :mod:`ohmgraph.io.branch_table`).
 """
 
 from __future__ import annotations
@@ -23,7 +23,7 @@ from ohmgraph.io.errors import EXIT_OK, InputError
 def _common_options() -> argparse.ArgumentParser:
     common = argparse.ArgumentParser(add_help=False)
     common.add_argument("-o", "--output", required=True, metavar="FILE",
-                        help="branch table to write (.csv, .tsv, optionally .gz)")
+                        help="branch table to write (.csv, .tsv, optionally .gz, or .parquet)")
     common.add_argument("--force", action="store_true", help="overwrite FILE if it exists")
     common.add_argument("--seed", type=whole_number(0), default=0,
                         help="seed of every random choice (default 0)")

@@ -17,10 +17,15 @@ from ohmgraph.engine.resistance import ResistanceSolver
 from ohmgraph.engine.solvers import DEFAULT_RTOL, SOLVERS, SolverFailed
 from ohmgraph.io.atomic import refuse_existing, refuse_input
 from ohmgraph.io.commands.argtypes import positive_float, whole_number
-from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, InputError, SolverError
+from ohmgraph.io.csv_table import write_csv
+from ohmgraph.io.errors import EXIT_OK, InputError, NotWellPosed, SolverError
+from ohmgraph.io.formats import require_format
 from ohmgraph.io.jsonout import dumps
-from ohmgraph.io.pairs import check_table_path, read_pairs, write_table
+from ohmgraph.io.numbers import UNCERTAINTY_DIGITS, digits_for, quantity, significant
+from ohmgraph.io.pairs import read_pairs
 from ohmgraph.io.reader import read_network
+from ohmgraph.io.result_store import command_options
+from ohmgraph.io.result_table import TABLE_FORMATS, write_result_table
 
 # Batches of at least this many right-hand sides show a progress bar (on a terminal).
 PROGRESS_MIN = 32
@@ -33,7 +38,7 @@ def register(subparsers) -> None:
                     "become ideal connections, current sources are removed. Nodes in different "
                     "islands are infinitely far apart. Each value comes with its accuracy.")
     parser.add_argument("network", metavar="NET",
-                        help="network file (.csv, .tsv, edge list; optionally .gz)")
+                        help="network file (.csv, .tsv, .parquet, edge list; optionally .gz)")
     query = parser.add_mutually_exclusive_group(required=True)
     query.add_argument("--between", nargs=2, metavar=("A", "B"),
                        help="resistance between two nodes")
@@ -69,6 +74,9 @@ def register(subparsers) -> None:
     parser.add_argument("-o", "--output", metavar="OUT.csv|OUT.h5",
                         help="write the table (--pairs, --to-reference, --across-resistors)")
     parser.add_argument("--force", action="store_true", help="overwrite OUT if it exists")
+    parser.add_argument("--full-precision", action="store_true",
+                        help="CSV tables: write every number exactly (shortest round-trip text) "
+                             "instead of 12 significant digits")
     parser.add_argument("--json", action="store_true", help="print the result as JSON")
     parser.set_defaults(run=run)
 
@@ -79,15 +87,14 @@ def run(args) -> int:
         if args.between or args.kirchhoff:
             raise InputError("-o writes a table: use it with --pairs, --to-reference or "
                              "--across-resistors")
-        check_table_path(args.output)
+        require_format(args.output, TABLE_FORMATS, role="-o")
         refuse_input(args.output, (args.network, args.pairs))
         refuse_existing(args.output, args.force)
     net = read_network(args.network, ground=args.ground)
     try:
         solver = ResistanceSolver(net, method=args.method, rtol=args.rtol)
     except ValueError as error:
-        print(f"ohmgraph resistance: {args.network}: not well-posed: {error}", file=sys.stderr)
-        return EXIT_FAILED
+        raise NotWellPosed(f"{args.network}: not well-posed: {error}") from None
     try:
         if args.between:
             return _between(args, net, solver)
@@ -139,7 +146,8 @@ def _between(args, net, solver) -> int:
         print(f"{a} and {b} are in different islands: no path of resistors joins them, "
               "so the resistance between them is infinite")
     else:
-        print(f"R({a}, {b}) = {ohms:.10g} ohm  (relative error at most {accuracy:.1e}; "
+        print(f"R({a}, {b}) = {quantity(ohms, 'ohm', digits_for(accuracy))}  (relative error "
+              f"at most {accuracy:.1e}; "
               f"{solver.stats.method}, {result.solves} solve{'s' if result.solves != 1 else ''})")
     return EXIT_OK
 
@@ -188,10 +196,14 @@ def _kirchhoff(args, solver) -> int:
     elif not math.isfinite(result.value):
         print("Kirchhoff index: infinite (the network has more than one island)")
     elif result.exact:
-        print(f"Kirchhoff index = {result.value:.10g} ohm (exact, {result.solves} solves)")
+        print(f"Kirchhoff index = {quantity(result.value, 'ohm', digits_for(args.rtol))} "
+              f"(exact, {result.solves} solves)")
     else:
-        print(f"Kirchhoff index = {result.value:.6g} ohm, {100 * result.confidence:g}% "
-              f"confidence interval [{result.low:.6g}, {result.high:.6g}] "
+        half = (result.high - result.low) / 2
+        digits = digits_for(half / abs(result.value) if result.value else None)
+        print(f"Kirchhoff index = {quantity(result.value, 'ohm', digits)}, "
+              f"{significant(100 * result.confidence, UNCERTAINTY_DIGITS)}% confidence interval "
+              f"[{significant(result.low, digits)}, {significant(result.high, digits)}] "
               f"(Hutchinson, {result.samples} samples)")
     return EXIT_OK
 
@@ -200,7 +212,11 @@ def _emit_table(args, columns: dict, summary: dict) -> int:
     """Write the table to ``-o`` (summary to standard output) or print it as CSV."""
     if args.output is not None:
         attributes = {k: v for k, v in summary.items() if isinstance(v, (int, float, str, bool))}
-        write_table(args.output, columns, force=args.force, attributes=attributes)
+        write_result_table(args.output, "resistance", columns, full_precision=args.full_precision,
+                           force=args.force, attrs=attributes,
+                           sources={"network": args.network,
+                                    **({"pairs": args.pairs} if args.pairs else {})},
+                           command="resistance", options=command_options(args))
         summary = {"output": str(args.output), **summary}
         print(dumps(summary) if args.json else
               f"wrote {len(next(iter(columns.values())))} rows to {args.output}")
@@ -208,7 +224,5 @@ def _emit_table(args, columns: dict, summary: dict) -> int:
         print(dumps({**summary, "rows": [dict(zip(columns, row))
                                          for row in zip(*columns.values())]}))
     else:
-        import pandas as pd
-
-        pd.DataFrame(columns).to_csv(sys.stdout, index=False, float_format="%.12g")
+        write_csv(sys.stdout, columns, full_precision=args.full_precision)
     return EXIT_OK

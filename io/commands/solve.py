@@ -4,15 +4,15 @@ from __future__ import annotations
 
 import time
 
-from ohmgraph.engine.checks import check
 from ohmgraph.engine.solve import solve
 from ohmgraph.engine.solvers import DEFAULT_RTOL, SOLVERS, SolverFailed
 from ohmgraph.io.commands.argtypes import positive_float
 from ohmgraph.io.atomic import refuse_existing, refuse_input
 from ohmgraph.io.check_view import format_report, report_to_dict
 from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, SolverError
+from ohmgraph.io.formats import HDF5, require_format
 from ohmgraph.io.jsonout import dumps
-from ohmgraph.io.reader import read_network
+from ohmgraph.io.reader import read_network_file
 from ohmgraph.io.solution_view import format_solution, solution_summary
 from ohmgraph.io.store import write_solution
 
@@ -24,8 +24,8 @@ def register(subparsers) -> None:
                     "in a new HDF5 file and print a summary with the residual evidence. If the "
                     "network is not well-posed the check report is printed, nothing is written "
                     "and the exit code is 1.")
-    parser.add_argument("network", metavar="NET", help="network file (.csv, .tsv, edge list; "
-                                                       "optionally .gz)")
+    parser.add_argument("network", metavar="NET",
+                        help="network file (.csv, .tsv, .parquet, edge list; optionally .gz)")
     parser.add_argument("-o", "--output", required=True, metavar="OUT.h5",
                         help="HDF5 file to create")
     parser.add_argument("--method", choices=["auto", *SOLVERS], default="auto",
@@ -45,12 +45,14 @@ def run(args) -> int:
     """Run ``solve``; return the exit code (see :mod:`ohmgraph.io.errors`)."""
     refuse_input(args.output, [args.network])
     refuse_existing(args.output, args.force)
+    require_format(args.output, (HDF5,), role="-o")
     start = time.perf_counter()
-    net = read_network(args.network, ground=args.ground)
+    read = read_network_file(args.network, ground=args.ground)
+    net = read.network
     read_seconds = time.perf_counter() - start
 
     start = time.perf_counter()
-    report = check(net, allow_floating=args.allow_floating)
+    report = read.check(allow_floating=args.allow_floating)
     check_seconds = time.perf_counter() - start
     if not report.solvable:
         print(dumps(report_to_dict(report, net, args.network)) if args.json

@@ -9,12 +9,15 @@ from tqdm import tqdm
 
 from ohmgraph.engine.readings.model import Readings
 from ohmgraph.engine.readings.sensitivity import monte_carlo, tolerance_spread
-from ohmgraph.io.commands.compare import (add_network_arguments, add_output_arguments,
-                                          check_output, model_readings, write_table)
 from ohmgraph.io.commands.argtypes import whole_number
+from ohmgraph.io.commands.reading_model import model_readings, write_table
+from ohmgraph.io.commands.reading_options import (add_network_arguments, add_output_arguments,
+                                                  check_output)
+from ohmgraph.io.formats import HDF5
 from ohmgraph.io.errors import EXIT_OK, InputError
 from ohmgraph.io.jsonout import dumps
 from ohmgraph.io.measurement_table import parse_percent, read_tolerances
+from ohmgraph.io.numbers import digits_beside, digits_for, significant, uncertainty
 from ohmgraph.io.reader import read_network
 
 
@@ -45,7 +48,7 @@ def register(subparsers) -> None:
                         help="Monte Carlo samples (values uniform within tolerance; default 0)")
     parser.add_argument("--seed", type=whole_number(0), default=0,
                         help="Monte Carlo seed (default 0)")
-    add_output_arguments(parser, (".h5", ".hdf5"))
+    add_output_arguments(parser, (HDF5,))
     parser.set_defaults(run=run, command_group="tolerance")
 
 
@@ -59,32 +62,43 @@ def _observations(net, labels) -> Readings:
         raise InputError(f"--observe: {error}") from None
 
 
-def _format(net, labels, spread, model, top, carlo) -> str:
+def _format(net, labels, spread, model, top, carlo, rtol) -> str:
+    """Solved values (voltage, slopes) to the digits of ``rtol``, spreads to two digits."""
+    solved = digits_for(rtol)
+
     lines = []
     for row, label in enumerate(labels):
         volts = model.model_value[row]
-        lines.append(f"node {label}: {volts:.6g} V; worst case ±{spread.worst_case[row]:.4g} V, "
-                     f"root-sum-square ±{spread.rss[row]:.4g} V "
-                     f"(standard deviation {spread.linear_std_uniform[row]:.4g} V for values "
-                     "uniform within tolerance)")
+        lines.append(f"node {label}: {significant(volts, solved)} V; worst case "
+                     f"±{uncertainty(spread.worst_case[row])} V, root-sum-square "
+                     f"±{uncertainty(spread.rss[row])} V (standard deviation "
+                     f"{uncertainty(spread.linear_std_uniform[row])} V for values uniform "
+                     "within tolerance)")
         if carlo is not None:
-            lines.append(f"  Monte Carlo ({carlo.values.shape[0]} samples, seed {carlo.seed}): "
-                         f"standard deviation {carlo.std[row]:.4g} V, range "
-                         f"{carlo.low[row]:.6g} .. {carlo.high[row]:.6g} V")
+            samples = carlo.values.shape[0]
+            # relative standard error of a sample standard deviation: 1/sqrt(2(N-1))
+            # (normal approximation, common practice)
+            std_digits = digits_for(1 / np.sqrt(2 * max(samples - 1, 1)))
+            ends = digits_beside(volts, carlo.std[row])
+            lines.append(f"  Monte Carlo ({samples} samples, seed {carlo.seed}): "
+                         f"standard deviation {significant(carlo.std[row], std_digits)} V, range "
+                         f"{significant(carlo.low[row], ends)} .. "
+                         f"{significant(carlo.high[row], ends)} V")
         for position in spread.top_contributors(row, top):
             contribution = spread.contribution[row, position]
             if contribution == 0:
                 break
             branch = spread.resistors[position]
             slope = spread.sensitivity[row, position]
-            lines.append(f"  {net.branch_names[branch]:>12}: dV/dR {slope:+.4g} V/ohm, "
-                         f"±{abs(contribution):.4g} V at its tolerance")
+            lines.append(f"  {net.branch_names[branch]:>12}: dV/dR "
+                         f"{significant(slope, solved, sign=True)} V/ohm, "
+                         f"±{uncertainty(abs(contribution))} V at its tolerance")
     return "\n".join(lines)
 
 
 def run(args) -> int:
     """Run ``tolerance``; exit 0 after the analysis."""
-    check_output(args, (".h5", ".hdf5"))
+    check_output(args)
     if args.tolerances is None and args.default is None:
         raise InputError("give --tolerances FILE, --default PCT, or both")
     net = read_network(args.network, ground=args.ground)
@@ -125,5 +139,5 @@ def run(args) -> int:
             nodes.append(entry)
         print(dumps({"summary": attrs, "nodes": nodes}))
     else:
-        print(_format(net, args.observe, spread, model, args.top, carlo))
+        print(_format(net, args.observe, spread, model, args.top, carlo, args.rtol))
     return EXIT_OK

@@ -1,18 +1,20 @@
-"""HDF5 output of comparisons, diagnoses and tolerance analyses, written atomically.
+"""The one writer of HDF5 result groups: resistance tables, comparisons, diagnoses, tolerance
+analyses. Written atomically, with provenance, stamped with the layout version.
 
-A result is one group (``/comparison``, ``/diagnosis`` or ``/tolerance``) of equal-length
-column datasets (one row per reading, hypothesis member or observed quantity), extra matrices
-where a result has them (``/tolerance/sensitivity``), and attributes:
+A result is one group (``/resistance``, ``/comparison``, ``/diagnosis`` or ``/tolerance``) of
+equal-length column datasets (one row per pair, reading, hypothesis member or observed
+quantity), extra matrices where a result has them (``/tolerance/sensitivity``), and attributes:
 
-* on the group: provenance — ``tool_version``, ``created`` (ISO 8601 UTC) and, for every input
-  file, its name and SHA-256 (``network_file``, ``network_sha256``, ...) — and the result's
-  numbers (summary counts, chi-square values, timings in seconds) with dotted names for nested
-  values;
+* on the group: ``layout_version`` (:data:`ohmgraph.io.layout.LAYOUT_VERSION`), provenance —
+  ``tool_version``, ``created`` (ISO 8601 UTC), ``command`` and ``command_options`` (the
+  command's options as JSON text) and, for every input file, its name and SHA-256
+  (``network_file``, ``network_sha256``, ...) — and the result's numbers (summary counts,
+  chi-square values, timings in seconds) with dotted names for nested values;
 * on every column: ``units`` where it has one.
 
-The group goes either into a new file (whose root also carries the provenance and ``result``,
-the group name) or, with ``append``, into an existing HDF5 file such as the solution store
-written by ``ohmgraph solve``.
+The group goes either into a new file (whose root also carries the provenance,
+``layout_version`` and ``result``, the group name) or, with ``append``, into an existing HDF5
+file such as the solution store written by ``ohmgraph solve``. Numbers keep full precision.
 
 Strings are fixed-length UTF-8 (readable by any HDF5 tool). The file goes through
 :func:`ohmgraph.io.atomic.atomic_output`: it appears complete or not at all.
@@ -20,6 +22,7 @@ Strings are fixed-length UTF-8 (readable by any HDF5 tool). The file goes throug
 
 from __future__ import annotations
 
+import json
 import shutil
 from datetime import datetime, timezone
 from pathlib import Path
@@ -29,10 +32,14 @@ import numpy as np
 
 from ohmgraph.io.atomic import atomic_output
 from ohmgraph.io.errors import InputError, OutputRefused
+from ohmgraph.io.jsonout import jsonable
+from ohmgraph.io.layout import LAYOUT_VERSION, check_layout_version
 from ohmgraph.io.store import (decode_strings, encode_strings, file_sha256, flatten_attrs,
                                tool_version)
 
 COMPRESS_FROM = 4096
+# Defaults the commands set for themselves, not options a user gave.
+INTERNAL_ARGUMENTS = ("command_group", "output_formats")
 
 
 def _plain_array(values) -> np.ndarray:
@@ -48,6 +55,44 @@ def _set_attrs(target, values: dict) -> None:
         if isinstance(value, (list, tuple)):
             value = _plain_array([str(v) for v in value]) if value else np.empty(0, "S1")
         target.attrs[key] = value
+
+
+def provenance(sources: dict | None = None, command: str | None = None,
+               options: dict | None = None) -> dict:
+    """Provenance attributes of a result.
+
+    Parameters
+    ----------
+    sources : dict of str to path, optional
+        Input files by role (``{"network": "net.csv"}``): each gives ``ROLE_file`` (the name)
+        and ``ROLE_sha256``.
+    command : str, optional
+        The command that made the result.
+    options : dict, optional
+        Its options; stored as JSON text in ``command_options``.
+
+    Returns
+    -------
+    dict
+        ``layout_version``, ``tool_version``, ``created`` and the above.
+    """
+    attrs = {"layout_version": LAYOUT_VERSION, "tool_version": tool_version(),
+             "created": datetime.now(timezone.utc).isoformat(timespec="seconds")}
+    if command is not None:
+        attrs["command"] = command
+    if options is not None:
+        attrs["command_options"] = json.dumps(jsonable(options), sort_keys=True)
+    for role, source in (sources or {}).items():
+        attrs[f"{role}_file"] = Path(source).name
+        attrs[f"{role}_sha256"] = file_sha256(source)
+    return attrs
+
+
+def command_options(args) -> dict:
+    """The plain options of a parsed command line (functions and internal defaults left out)."""
+    return {key: value for key, value in vars(args).items()
+            if key not in INTERNAL_ARGUMENTS and not callable(value)
+            and isinstance(value, (str, int, float, bool, list, tuple, type(None)))}
 
 
 def refuse_existing_group(path, name: str, force: bool) -> None:
@@ -68,7 +113,8 @@ def refuse_existing_group(path, name: str, force: bool) -> None:
 
 def write_results(path, name: str, columns: dict, *, units: dict | None = None,
                   attrs: dict | None = None, matrices: dict | None = None,
-                  sources: dict | None = None, force: bool = False,
+                  sources: dict | None = None, command: str | None = None,
+                  options: dict | None = None, force: bool = False,
                   append: bool = False) -> None:
     """Write one result group to an HDF5 file, atomically.
 
@@ -76,7 +122,7 @@ def write_results(path, name: str, columns: dict, *, units: dict | None = None,
     ----------
     path : str or Path
     name : str
-        Group name (``comparison``, ``diagnosis``, ``tolerance``).
+        Group name (``resistance``, ``comparison``, ``diagnosis``, ``tolerance``).
     columns : dict of str to array_like
         Equal-length columns.
     units : dict of str to str, optional
@@ -85,8 +131,8 @@ def write_results(path, name: str, columns: dict, *, units: dict | None = None,
         Group attributes (nested dicts become dotted names; None values are skipped).
     matrices : dict of str to ndarray, optional
         Further datasets of any shape.
-    sources : dict of str to path, optional
-        Input files recorded by name and SHA-256 (``{"network": "net.csv"}``).
+    sources, command, options
+        Provenance, see :func:`provenance`.
     force : bool
         Overwrite an existing file (or, with ``append``, an existing group of that name).
     append : bool
@@ -103,42 +149,42 @@ def write_results(path, name: str, columns: dict, *, units: dict | None = None,
     units = units or {}
     if append:
         refuse_existing_group(path, name, force)
-    provenance = {"tool_version": tool_version(),
-                  "created": datetime.now(timezone.utc).isoformat(timespec="seconds")}
-    for role, source in (sources or {}).items():
-        provenance[f"{role}_file"] = Path(source).name
-        provenance[f"{role}_sha256"] = file_sha256(source)
+    stamp = provenance(sources, command, options)
     try:
         with atomic_output(path, force or append) as temporary:
             if append:
                 shutil.copyfile(path, temporary)
             with h5py.File(temporary, "a" if append else "w") as h5:
                 if not append:
-                    h5.attrs.update({**provenance, "result": name})
+                    h5.attrs.update({**stamp, "result": name})
                 if name in h5:
                     del h5[name]
                 group = h5.create_group(name)
                 for column, values in {**columns, **(matrices or {})}.items():
                     data = _plain_array(values)
-                    options = {}
+                    storage = {}
                     if data.size >= COMPRESS_FROM and data.dtype.kind != "S":
-                        options = dict(chunks=True, compression="gzip", compression_opts=1,
+                        storage = dict(chunks=True, compression="gzip", compression_opts=1,
                                        shuffle=True)
-                    dataset = group.create_dataset(column, data=data, **options)
+                    dataset = group.create_dataset(column, data=data, **storage)
                     if column in units:
                         dataset.attrs["units"] = units[column]
-                _set_attrs(group, {**provenance, **(attrs or {})})
+                _set_attrs(group, {**stamp, **(attrs or {})})
     except OSError as error:
         raise OutputRefused(f"{path}: cannot be written ({error})") from None
 
 
 def read_results(path, name: str) -> tuple[dict, dict, dict]:
-    """Read back a result group: ``(datasets, group attributes, root attributes)``.
+    """Read back a result group of any layout version up to :data:`LAYOUT_VERSION`.
+
+    Returns
+    -------
+    (datasets, group attributes, root attributes) : (dict, dict, dict)
 
     Raises
     ------
     InputError
-        If the file is not HDF5 or has no such group.
+        If the file is not HDF5, has no such group, or was written with a newer layout.
     """
     try:
         h5 = h5py.File(path, "r")
@@ -147,6 +193,7 @@ def read_results(path, name: str) -> tuple[dict, dict, dict]:
     with h5:
         if name not in h5:
             raise InputError(f"{path}: no group '/{name}' (found {', '.join(h5.keys())})")
+        check_layout_version(f"{path}: /{name}", h5[name].attrs)
         datasets = {}
         for key, dataset in h5[name].items():
             data = dataset[()]
@@ -154,4 +201,5 @@ def read_results(path, name: str) -> tuple[dict, dict, dict]:
         return datasets, dict(h5[name].attrs), dict(h5.attrs)
 
 
-__all__ = ["write_results", "read_results", "refuse_existing_group"]
+__all__ = ["write_results", "read_results", "refuse_existing_group", "provenance",
+           "command_options"]

@@ -1,0 +1,44 @@
+"""Steps shared by the reading commands (``compare``, ``diagnose``, ``tolerance``): read the
+network and its measurement table, build the reading model, write the result table."""
+
+from __future__ import annotations
+
+from ohmgraph.engine.readings.model import ReadingModel, build_model
+from ohmgraph.engine.solve import NetworkNotSolvable
+from ohmgraph.engine.solvers import SolverFailed
+from ohmgraph.io.check_view import format_report
+from ohmgraph.io.commands.reading_options import check_output
+from ohmgraph.io.errors import NotWellPosed, SolverError
+from ohmgraph.io.measurement_table import accuracy_rules, read_measurements
+from ohmgraph.io.reader import read_network
+from ohmgraph.io.result_store import command_options
+from ohmgraph.io.result_table import write_result_table
+
+
+def read_inputs(args):
+    """Refuse a bad output first, then read the network and its measurement table."""
+    check_output(args)
+    rules = accuracy_rules(args.accuracy)
+    net = read_network(args.network, ground=args.ground)
+    return net, read_measurements(args.measurements, net, rules)
+
+
+def model_readings(args, net, readings, solution=None) -> ReadingModel:
+    """Build the reading model; a network without a unique solution is :class:`NotWellPosed`."""
+    try:
+        return build_model(net, readings, method=args.method, rtol=args.rtol,
+                           allow_floating=args.allow_floating, solution=solution)
+    except NetworkNotSolvable as error:
+        raise NotWellPosed(f"{args.network}: the network is not well-posed\n"
+                           + format_report(error.report, net, source=args.network)) from None
+    except SolverFailed as error:
+        raise SolverError(f"{args.network}: {error}") from None
+
+
+def write_table(args, columns: dict, *, units=None, attrs=None, matrices=None,
+                sources=None) -> None:
+    """Write ``columns`` to ``args.output``: CSV, or the command's HDF5 group with provenance."""
+    write_result_table(args.output, args.command_group, columns, formats=args.output_formats,
+                       full_precision=getattr(args, "full_precision", False), force=args.force,
+                       append=args.append, units=units, attrs=attrs, matrices=matrices,
+                       sources=sources, command=args.command, options=command_options(args))
