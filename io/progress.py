@@ -15,6 +15,9 @@ from tqdm import tqdm
 
 # Queries expected to take less than this many seconds get no message and no bar.
 QUIET_BELOW_SECONDS = 2.0
+# Networks with at least this many unknowns get a message before the solver's set-up, whose
+# length (a factorisation: seconds to minutes) is not known before it ends.
+STAGE_UNKNOWNS = 100_000
 
 
 def stderr_is_terminal() -> bool:
@@ -26,7 +29,9 @@ def stderr_is_terminal() -> bool:
 
 
 def format_seconds(seconds: float) -> str:
-    """A duration in words: ``"0.4 s"``, ``"95 s"``, ``"12 min"``, ``"3.1 h"``."""
+    """A duration in words: ``"8.8 ms"``, ``"0.4 s"``, ``"95 s"``, ``"12 min"``, ``"3.1 h"``."""
+    if seconds < 0.1:
+        return f"{seconds * 1000:.2g} ms"
     if seconds < 10:
         return f"{seconds:.1f} s"
     if seconds < 120:
@@ -51,6 +56,12 @@ class Feedback:
         self.command = command
         self.enabled = not quiet and stderr_is_terminal()
         self.bar = None
+
+    def stage(self, text: str, unknowns: int) -> None:
+        """Say what a set-up step is doing before it starts, on networks of at least
+        :data:`STAGE_UNKNOWNS` unknowns (its length cannot be measured in advance)."""
+        if unknowns >= STAGE_UNKNOWNS:
+            self.message(text)
 
     def message(self, text: str) -> None:
         """One line on standard error (when enabled)."""

@@ -109,6 +109,8 @@ def run(args) -> int:
         print(f"ohmgraph resistance: {args.network}: not well-posed: {error}", file=sys.stderr)
         return EXIT_FAILED
     feedback = Feedback("ohmgraph resistance", args.quiet)
+    feedback.stage(f"{solver.free.size} unknowns: setting up the solver ({args.method}) and "
+                   "timing a first solve", solver.free.size)
     try:
         with feedback:
             if args.between:
