@@ -21,6 +21,7 @@ with mpmath at 40 significant digits.
 from __future__ import annotations
 
 import json
+from fractions import Fraction
 
 import mpmath
 import numpy as np
@@ -28,6 +29,8 @@ import pytest
 
 from ohmgraph.engine import Network
 from ohmgraph.engine.resistance import ResistanceSolver
+from ohmgraph.engine.resistance.accuracy import (UNIT_ROUNDOFF, ResidualMeter, edge_energies,
+                                                 edge_energies_reference)
 from ohmgraph.io.cli import main
 
 M, N = 60, 80            # nodes along the first and the second axis
@@ -116,3 +119,54 @@ def test_command_prints_a_bound_that_covers_the_error(tmp_path, capsys, corner_t
     assert code == 0
     error = abs(result["ohms"] - corner_to_corner) / corner_to_corner
     assert error <= result["accuracy"] <= 1e-9
+
+
+def random_edges(seed, n=40, m=120):
+    rng = np.random.default_rng(seed)
+    a = rng.integers(-1, n, m)                      # -1: a grounded end
+    b = rng.integers(-1, n, m)
+    keep = a != b
+    g = 10.0 ** rng.uniform(-3, 3, keep.sum())
+    x = rng.normal(size=(n, 3)) * 10.0 ** rng.uniform(-2, 2, (n, 1))
+    return a[keep], b[keep], g, x
+
+
+@pytest.mark.parametrize("seed", [0, 1])
+def test_energy_kernel_matches_its_reference(seed):
+    a, b, g, x = random_edges(seed)
+    meter = ResidualMeter(a, b, g, x.shape[0])
+    padded = np.vstack([x, np.zeros((1, 3))])
+    kernel = edge_energies(meter.a, meter.b, g, padded)
+    reference = edge_energies_reference(meter.a, meter.b, g, padded)
+    # Compensated summation of non-negative terms: within 2u of the correctly rounded sum
+    # (Higham, Accuracy and Stability of Numerical Algorithms, 2002, §4.3).
+    np.testing.assert_allclose(kernel, reference, rtol=4 * UNIT_ROUNDOFF, atol=0)
+
+
+@pytest.mark.parametrize("seed", [2, 3])
+def test_residual_and_energy_roundings_are_bounded(seed):
+    # Exact rational arithmetic (fractions.Fraction, Python standard library) is the reference.
+    a, b, g, x = random_edges(seed)
+    n = x.shape[0]
+    rhs = np.zeros_like(x)
+    rhs[[0, 5, 9], [0, 1, 2]] = [1.0, -1.0, 1.0]
+    meter = ResidualMeter(a, b, g, n)
+    residual, slack = meter.residual(rhs, x)
+    values, rounding = meter.energy_estimates(rhs, x)
+    for j in range(3):
+        xf = [Fraction(float(v)) for v in x[:, j]] + [Fraction(0)]
+        exact = [Fraction(float(v)) for v in rhs[:, j]]
+        energy = Fraction(0)
+        for e in range(a.size):
+            u, v = (a[e] if a[e] >= 0 else n), (b[e] if b[e] >= 0 else n)
+            current = Fraction(float(g[e])) * (xf[u] - xf[v])
+            energy += current * (xf[u] - xf[v])
+            if u < n:
+                exact[u] -= current
+            if v < n:
+                exact[v] += current
+        for i in range(n):
+            assert abs(Fraction(float(residual[i, j])) - exact[i]) <= Fraction(float(slack[i, j]))
+        dx = sum(Fraction(float(rhs[i, j])) * xf[i] for i in range(n))
+        truth = 2 * dx - energy                     # d^T x + x^T r, exactly
+        assert abs(Fraction(float(values[j])) - truth) <= Fraction(float(rounding[j]))

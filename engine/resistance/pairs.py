@@ -27,8 +27,9 @@ gives a precise value. Because ``A^{-1}`` of a grounded Laplacian is entrywise n
 its largest entry on the diagonal (maximum principle), ``r^T A^{-1} r <= ||r||_1^2 max_i G_ii``,
 and by Rayleigh's monotonicity law ``G_ii`` (the resistance from ``i`` to ground) is at most the
 resistance of the cheapest path from ``i`` to ground, found once by Dijkstra's algorithm. The
-residual and the two sums are formed edge by edge in extended precision
-(:mod:`ohmgraph.engine.resistance.accuracy`), with their own rounding bounded and added; a
+estimate is formed as ``2 d^T x - x^T A x`` with the energy ``x^T A x`` summed edge by edge
+from the conductances by compensated summation, and the residual edge by edge too
+(:mod:`ohmgraph.engine.resistance.accuracy`), each with its rounding bounded and added; a
 float64 residual of the assembled matrix would be wrong by about ``eps |A| |x|`` and enter
 ``x^T r`` linearly (on a 60 x 80 lattice, a relative 1e-12 reported as 2.2e-16). Added: the
 float64 conductances (a relative ``u = eps/2``, by Rayleigh's law) and the final rounding.
@@ -59,7 +60,7 @@ from ..formulation import grounded_matrix, supernode_graph
 from ..network import RESISTOR, Network
 from ..session import SolveSession
 from ..solvers import DEFAULT_RTOL
-from .accuracy import ASSEMBLY, MARGIN, UNIT_ROUNDOFF, ResidualMeter, energy_values
+from .accuracy import ASSEMBLY, MARGIN, UNIT_ROUNDOFF, ResidualMeter
 from .kron import kron_reduction
 from .progress import Tracker, first_then_blocks
 from .reach import FactorPairs
@@ -227,11 +228,6 @@ class ResistanceSolver:
         per_island = np.zeros((self.n_islands, magnitude.shape[1]))
         np.add.at(per_island, island, magnitude)
         return (per_island ** 2 * self.ground_distance[:, None]).sum(axis=0) * MARGIN
-
-    def residual(self, rhs: np.ndarray, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """``rhs - A x`` in extended precision and the bound of its rounding
-        (:meth:`ResidualMeter.residual <ohmgraph.engine.resistance.accuracy.ResidualMeter.residual>`)."""
-        return self.meter.residual(rhs, x)
 
     def first_order_bounds(self, values, l1_i, l1_j, g_ii, g_jj, g_ij, islands) -> np.ndarray:
         """Relative error bounds of values ``G_ii + G_jj - 2 G_ij`` read from solved columns.
@@ -410,9 +406,9 @@ class ResistanceSolver:
             tracker.block()
             rhs = self._injection_block(keys[0, cols], keys[1, cols])
             x = self.solve_block(rhs)
-            residual, slack = self.residual(rhs, x)
-            estimate, linear, _ = energy_values(rhs, x, residual, slack)
-            quadratic = self.residual_energy_bound(np.abs(residual).astype(np.float64) + slack)
+            estimate, linear = self.meter.energy_estimates(rhs, x)
+            residual, slack = self.meter.residual(rhs, x)
+            quadratic = self.residual_energy_bound(np.abs(residual) + slack)
             error = linear + quadratic
             error += ASSEMBLY * (estimate + error) + UNIT_ROUNDOFF * estimate
             values[cols] = estimate
@@ -441,14 +437,13 @@ class ResistanceSolver:
         rhs = np.zeros((self.free.size, 1))
         rhs[into, 0], rhs[out, 0] = 1.0, -1.0
         x = self.solve_block(rhs)
-        residual, slack = self.residual(rhs, x)
-        full = float(energy_values(rhs, x, residual, slack)[0][0])
+        full = float(self.meter.energy_estimates(rhs, x)[0][0])
         shortcut = float(reach.energies(into, out)[0])
         if abs(shortcut - full) > REACH_CHECK_LIMIT * abs(full):
             self.stats.notes.append(f"factor reach disagreed with a full solve ({shortcut!r} vs "
                                     f"{full!r}); pair values by full solves")
             return None
-        self._factor_residual = float((np.abs(residual).astype(np.float64) + slack).sum() / 2.0)
+        self._factor_residual = float(self.meter.residual_l1(rhs, x)[0] / 2.0)
         self._factor_pairs = reach
         return reach
 
@@ -482,7 +477,7 @@ class ResistanceSolver:
         -------
         green : ndarray, shape (t, t)
         residual_l1 : ndarray, shape (t,)
-            A bound on ``||r||_1`` of each terminal's solve (extended-precision residual plus its
+            A bound on ``||r||_1`` of each terminal's solve (edge-by-edge residual plus its
             rounding bound), 0 for grounded ones.
         """
         t = terminals.size
@@ -498,8 +493,7 @@ class ResistanceSolver:
             rhs[unknowns[cols], np.arange(cols.size)] = 1.0
             x = self.solve_block(rhs)
             green[np.ix_(live, cols)] = x[unknowns[live]]
-            residual, slack = self.residual(rhs, x)
-            residual_l1[cols] = (np.abs(residual).astype(np.float64) + slack).sum(axis=0)
+            residual_l1[cols] = self.meter.residual_l1(rhs, x)
             if tracker is not None:
                 tracker.done(cols.size)
         return 0.5 * (green + green.T), residual_l1

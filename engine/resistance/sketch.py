@@ -147,8 +147,7 @@ def _unknown_blocks(solver, tracker: Tracker):
         rhs = np.zeros((n, cols.size))
         rhs[cols, np.arange(cols.size)] = 1.0
         x = solver.solve_block(rhs)
-        residual, slack = solver.residual(rhs, x)
-        yield cols, x, (np.abs(residual).astype(np.float64) + slack).sum(axis=0)
+        yield cols, x, solver.meter.residual_l1(rhs, x)
         tracker.done(cols.size)
 
 
