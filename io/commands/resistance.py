@@ -72,8 +72,8 @@ def register(subparsers) -> None:
                       help="--across-resistors: sketch size K")
     size.add_argument("--time-budget", type=positive_float, metavar="SECONDS",
                       help=f"--across-resistors: without --epsilon or --sketch-size, the sketch "
-                           f"size that fits SECONDS at the rate of a first timed solve "
-                           f"(default {DEFAULT_TIME_BUDGET:g})")
+                           f"size whose solves fit SECONDS (the solver set-up not counted) at "
+                           f"the rate of a first timed solve (default {DEFAULT_TIME_BUDGET:g})")
     parser.add_argument("--samples", type=whole_number(2), default=200,
                         help="--kirchhoff: Hutchinson samples (default 200)")
     parser.add_argument("--seed", type=whole_number(0), default=0, help="random seed (default 0)")
