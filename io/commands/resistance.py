@@ -30,6 +30,17 @@ DEFAULT_REFERENCE = "0"
 # Seconds --across-resistors may spend on a sketch when neither --epsilon nor --sketch-size is given.
 DEFAULT_TIME_BUDGET = 60.0
 
+# What the accuracy column means, by the method that produced the values.
+EXACT_ACCURACY = ("relative error bound, first order in the solve residuals; covers the rounding "
+                  "of the conductances, the residuals and the value")
+PAIR_ACCURACY = {
+    "pair solves": "relative error bound; covers the rounding of the conductances, the solve, "
+                   "the residuals and the value",
+    "terminal reduction": EXACT_ACCURACY,
+    "factor reach": "relative error estimate (first order, from one check solve's residual)",
+    "trivial": "exact",
+}
+
 
 def register(subparsers) -> None:
     parser = subparsers.add_parser(
@@ -101,8 +112,8 @@ def run(args) -> int:
         ground = DEFAULT_REFERENCE
     net = read_network(args.network, ground=ground)
     if args.between and args.ground is None:
-        net = net.with_reference(str(net.node_labels[_nodes(args, net, args.between[0],
-                                                            "--between")[0]]))
+        _nodes(args, net, args.between[0], "--between")     # an unknown label: InputError
+        net = net.with_reference(args.between[0])
     try:
         solver = ResistanceSolver(net, method=args.method, rtol=args.rtol)
     except ValueError as error:
@@ -138,18 +149,6 @@ def _nodes(args, net, labels, option) -> np.ndarray:
     except KeyError as error:
         raise InputError(f"{args.network}: {option}: {error.args[0]} (not a node of the "
                          "network)") from None
-
-
-# What the accuracy column means, by the method that produced the values.
-EXACT_ACCURACY = ("relative error bound, first order in the solve residuals; covers the rounding "
-                  "of the conductances, the residuals and the value")
-PAIR_ACCURACY = {
-    "pair solves": "relative error bound; covers the rounding of the conductances, the solve, "
-                   "the residuals and the value",
-    "terminal reduction": EXACT_ACCURACY,
-    "factor reach": "relative error estimate (first order, from one check solve's residual)",
-    "trivial": "exact",
-}
 
 
 def _solver_summary(solver) -> dict:
