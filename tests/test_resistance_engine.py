@@ -240,6 +240,9 @@ def complete_graph(n):
 def test_kirchhoff_index_exact(build, formula, n):
     result = ResistanceSolver(build(n)).kirchhoff_index(exact=True)
     assert result.exact and result.value == pytest.approx(formula(n), rel=1e-10)
+    # the stated bound covers the error and is small
+    assert abs(result.value - formula(n)) <= result.accuracy * result.value
+    assert result.accuracy <= 1e-9 and result.low <= formula(n) <= result.high
 
 
 def test_kirchhoff_index_counts_merged_nodes():

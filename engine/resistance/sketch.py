@@ -34,6 +34,7 @@ import numpy as np
 import scipy.sparse as sp
 from scipy.stats import norm
 
+from .accuracy import ASSEMBLY, MARGIN, UNIT_ROUNDOFF
 from .progress import Tracker, first_then_blocks
 
 # Unknowns up to which "exact=None" computes exact values (one solve per unknown).
@@ -93,7 +94,7 @@ class KirchhoffIndex:
         ``inf`` when the network has more than one island.
     exact : bool
     low, high : float
-        Confidence interval (equal to ``value`` when exact).
+        Exact: ``value`` ± the error bound; estimate: the confidence interval.
     confidence : float
         Level of the interval (for example 0.95).
     std_error : float
@@ -102,6 +103,9 @@ class KirchhoffIndex:
         Hutchinson samples (0 when exact).
     solves : int
     seconds : float
+    accuracy : float
+        Exact: a relative error bound covering the solves' residuals and the rounding of the
+        conductances and the sums (:func:`_exact_kirchhoff`); estimate: 0 (see ``std_error``).
     """
 
     value: float
@@ -113,6 +117,7 @@ class KirchhoffIndex:
     samples: int
     solves: int
     seconds: float
+    accuracy: float = 0.0
 
 
 def block_columns(rows: int) -> int:
@@ -301,7 +306,6 @@ def kirchhoff_index(solver, exact=None, samples: int = 200, seed: int = 0,
     """
     start = time.perf_counter()
     before = solver.stats.solves
-    n = solver.n_nodes
     if solver.n_islands > 1:
         return KirchhoffIndex(math.inf, True, math.inf, math.inf, confidence, 0.0, 0, 0,
                               time.perf_counter() - start)
@@ -309,18 +313,12 @@ def kirchhoff_index(solver, exact=None, samples: int = 200, seed: int = 0,
     if exact is None:
         exact = n_unknowns <= EXACT_UNKNOWN_LIMIT or n_unknowns <= samples
     solver.prepare(n_unknowns + 1 if exact else samples)
-    weight = solver.supernode_size[solver.free].astype(np.float64)
     if exact:
         tracker = Tracker(n_unknowns + 1, "exact: one solve per unknown", progress, announce)
-        diagonal = np.zeros(n_unknowns)
-        for cols, x, _ in _unknown_blocks(solver, tracker):
-            diagonal[cols] = x[cols, np.arange(cols.size)]
-        tracker.block()
-        green_w = solver.solve_block(weight)
-        tracker.done(1)
-        value = float(n * weight @ diagonal - weight @ green_w)
-        return KirchhoffIndex(value, True, value, value, confidence, 0.0, 0,
-                              solver.stats.solves - before, time.perf_counter() - start)
+        value, bound = _exact_kirchhoff(solver, tracker)
+        return KirchhoffIndex(value, True, value - bound, value + bound, confidence, 0.0, 0,
+                              solver.stats.solves - before, time.perf_counter() - start,
+                              bound / value if value > 0 else 0.0)
     if samples < 2:
         raise ValueError("Hutchinson's estimate needs at least 2 samples")
     tracker = Tracker(samples, "Hutchinson samples", progress, announce)
@@ -330,6 +328,40 @@ def kirchhoff_index(solver, exact=None, samples: int = 200, seed: int = 0,
     half = float(norm.ppf(0.5 + confidence / 2.0)) * std_error
     return KirchhoffIndex(mean, False, mean - half, mean + half, confidence, std_error, samples,
                           solver.stats.solves - before, time.perf_counter() - start)
+
+
+def _exact_kirchhoff(solver, tracker: Tracker) -> tuple[float, float]:
+    """``Kf = n Σ_s w_s G_ss - w^T G w`` over the free supernodes (weights ``w``: nodes per
+    supernode), and a bound on its absolute error.
+
+    Each ``G_ss`` is read from the solve of ``e_s``, ``x = A^{-1} (e_s - r)``; its error
+    ``(A^{-1} r)_s`` is at most ``D ||r||_1`` (entries of ``A^{-1}`` are at most the ground
+    distance ``D``). ``w^T G w`` is the energy estimate of the solve of ``w`` (error: its rounding
+    plus ``||r||_1^2 D``). Both sums are correctly rounded (:func:`math.fsum`, each product
+    adding one rounding); the conductances move ``Kf``, a sum of resistances, by at most a
+    relative :data:`~ohmgraph.engine.resistance.accuracy.ASSEMBLY`.
+    """
+    n = solver.n_nodes
+    weight = solver.supernode_size[solver.free].astype(np.float64)
+    diagonal, residual_l1 = np.zeros(weight.size), np.zeros(weight.size)
+    for cols, x, l1 in _unknown_blocks(solver, tracker):
+        diagonal[cols] = x[cols, np.arange(cols.size)]
+        residual_l1[cols] = l1
+    tracker.block()
+    rhs = weight[:, None]
+    green_w = solver.solve_block(rhs)
+    tracker.done(1)
+    quadratic, linear = solver.meter.energy_estimates(rhs, green_w)
+    residual, slack = solver.meter.residual(rhs, green_w)
+    quadratic_error = linear[0] + solver.residual_energy_bound(np.abs(residual) + slack)[0]
+    products = weight * diagonal
+    first = n * math.fsum(products.tolist())
+    value = first - float(quadratic[0])
+    distance = solver.ground_distance[0]            # one island
+    error = (n * distance * float(weight @ residual_l1)
+             + 2.0 * UNIT_ROUNDOFF * abs(first) + quadratic_error
+             + (ASSEMBLY + UNIT_ROUNDOFF) * abs(value))
+    return value, error * MARGIN
 
 
 def _hutchinson_samples(solver, samples, seed, tracker: Tracker):

@@ -229,8 +229,8 @@ def _kirchhoff(args, solver, feedback) -> int:
     elif not math.isfinite(result.value):
         print("Kirchhoff index: infinite (the network has more than one island)")
     elif result.exact:
-        print(f"Kirchhoff index = {result.value:.10g} ohm (exact method, {result.solves} "
-              "solves; each solve meets the residual target, rounding is not bounded)")
+        print(f"Kirchhoff index = {result.value:.10g} ohm (relative error at most "
+              f"{result.accuracy:.1e}, rounding included; exact method, {result.solves} solves)")
     else:
         print(f"Kirchhoff index = {result.value:.6g} ohm, {100 * result.confidence:g}% "
               f"confidence interval [{result.low:.6g}, {result.high:.6g}] "
