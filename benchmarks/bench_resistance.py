@@ -53,7 +53,7 @@ def test_one_pair_versus_one_full_solve(benchmark, lattice):
 
     def one_pair():
         solver = ResistanceSolver(lattice)            # set-up included: a fresh network
-        return solver.pair(a, b)
+        return solver.pair_by_index(a, b)
 
     start = time.perf_counter()
     solution = solve(lattice)
@@ -68,7 +68,7 @@ def test_one_pair_versus_one_full_solve(benchmark, lattice):
 def test_random_pairs(benchmark, lattice, shared_solver):
     rng = np.random.default_rng(1)
     a, b = rng.integers(0, lattice.n_nodes, (2, PAIRS))
-    result = benchmark.pedantic(shared_solver.pairs, args=(a, b), rounds=1, iterations=1)
+    result = benchmark.pedantic(shared_solver.pairs_by_index, args=(a, b), rounds=1, iterations=1)
     print(f"\n{PAIRS} random pairs on {lattice.n_nodes} nodes: {result.seconds:.1f} s with the "
           f"{shared_solver.stats.method} set-up ({shared_solver.stats.setup_seconds:.1f} s) "
           f"included ({result.method}, {result.solves} solves); "
@@ -83,7 +83,8 @@ def test_sketch_across_all_resistors(benchmark, lattice, shared_solver):
     rng = np.random.default_rng(3)
     checked = rng.choice(result.branches.size, min(CHECKED, result.branches.size), replace=False)
     branches = result.branches[checked]
-    exact = shared_solver.pairs(lattice.from_node[branches], lattice.to_node[branches]).ohms
+    exact = shared_solver.pairs_by_index(lattice.from_node[branches],
+                                         lattice.to_node[branches]).ohms
     relative = np.abs(result.ohms[checked] / exact - 1.0)
     share = (result.ohms / result.resistor_ohms).sum()
     print(f"\nsketch of {result.branches.size} resistors (k = {result.sketch_size}): "
@@ -105,7 +106,7 @@ def test_against_networkx(benchmark):
     b = np.where(a == b, (b + 1) % net.n_nodes, b)
 
     def ours():
-        return ResistanceSolver(net).pairs(a, b).ohms
+        return ResistanceSolver(net).pairs_by_index(a, b).ohms
 
     values = benchmark.pedantic(ours, rounds=3, iterations=1)
     ours_seconds = benchmark.stats.stats.median

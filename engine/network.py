@@ -119,8 +119,10 @@ class Network:
             Kind letters ``R``/``V``/``I``; default all ``R``.
         names : array_like of str, optional
             Branch names; default the 1-based row number.
-        reference : str, default ``"0"``
-            Label of the reference node. It must be one of the nodes.
+        reference : str or None, default ``"0"``
+            Label of the reference node; it must be one of the nodes. ``None`` takes the first
+            node, for networks used only for queries that need no reference (two-point
+            resistances, the Kirchhoff index).
         node_labels : array_like of str, optional
             Extra nodes (for example isolated ones) and the order of node indices; labels used by
             branches but missing here are appended in order of first appearance.
@@ -129,7 +131,11 @@ class Network:
         ------
         ValueError
             On mismatched lengths, unknown kinds or a reference label that is not a node.
+        TypeError
+            When ``reference`` is neither a ``str`` nor None.
         """
+        if reference is not None:
+            reference = check_labels(reference, "reference")[0]
         from_labels = np.asarray(from_labels).astype(str)
         to_labels = np.asarray(to_labels).astype(str)
         values = np.asarray(values, dtype=np.float64)
@@ -150,26 +156,68 @@ class Network:
         index = rank[inverse.reshape(-1)]
         labels = labels[order]
         k = given.shape[0]
-        ref = np.flatnonzero(labels == str(reference))
+        ref = np.flatnonzero(labels == reference) if reference is not None else np.arange(1)
+        if labels.size == 0:
+            raise ValueError("the network has no nodes")
         if ref.size == 0:
             raise ValueError(f"reference node {str(reference)!r} is not a node of the network")
         return cls(labels, names, kind, index[k:k + m], index[k + m:], values, int(ref[0]))
 
     @classmethod
-    def from_networkx(cls, graph, reference="0", weight="ohms") -> "Network":
-        """Build a network from a networkx graph.
+    def from_networkx(cls, graph, reference="0", *, ohms=None, siemens=None) -> "Network":
+        """Build a network from a networkx graph, naming the edge attribute that holds the value.
 
-        Every edge becomes a branch. Edge attributes: ``kind`` (``R``/``V``/``I``, default ``R``),
-        ``value`` or the ``weight`` attribute (default ``ohms``) for the value, ``name`` (default
-        the edge's position). Undirected graphs get ``from``/``to`` in edge iteration order.
+        Every edge becomes a branch. Edge attributes: ``kind`` (``R``/``V``/``I``, default
+        ``R``), ``name`` (default the edge's position), and the value: sources always read
+        ``value`` (volts or amperes); resistors read the attribute chosen by ``ohms`` or
+        ``siemens``, else ``value`` (ohms, as :meth:`to_networkx` writes it). Node labels are
+        ``str(node)``; undirected graphs get ``from``/``to`` in edge iteration order.
+
+        Parameters
+        ----------
+        graph : networkx graph
+        reference : node of ``graph``, or None
+            The reference node (converted with ``str`` like every node); ``None`` takes the
+            first node, for networks that only answer queries needing no reference.
+        ohms : str or float, optional
+            Name of the edge attribute holding each resistor's resistance in ohms, or one
+            number of ohms for every resistor (``ohms=1.0`` for an unweighted graph).
+        siemens : str, optional
+            Name of the edge attribute holding each resistor's conductance in siemens
+            (networkx's ``weight`` usually is one); an infinite conductance is an ideal
+            connection.
+
+        Raises
+        ------
+        ValueError
+            When both ``ohms`` and ``siemens`` are given; when no choice was made and an edge
+            carries ``weight`` (the message says which keyword to pass); when a resistor lacks
+            the chosen attribute (or ``value``), a source lacks ``value``, or a conductance is
+            not positive.
+        TypeError
+            When ``ohms`` or ``siemens`` has the wrong type.
         """
+        if ohms is not None and siemens is not None:
+            raise ValueError("pass either ohms= or siemens=, not both")
+        if siemens is not None and not isinstance(siemens, str):
+            raise TypeError(f"siemens must name an edge attribute (a str), not {siemens!r}")
+        if ohms is not None and (isinstance(ohms, bool)
+                                 or not isinstance(ohms, (str, int, float, np.floating))):
+            raise TypeError(f"ohms must name an edge attribute (a str) or be a number of ohms, "
+                            f"not {ohms!r}")
         edges = list(graph.edges(data=True))
+        if ohms is None and siemens is None and any("weight" in d for _, _, d in edges):
+            raise ValueError("the edges carry 'weight' but nothing says what it holds: pass "
+                             "ohms='weight' if it is the resistance in ohms or siemens='weight' "
+                             "if it is the conductance in siemens")
+        kinds = [str(d.get("kind", "R")) for _, _, d in edges]
+        vals = [_edge_value(u, v, d, kind, ohms, siemens)
+                for (u, v, d), kind in zip(edges, kinds)]
         frm = [str(u) for u, _, _ in edges]
         to = [str(v) for _, v, _ in edges]
-        vals = [d.get("value", d.get(weight, 1.0)) for _, _, d in edges]
-        kinds = [d.get("kind", "R") for _, _, d in edges]
         names = [d.get("name", str(i + 1)) for i, (_, _, d) in enumerate(edges)]
-        return cls.from_arrays(frm, to, vals, kinds, names, reference=reference,
+        return cls.from_arrays(frm, to, vals, kinds, names,
+                               reference=None if reference is None else str(reference),
                                node_labels=[str(v) for v in graph.nodes])
 
     def to_networkx(self):
@@ -213,14 +261,20 @@ class Network:
     def node_index(self, labels) -> np.ndarray:
         """Indices of the given node labels.
 
+        Parameters
+        ----------
+        labels : str or sequence of str
+
         Raises
         ------
+        TypeError
+            When a label is not a ``str`` (an integer is never taken as an index or a label).
         KeyError
             Naming the first label that is not a node.
         """
         table = self.label_index
         out = []
-        for label in np.atleast_1d(np.asarray(labels).astype(str)).tolist():
+        for label in check_labels(labels):
             if label not in table:
                 raise KeyError(f"unknown node {label!r}")
             out.append(table[label])
@@ -240,8 +294,8 @@ class Network:
         return Network(self.node_labels, self.branch_names, self.kind, self.from_node,
                        self.to_node, np.asarray(value, dtype=np.float64), self.reference)
 
-    def with_reference(self, label) -> "Network":
-        """A copy whose reference node is ``label``."""
+    def with_reference(self, label: str) -> "Network":
+        """A copy whose reference node is ``label`` (a ``str``; see :meth:`node_index`)."""
         return Network(self.node_labels, self.branch_names, self.kind, self.from_node,
                        self.to_node, self.value, int(self.node_index(label)[0]))
 
@@ -257,3 +311,51 @@ class Network:
         value = np.where(self.kind[keep] == VOLTAGE_SOURCE, 0.0, self.value[keep])
         return Network(self.node_labels, self.branch_names[keep], kind, self.from_node[keep],
                        self.to_node[keep], value, self.reference)
+
+
+def check_labels(labels, what: str = "node label") -> list:
+    """``labels`` (one ``str`` or a sequence of them) as a list of ``str``.
+
+    Raises
+    ------
+    TypeError
+        Naming the first element that is not a ``str`` (NumPy string arrays pass).
+    """
+    if isinstance(labels, str):
+        return [labels]
+    array = np.asarray(labels)
+    if array.dtype.kind == "U":
+        return array.reshape(-1).tolist()
+    items = array.reshape(-1).tolist() if array.dtype.kind == "O" else None
+    if items is not None and all(isinstance(item, str) for item in items):
+        return items
+    if array.size == 0:
+        return []
+    first = next((item for item in array.reshape(-1).tolist() if not isinstance(item, str)),
+                 labels)
+    raise TypeError(f"a {what} must be a str, not {type(first).__name__} ({first!r}); "
+                    "index-based access has its own functions (for example pair_by_index)")
+
+
+def _edge_value(u, v, data: dict, kind: str, ohms, siemens) -> float:
+    """The value of one networkx edge (see :meth:`Network.from_networkx`)."""
+    where = f"edge ({u!r}, {v!r})"
+    if kind.strip().upper() != "R" or (ohms is None and siemens is None):
+        if "value" not in data:
+            hint = ("" if kind.strip().upper() != "R" else
+                    "; pass ohms='ATTRIBUTE' or siemens='ATTRIBUTE' naming the attribute that "
+                    "holds it, or ohms=1.0 for 1-ohm resistors")
+            raise ValueError(f"{where} has no 'value' attribute{hint}")
+        return float(data["value"])
+    if ohms is not None and not isinstance(ohms, str):
+        return float(ohms)
+    name = ohms if ohms is not None else siemens
+    if name not in data:
+        raise ValueError(f"{where} has no {name!r} attribute")
+    value = float(data[name])
+    if ohms is not None:
+        return value
+    if not value > 0:
+        raise ValueError(f"{where}: conductance {value!r} S is not positive (an open circuit "
+                         "is no edge)")
+    return 1.0 / value

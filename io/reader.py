@@ -100,13 +100,13 @@ class _Rejected(Exception):
 
 
 # ---------------------------------------------------------------------------------- public API
-def read_network(path, ground: str = "0") -> Network:
+def read_network(path, ground: str | None = "0") -> Network:
     """Read a network file (:func:`read_network_file` without the reader's findings).
 
     Parameters
     ----------
     path : str or Path
-    ground : str, default ``"0"``
+    ground : str or None, default ``"0"``
 
     Returns
     -------
@@ -120,7 +120,7 @@ def read_network(path, ground: str = "0") -> Network:
     return read_network_file(path, ground).network
 
 
-def read_network_file(path, ground: str = "0") -> NetworkFile:
+def read_network_file(path, ground: str | None = "0") -> NetworkFile:
     """Read a network file and record what the reader assumed.
 
     Parameters
@@ -128,8 +128,9 @@ def read_network_file(path, ground: str = "0") -> NetworkFile:
     path : str or Path
         A ``.csv`` / ``.tsv`` branch table or a whitespace edge list, optionally gzip-compressed
         (``.gz``), or a ``.parquet`` branch table.
-    ground : str, default ``"0"``
-        Label of the reference (0 V) node; it must be one of the nodes.
+    ground : str or None, default ``"0"``
+        Label of the reference (0 V) node; it must be one of the nodes. ``None`` takes the first
+        node, for queries that need no reference (two-point resistances, the Kirchhoff index).
 
     Returns
     -------
@@ -156,7 +157,7 @@ def read_network_file(path, ground: str = "0") -> NetworkFile:
             columns = _read_table(path, found.format.delimiter)
     except (OSError, EOFError) as error:      # unreadable gzip stream or a failing disk
         raise InputError(f"{path}: cannot be read ({error})") from None
-    network = _build_network(path, columns, str(ground))
+    network = _build_network(path, columns, None if ground is None else str(ground))
     return NetworkFile(path, network, _reading_findings(columns))
 
 
@@ -303,7 +304,7 @@ def _convert(table: pa.Table) -> _Columns:
     return _Columns(from_labels, to_labels, value, kind, names, defaulted)
 
 
-def _build_network(path: Path, columns: _Columns, ground: str) -> Network:
+def _build_network(path: Path, columns: _Columns, ground: str | None) -> Network:
     """Number the nodes (first appearance order over ``from`` then ``to``) and build the network."""
     m = len(columns.from_labels)
     if m == 0:
@@ -312,7 +313,7 @@ def _build_network(path: Path, columns: _Columns, ground: str) -> Network:
                                   columns.to_labels.cast(pa.string())])
     encoded = pc.dictionary_encode(endpoints)
     labels = _to_numpy_text(encoded.dictionary)
-    reference = np.flatnonzero(labels == ground)
+    reference = np.flatnonzero(labels == ground) if ground is not None else np.arange(1)
     if reference.size == 0:
         raise InputError(f"{path}: reference node {ground!r} is not a node of the network; "
                          "name another with --ground")

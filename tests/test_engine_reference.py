@@ -97,7 +97,7 @@ def effective_resistance(graph: nx.Graph, a, b, method: str) -> float:
     kinds = ["R"] * len(edges) + ["I"]
     net = Network.from_arrays(frm, to, values, kinds, reference=str(b))
     solution = solve(net, method=method)
-    return float(solution.node_voltage[net.node_index(a)[0]])
+    return float(solution.node_voltage[net.node_index(str(a))[0]])
 
 
 @pytest.mark.parametrize("method", METHODS)

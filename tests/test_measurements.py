@@ -83,7 +83,7 @@ def test_two_point_resistance_matches_networkx():
     graph = nx.connected_watts_strogatz_graph(40, 4, 0.4, seed=7)
     for u, v in graph.edges:
         graph.edges[u, v]["ohms"] = float(rng.uniform(1.0, 100.0))
-    net = Network.from_networkx(graph, reference="0")
+    net = Network.from_networkx(graph, reference="0", ohms="ohms")
     pairs = [(1, 17), (3, 29), (0, 39), (5, 6)]
     readings = Readings.from_labels(net, ["R"] * 4, [str(a) for a, _ in pairs],
                                     [str(b) for _, b in pairs])

@@ -246,6 +246,11 @@ REFUSED = [
      "--seed: '-1' must be at least 0"),
     ("resistance net.csv --kirchhoff --estimate --seed -1", EXIT_BAD_INPUT,
      "--seed: '-1' must be at least 0"),
+    ("resistance net.csv --across-resistors --time-budget 0", EXIT_BAD_INPUT, "--time-budget"),
+    ("resistance net.csv --across-resistors --time-budget 5 --epsilon 0.2", EXIT_BAD_INPUT,
+     "not allowed with argument"),
+    ("resistance net.csv --to-reference mid --ground nowhere", EXIT_BAD_INPUT,
+     "reference node 'nowhere' is not a node"),
     # networks that are not well-posed
     ("compare islands.csv meas_islands.csv --accuracy 1%+1mV", EXIT_FAILED, "not well-posed"),
     ("diagnose islands.csv meas_islands.csv --accuracy 1%+1mV", EXIT_FAILED, "not well-posed"),

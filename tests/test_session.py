@@ -78,7 +78,7 @@ def test_resistance_on_every_back_end(method):
     solver = ResistanceSolver(net, method=method, rtol=RTOL)
     a = np.array([0, 5, 17, 40])
     b = np.array([71, 33, 2, 41])
-    result = solver.pairs(a, b)
+    result = solver.pairs_by_index(a, b)
     reference = [dense_resistance(net, i, j) for i, j in zip(a, b)]
     np.testing.assert_allclose(result.ohms, reference, rtol=1e-9)
     assert solver.stats.method == method
@@ -201,7 +201,7 @@ def test_every_capability_raises_instead_of_using_a_failed_solve(failing_back_en
     with pytest.raises(SolverFailed):
         solve(net, method=failing_back_end)
     with pytest.raises(SolverFailed):
-        ResistanceSolver(net, method=failing_back_end).pairs(np.array([0]), np.array([9]))
+        ResistanceSolver(net, method=failing_back_end).pair("n0_0", "n3_3")
     with pytest.raises(SolverFailed):
         kron_reduction(nx.laplacian_matrix(nx.path_graph(6)).astype(float) + np.eye(6),
                        np.array([0, 5]), failing_back_end)

@@ -107,6 +107,8 @@ class Readings:
         ------
         ValueError
             Naming the first reading (0-based) with an unknown kind, node or branch.
+        TypeError
+            When a node label or branch name is not a ``str`` (an empty ``b`` may be None).
         """
         kinds = [str(k).strip().upper() for k in kinds]
         count = len(kinds)
@@ -117,7 +119,11 @@ class Readings:
         for index, name in enumerate(net.branch_names.tolist()):
             names.setdefault(name, []).append(index)
         for row, (kind, first, second) in enumerate(zip(kinds, a, b)):
-            first, second = str(first).strip(), str(second or "").strip()
+            for label in (first, second):
+                if label is not None and not isinstance(label, str):
+                    raise TypeError(f"reading {row}: a node label or branch name must be a "
+                                    f"str, not {type(label).__name__} ({label!r})")
+            first, second = first.strip(), (second or "").strip()
             if kind == "I":
                 matches = names.get(first, [])
                 if len(matches) != 1:

@@ -15,27 +15,40 @@ solver, with many right-hand sides solved as blocks.
 
 Accuracy
 --------
-For one pair, with a computed solution ``x`` of ``A x = d`` and its residual ``r = d - A x``,
-the reported value is the energy estimate ``R~ = d^T x + x^T r``, whose error is exactly
-``R - R~ = r^T A^{-1} r >= 0`` (substitute ``x = A^{-1} (d - r)``): quadratic in the residual,
-so even a loose iterative solve gives a precise value. Because ``A^{-1}`` of a grounded Laplacian is entrywise non-negative with its largest
-entry on the diagonal (maximum principle), ``r^T A^{-1} r <= ||r||_1^2 max_i G_ii``, and by
-Rayleigh's monotonicity law ``G_ii`` (the resistance from ``i`` to ground) is at most the
+Every ``accuracy`` is a relative error bound against the resistance of the network as given
+(its float64 resistances taken as exact), covering the rounding of the conductances ``1/R``, the
+solve, the residual and the value itself, except where it says it is an estimate.
+
+*Pair solves* (one right-hand side per pair, :meth:`ResistanceSolver.pairs_by_index`). With a
+computed solution ``x`` of ``A x = d`` and its residual ``r = d - A x``, the value is the energy
+estimate ``R~ = d^T x + x^T r``, whose error is exactly ``R - R~ = r^T A^{-1} r >= 0``
+(substitute ``x = A^{-1} (d - r)``): quadratic in the residual, so even a loose iterative solve
+gives a precise value. Because ``A^{-1}`` of a grounded Laplacian is entrywise non-negative with
+its largest entry on the diagonal (maximum principle), ``r^T A^{-1} r <= ||r||_1^2 max_i G_ii``,
+and by Rayleigh's monotonicity law ``G_ii`` (the resistance from ``i`` to ground) is at most the
 resistance of the cheapest path from ``i`` to ground, found once by Dijkstra's algorithm. The
-reported ``accuracy`` is that bound divided by the value: a relative error bound, one-sided (the
-true resistance lies in ``[R~, R~ (1 + accuracy)]``), floored at the machine epsilon of float64
-(the rounding of the value itself; the bound does not cover rounding in forming ``r``).
-Values read from a terminal reduction (:meth:`ResistanceSolver.pairs` with few terminals) use the
-plain ``d^T x``, whose error ``|x^T r|`` is bounded by ``sqrt(R ||r||_1^2 max G_ii)``. Values read
-from the factor (:meth:`ResistanceSolver.factor_pairs`) have no residual of their own: their
-accuracy is that first-order bound with the residual of a full solve of a check pair standing in,
-an estimate rather than a bound.
+estimate is formed as ``2 d^T x - x^T A x`` with the energy ``x^T A x`` summed edge by edge
+from the conductances by compensated summation, and the residual edge by edge too
+(:mod:`ohmgraph.engine.resistance.accuracy`), each with its rounding bounded and added; a
+float64 residual of the assembled matrix would be wrong by about ``eps |A| |x|`` and enter
+``x^T r`` linearly (on a 60 x 80 lattice, a relative 1e-12 reported as 2.2e-16). Added: the
+float64 conductances (a relative ``u = eps/2``, by Rayleigh's law) and the final rounding.
+
+*Terminal reduction* and *exact values across every resistor* read ``G_ii + G_jj - 2 G_ij`` from
+solved columns; their bound is first order in the columns' residuals
+(:meth:`ResistanceSolver.first_order_bounds`), plus the rounding of the combination, of the
+conductances and of the value. With a factorisation it is typically 1e-11 to 1e-10 on 10^4
+nodes; with an iterative solve it follows ``rtol``.
+
+*Factor reach* values (:meth:`ResistanceSolver.factor_pairs`) have no residual of their own:
+their accuracy is the first-order bound with the residual of a full solve of a check pair
+standing in, an estimate rather than a bound.
 """
 
 from __future__ import annotations
 
 import time
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 import scipy.sparse as sp
@@ -47,7 +60,9 @@ from ..formulation import grounded_matrix, supernode_graph
 from ..network import RESISTOR, Network
 from ..session import SolveSession
 from ..solvers import DEFAULT_RTOL
+from .accuracy import ASSEMBLY, MARGIN, UNIT_ROUNDOFF, ResidualMeter
 from .kron import kron_reduction
+from .progress import Tracker, first_then_blocks
 from .reach import FactorPairs
 from .sketch import across_resistors, block_columns, kirchhoff_index
 
@@ -61,7 +76,6 @@ REACH_COST = 0.3
 REACH_BATCH = 256
 # Largest relative difference tolerated between a factor-reach value and a full solve at set-up.
 REACH_CHECK_LIMIT = 1e-9
-EPSILON = float(np.finfo(np.float64).eps)
 
 
 @dataclass(frozen=True)
@@ -143,6 +157,8 @@ class ResistanceSolver:
         unknown_of[free] = np.arange(free.size)
         self.free, self.unknown_of = free, unknown_of
         self.matrix = grounded_matrix(self.graph, free, unknown_of)
+        self.meter = ResidualMeter(unknown_of[self.graph.a], unknown_of[self.graph.b],
+                                   self.graph.conductance, free.size)
         self.ground_distance = self._ground_distance(conductance)
         self.rtol = float(rtol)
         self.method = method
@@ -166,14 +182,16 @@ class ResistanceSolver:
         """Per island, the largest cheapest-path resistance from a supernode to its ground.
 
         By Rayleigh's monotonicity law it bounds every driving-point resistance to ground in the
-        island (bundles of parallel resistors count as their parallel combination).
+        island (bundles of parallel resistors count as their parallel combination). The margin
+        covers the rounding of the path sums (at most one rounding per supernode on a path and
+        two per bundle).
         """
         resistance = conductance.copy()
         resistance.data = 1.0 / resistance.data
         distance = dijkstra(resistance, directed=False, indices=self.ground, min_only=True)
         worst = np.zeros(self.n_islands)
         np.maximum.at(worst, self.island, distance)
-        return worst
+        return worst * (1.0 + 4.0 * (self.graph.n_supernodes + 4) * UNIT_ROUNDOFF) * MARGIN
 
     # ------------------------------------------------------------------ solving
     @property
@@ -201,16 +219,33 @@ class ResistanceSolver:
         """
         return self.session.solve(rhs)
 
-    def residual_energy_bound(self, residual: np.ndarray) -> np.ndarray:
-        """Upper bound of ``r^T A^{-1} r`` for each residual column: sum over islands of
-        ``||r_island||_1^2`` times the island's ground distance."""
-        residual = residual.reshape(residual.shape[0], -1)
+    def residual_energy_bound(self, magnitude: np.ndarray) -> np.ndarray:
+        """Upper bound of ``r^T A^{-1} r`` for each column, given elementwise bounds
+        ``|r| <= magnitude``: the sum over islands of ``||magnitude_island||_1^2`` times the
+        island's ground distance."""
+        magnitude = magnitude.reshape(magnitude.shape[0], -1)
         island = self.island[self.free]
-        per_island = np.zeros((self.n_islands, residual.shape[1]))
-        np.add.at(per_island, island, np.abs(residual))
-        return (per_island ** 2 * self.ground_distance[:, None]).sum(axis=0)
+        per_island = np.zeros((self.n_islands, magnitude.shape[1]))
+        np.add.at(per_island, island, magnitude)
+        return (per_island ** 2 * self.ground_distance[:, None]).sum(axis=0) * MARGIN
 
-    def injection_block(self, sources: np.ndarray, sinks: np.ndarray) -> np.ndarray:
+    def first_order_bounds(self, values, l1_i, l1_j, g_ii, g_jj, g_ij, islands) -> np.ndarray:
+        """Relative error bounds of values ``G_ii + G_jj - 2 G_ij`` read from solved columns.
+
+        With columns ``x_i = A^{-1} (e_i - r_i)``, the value's error is ``y^T (r_i - r_j)`` for
+        ``y = A^{-1} (e_i - e_j)``; by Cauchy–Schwarz in the ``A^{-1}`` inner product it is at
+        most ``sqrt(R D) (||r_i||_1 + ||r_j||_1)`` (``D`` the island's ground distance; ``R``
+        taken as the value, exact to first order). Added: the rounding of the combination
+        (four roundings of terms at most ``|G_ii| + |G_jj| + 2 |G_ij|``), of the float64
+        conductances (:data:`~ohmgraph.engine.resistance.accuracy.ASSEMBLY`) and of the value.
+        """
+        with np.errstate(divide="ignore", invalid="ignore"):
+            solve = (l1_i + l1_j) * np.sqrt(self.ground_distance[islands] / values)
+            combine = 4.0 * UNIT_ROUNDOFF * (np.abs(g_ii) + np.abs(g_jj) + 2.0 * np.abs(g_ij))
+            bounds = (solve + combine / values + ASSEMBLY + UNIT_ROUNDOFF) * MARGIN
+        return np.where(values > 0, bounds, np.inf)
+
+    def _injection_block(self, sources: np.ndarray, sinks: np.ndarray) -> np.ndarray:
         """Right-hand sides driving 1 A from supernode ``sources[j]`` to ``sinks[j]``."""
         rhs = np.zeros((self.free.size, sources.size))
         columns = np.arange(sources.size)
@@ -219,26 +254,93 @@ class ResistanceSolver:
         rhs[out[out >= 0], columns[out >= 0]] -= 1.0
         return rhs
 
+    # ------------------------------------------------------------------ node arguments
+    def node_indices(self, labels) -> np.ndarray:
+        """Node indices of ``labels`` (a ``str`` or a sequence of them).
+
+        Raises
+        ------
+        TypeError
+            When a label is not a ``str``: an integer is never guessed to be an index.
+        KeyError
+            Naming the first label that is not a node.
+        """
+        return self.network.node_index(labels)
+
+    def checked_indices(self, nodes) -> np.ndarray:
+        """``nodes`` as node indices (integers in ``0 .. n_nodes - 1``), one-dimensional.
+
+        Raises
+        ------
+        TypeError
+            When ``nodes`` are not integers (labels go to the label-taking functions).
+        IndexError
+            Naming the first index out of range.
+        """
+        array = np.asarray(nodes)
+        if array.size and array.dtype.kind not in "iu":
+            raise TypeError(f"node indices must be integers, not {array.dtype} "
+                            f"({array.reshape(-1)[0]!r}); labels go to pair, pairs, "
+                            "to_reference and kron_reduction")
+        array = array.astype(np.int64).reshape(-1)
+        bad = np.flatnonzero((array < 0) | (array >= self.n_nodes))
+        if bad.size:
+            raise IndexError(f"node index {int(array[bad[0]])} is out of range (the network "
+                             f"has {self.n_nodes} nodes, indices 0 .. {self.n_nodes - 1})")
+        return array
+
     # ------------------------------------------------------------------ pair queries
-    def pair(self, a: int, b: int) -> tuple[float, float]:
-        """Effective resistance between node indices ``a`` and ``b``: ``(ohms, accuracy)``."""
-        result = self.pairs(np.array([a]), np.array([b]))
+    def pair(self, a: str, b: str) -> tuple[float, float]:
+        """Effective resistance between the nodes labelled ``a`` and ``b``: ``(ohms, accuracy)``.
+
+        Raises
+        ------
+        TypeError
+            When a label is not a ``str`` (use :meth:`pair_by_index` for indices).
+        KeyError
+            Naming a label that is not a node.
+        """
+        result = self.pairs_by_index(self.node_indices(a), self.node_indices(b))
         return float(result.ohms[0]), float(result.accuracy[0])
 
-    def to_reference(self, nodes) -> PairResistances:
-        """Driving-point resistance from each node index to the network's reference node."""
-        nodes = np.asarray(nodes, np.int64).reshape(-1)
-        return self.pairs(nodes, np.full(nodes.size, self.network.reference))
+    def pair_by_index(self, i: int, j: int) -> tuple[float, float]:
+        """Effective resistance between node indices ``i`` and ``j``: ``(ohms, accuracy)``."""
+        result = self.pairs_by_index(self.checked_indices([i]), self.checked_indices([j]))
+        return float(result.ohms[0]), float(result.accuracy[0])
 
-    def pairs(self, a_idx, b_idx, progress=None) -> PairResistances:
+    def to_reference(self, labels) -> PairResistances:
+        """Driving-point resistance from each labelled node to the network's reference node."""
+        return self.to_reference_by_index(self.node_indices(labels))
+
+    def to_reference_by_index(self, nodes) -> PairResistances:
+        """Driving-point resistance from each node index to the network's reference node."""
+        nodes = self.checked_indices(nodes)
+        return self.pairs_by_index(nodes, np.full(nodes.size, self.network.reference))
+
+    def pairs(self, labels_a, labels_b, progress=None, announce=None) -> PairResistances:
+        """Effective resistances between the nodes labelled ``labels_a[k]`` and ``labels_b[k]``
+        (sequences of ``str``); see :meth:`pairs_by_index`.
+
+        Raises
+        ------
+        TypeError
+            When a label is not a ``str``.
+        KeyError
+            Naming the first label that is not a node.
+        """
+        return self.pairs_by_index(self.node_indices(labels_a), self.node_indices(labels_b),
+                                   progress, announce)
+
+    def pairs_by_index(self, a_idx, b_idx, progress=None, announce=None) -> PairResistances:
         """Effective resistances between node indices ``a_idx[k]`` and ``b_idx[k]``.
 
         Repeated and reversed pairs are solved once. When the distinct terminals are few
         (at most :data:`KRON_TERMINAL_LIMIT`, and fewer than the distinct pairs times the
-        relative cost of a pair), the network is reduced onto them once (:meth:`terminal_green`)
-        and every pairwise value is read from the reduced matrix. Otherwise each distinct pair
-        costs one sparse forward solve from the factor (:meth:`factor_pairs`, when the solver is
-        direct and there is more than one pair) or one full right-hand side, solved in blocks.
+        relative cost of a pair), the network is reduced onto them once
+        (:meth:`_terminal_green`) and every pairwise value is read from the reduced matrix.
+        Otherwise each distinct pair costs one sparse forward solve from the factor
+        (:meth:`factor_pairs`, when the solver is direct and there is more than one pair) or one
+        full right-hand side, solved in blocks.
 
         Parameters
         ----------
@@ -246,10 +348,17 @@ class ResistanceSolver:
             Node indices (``0 .. n_nodes - 1``).
         progress : callable, optional
             Called with the number of right-hand sides just solved, after each block.
+        announce : callable, optional
+            Called once, after the first (timed) solve, with the
+            :class:`~ohmgraph.engine.resistance.progress.Plan` of the query.
+
+        Raises
+        ------
+        TypeError, IndexError
+            On non-integer or out-of-range indices.
         """
         start = time.perf_counter()
-        a_idx = np.asarray(a_idx, np.int64).reshape(-1)
-        b_idx = np.asarray(b_idx, np.int64).reshape(-1)
+        a_idx, b_idx = self.checked_indices(a_idx), self.checked_indices(b_idx)
         if a_idx.shape != b_idx.shape:
             raise ValueError("a_idx and b_idx must have the same length")
         sa, sb = self.supernode[a_idx], self.supernode[b_idx]
@@ -268,35 +377,43 @@ class ResistanceSolver:
         reach = self.factor_pairs() if keys.shape[1] > 1 else None
         pair_cost = REACH_COST if reach is not None else 1.0
         if terminals.size <= KRON_TERMINAL_LIMIT and terminals.size < pair_cost * keys.shape[1]:
-            values, bounds = self._pairs_by_reduction(keys, terminals, progress)
-            method = "terminal reduction"
+            method, planned = "terminal reduction", int(np.count_nonzero(
+                self.unknown_of[terminals] >= 0))
         elif reach is not None:
-            values, bounds = self._pairs_by_reach(reach, keys, progress)
-            method = "factor reach"
+            method, planned = "factor reach", keys.shape[1]
         else:
-            values, bounds = self._pairs_by_solves(keys, progress)
-            method = "pair solves"
+            method, planned = "pair solves", keys.shape[1]
+        tracker = Tracker(planned, method, progress, announce)
+        if method == "terminal reduction":
+            values, bounds = self._pairs_by_reduction(keys, terminals, tracker)
+        elif method == "factor reach":
+            values, bounds = self._pairs_by_reach(reach, keys, tracker)
+        else:
+            values, bounds = self._pairs_by_solves(keys, tracker)
         inverse = inverse.reshape(-1)
         ohms[todo] = values[inverse]
         accuracy[todo] = bounds[inverse]
         return PairResistances(ohms, accuracy, method, self.stats.solves - before,
                                time.perf_counter() - start)
 
-    def _pairs_by_solves(self, keys: np.ndarray, progress) -> tuple[np.ndarray, np.ndarray]:
-        """One right-hand side per distinct supernode pair (columns of ``keys``)."""
+    def _pairs_by_solves(self, keys: np.ndarray, tracker: Tracker | None = None):
+        """One right-hand side per distinct supernode pair (columns of ``keys``), valued by the
+        energy estimate with its bound (module notes)."""
         count = keys.shape[1]
+        tracker = tracker if tracker is not None else Tracker(count, "pair solves")
         values, bounds = np.empty(count), np.empty(count)
-        step = block_columns(self.free.size)
-        for begin in range(0, count, step):
-            cols = slice(begin, min(begin + step, count))
-            rhs = self.injection_block(keys[0, cols], keys[1, cols])
+        for cols in first_then_blocks(count, block_columns(self.free.size)):
+            tracker.block()
+            rhs = self._injection_block(keys[0, cols], keys[1, cols])
             x = self.solve_block(rhs)
-            residual = rhs - self.matrix @ x
-            estimate = np.einsum("ij,ij->j", rhs, x) + np.einsum("ij,ij->j", x, residual)
+            estimate, linear = self.meter.energy_estimates(rhs, x)
+            residual, slack = self.meter.residual(rhs, x)
+            quadratic = self.residual_energy_bound(np.abs(residual) + slack)
+            error = linear + quadratic
+            error += ASSEMBLY * (estimate + error) + UNIT_ROUNDOFF * estimate
             values[cols] = estimate
-            bounds[cols] = np.maximum(self.residual_energy_bound(residual) / estimate, EPSILON)
-            if progress is not None:
-                progress(cols.stop - cols.start)
+            bounds[cols] = error / estimate * MARGIN
+            tracker.done(cols.stop - cols.start)
         return values, bounds
 
     def factor_pairs(self):
@@ -320,17 +437,17 @@ class ResistanceSolver:
         rhs = np.zeros((self.free.size, 1))
         rhs[into, 0], rhs[out, 0] = 1.0, -1.0
         x = self.solve_block(rhs)
-        full = float(rhs[:, 0] @ x[:, 0])
+        full = float(self.meter.energy_estimates(rhs, x)[0][0])
         shortcut = float(reach.energies(into, out)[0])
         if abs(shortcut - full) > REACH_CHECK_LIMIT * abs(full):
             self.stats.notes.append(f"factor reach disagreed with a full solve ({shortcut!r} vs "
                                     f"{full!r}); pair values by full solves")
             return None
-        self._factor_residual = float(np.abs(rhs - self.matrix @ x).sum() / 2.0)
+        self._factor_residual = float(self.meter.residual_l1(rhs, x)[0] / 2.0)
         self._factor_pairs = reach
         return reach
 
-    def _pairs_by_reach(self, reach, keys, progress) -> tuple[np.ndarray, np.ndarray]:
+    def _pairs_by_reach(self, reach, keys, tracker: Tracker):
         """Each distinct pair by one sparse forward solve from the factor (engine/resistance/reach.py).
 
         Accuracy is estimated, not bounded: the first-order bound ``||r||_1 sqrt(D / R)`` with the
@@ -339,17 +456,16 @@ class ResistanceSolver:
         count = keys.shape[1]
         values = np.empty(count)
         into, out = self.unknown_of[keys[0]], self.unknown_of[keys[1]]
-        for begin in range(0, count, REACH_BATCH):
-            part = slice(begin, min(begin + REACH_BATCH, count))
+        for part in first_then_blocks(count, REACH_BATCH):
+            tracker.block()
             values[part] = reach.energies(into[part], out[part])
             self.stats.solves += part.stop - part.start
-            if progress is not None:
-                progress(part.stop - part.start)
+            tracker.done(part.stop - part.start)
         worst = self.ground_distance[self.island[keys[0]]]
         bounds = 2.0 * self._factor_residual * np.sqrt(worst / values)
-        return values, np.maximum(bounds, EPSILON)
+        return values, bounds + ASSEMBLY + UNIT_ROUNDOFF
 
-    def terminal_green(self, terminals: np.ndarray, progress=None):
+    def _terminal_green(self, terminals: np.ndarray, tracker: Tracker | None = None):
         """The grounded Green's function among ``terminals`` (supernode indices).
 
         ``(A^{-1})_TT`` is the inverse of the Schur complement of ``A`` onto the terminals, the
@@ -361,42 +477,38 @@ class ResistanceSolver:
         -------
         green : ndarray, shape (t, t)
         residual_l1 : ndarray, shape (t,)
-            ``||r||_1`` of each terminal's solve, 0 for grounded ones.
+            A bound on ``||r||_1`` of each terminal's solve (edge-by-edge residual plus its
+            rounding bound), 0 for grounded ones.
         """
         t = terminals.size
         green = np.zeros((t, t))
         residual_l1 = np.zeros(t)
         unknowns = self.unknown_of[terminals]
         live = np.flatnonzero(unknowns >= 0)
-        step = block_columns(self.free.size)
-        for begin in range(0, live.size, step):
-            cols = live[begin:begin + step]
+        for part in first_then_blocks(live.size, block_columns(self.free.size)):
+            if tracker is not None:
+                tracker.block()
+            cols = live[part]
             rhs = np.zeros((self.free.size, cols.size))
             rhs[unknowns[cols], np.arange(cols.size)] = 1.0
             x = self.solve_block(rhs)
             green[np.ix_(live, cols)] = x[unknowns[live]]
-            residual_l1[cols] = np.abs(rhs - self.matrix @ x).sum(axis=0)
-            if progress is not None:
-                progress(cols.size)
+            residual_l1[cols] = self.meter.residual_l1(rhs, x)
+            if tracker is not None:
+                tracker.done(cols.size)
         return 0.5 * (green + green.T), residual_l1
 
-    def _pairs_by_reduction(self, keys, terminals, progress) -> tuple[np.ndarray, np.ndarray]:
+    def _pairs_by_reduction(self, keys, terminals, tracker: Tracker):
         """All requested pairs read from the Green's function among the distinct terminals."""
-        green, residual_l1 = self.terminal_green(terminals, progress)
+        green, residual_l1 = self._terminal_green(terminals, tracker)
         i = np.searchsorted(terminals, keys[0])
         j = np.searchsorted(terminals, keys[1])
         values = green[i, i] + green[j, j] - 2.0 * green[i, j]
-        worst = self.ground_distance[self.island[keys[0]]]
-        bounds = (residual_l1[i] + residual_l1[j]) * np.sqrt(worst / values)
-        return values, np.maximum(bounds, EPSILON)
+        bounds = self.first_order_bounds(values, residual_l1[i], residual_l1[j], green[i, i],
+                                         green[j, j], green[i, j], self.island[keys[0]])
+        return values, bounds
 
     # ------------------------------------------------------------------ whole-network queries
-    def dense_green(self) -> np.ndarray:
-        """The full grounded Green's function over supernodes (``n_supernodes`` squared floats),
-        by block solves of the identity; for small networks."""
-        green, _ = self.terminal_green(np.arange(self.graph.n_supernodes))
-        return green
-
     def resistor_endpoints(self):
         """Resistors of the network and their end supernodes: ``(branches, a, b, ohms)``."""
         net = self.network
@@ -404,19 +516,32 @@ class ResistanceSolver:
         return (branches, self.supernode[net.from_node[branches]],
                 self.supernode[net.to_node[branches]], net.value[branches])
 
-    def across_resistors(self, exact=None, epsilon: float = 0.1, k=None, seed: int = 0,
-                         progress=None):
+    def across_resistors(self, exact=None, epsilon=None, k=None, seed: int = 0,
+                         progress=None, announce=None, time_budget=None):
         """Effective resistance across every resistor (see
         :func:`ohmgraph.engine.resistance.sketch.across_resistors`)."""
-        return across_resistors(self, exact, epsilon, k, seed, progress)
+        return across_resistors(self, exact, epsilon, k, seed, progress, announce, time_budget)
 
     def kirchhoff_index(self, exact=None, samples: int = 200, seed: int = 0,
-                        confidence: float = 0.95, progress=None):
+                        confidence: float = 0.95, progress=None, announce=None):
         """The Kirchhoff index (see :func:`ohmgraph.engine.resistance.sketch.kirchhoff_index`)."""
-        return kirchhoff_index(self, exact, samples, seed, confidence, progress)
+        return kirchhoff_index(self, exact, samples, seed, confidence, progress, announce)
 
-    def kron_reduction(self, nodes) -> tuple[np.ndarray, np.ndarray]:
-        """The network reduced onto the supernodes of ``nodes`` (Kron reduction).
+    def kron_reduction(self, labels) -> tuple[np.ndarray, np.ndarray]:
+        """The network reduced onto the labelled nodes (Kron reduction); see
+        :meth:`kron_reduction_by_index`.
+
+        Raises
+        ------
+        TypeError
+            When a label is not a ``str``.
+        KeyError
+            Naming the first label that is not a node.
+        """
+        return self.kron_reduction_by_index(self.node_indices(labels))
+
+    def kron_reduction_by_index(self, nodes) -> tuple[np.ndarray, np.ndarray]:
+        """The network reduced onto the supernodes of node indices ``nodes`` (Kron reduction).
 
         Returns
         -------
@@ -425,7 +550,7 @@ class ResistanceSolver:
         reduced : ndarray, shape (t, t)
             Their Kron-reduced Laplacian (:func:`ohmgraph.engine.resistance.kron.kron_reduction`).
         """
-        supers = self.supernode[np.asarray(nodes, np.int64).reshape(-1)]
+        supers = self.supernode[self.checked_indices(nodes)]
         _, first = np.unique(supers, return_index=True)
         supers = supers[np.sort(first)]
         return supers, kron_reduction(self.graph.laplacian(), supers, self.method,

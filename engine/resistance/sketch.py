@@ -34,11 +34,18 @@ import numpy as np
 import scipy.sparse as sp
 from scipy.stats import norm
 
+from .accuracy import ASSEMBLY, MARGIN, UNIT_ROUNDOFF
+from .progress import Tracker, first_then_blocks
+
 # Unknowns up to which "exact=None" computes exact values (one solve per unknown).
 EXACT_UNKNOWN_LIMIT = 3000
 # Floats held by one block of right-hand sides (columns x rows); 2**24 is 128 MiB.
 BLOCK_FLOATS = 2 ** 24
 MAX_BLOCK_COLUMNS = 64
+# Relative error for every resistor at once when neither a size, an epsilon nor a budget is given.
+DEFAULT_EPSILON = 0.1
+# Smallest sketch a time budget may choose (below it the per-resistor spread sqrt(2/k) is > 35%).
+MIN_BUDGET_SKETCH = 16
 
 
 @dataclass(frozen=True)
@@ -87,7 +94,7 @@ class KirchhoffIndex:
         ``inf`` when the network has more than one island.
     exact : bool
     low, high : float
-        Confidence interval (equal to ``value`` when exact).
+        Exact: ``value`` ± the error bound; estimate: the confidence interval.
     confidence : float
         Level of the interval (for example 0.95).
     std_error : float
@@ -96,6 +103,9 @@ class KirchhoffIndex:
         Hutchinson samples (0 when exact).
     solves : int
     seconds : float
+    accuracy : float
+        Exact: a relative error bound covering the solves' residuals and the rounding of the
+        conductances and the sums (:func:`_exact_kirchhoff`); estimate: 0 (see ``std_error``).
     """
 
     value: float
@@ -107,6 +117,7 @@ class KirchhoffIndex:
     samples: int
     solves: int
     seconds: float
+    accuracy: float = 0.0
 
 
 def block_columns(rows: int) -> int:
@@ -119,20 +130,35 @@ def sketch_size(n: int, epsilon: float) -> int:
     return int(math.ceil(24.0 * math.log(max(n, 2)) / epsilon ** 2))
 
 
-def _unknown_blocks(solver):
-    """Yield ``(unknowns, X)``: consecutive blocks of columns of ``A^{-1}``."""
+def budget_sketch_size(budget_seconds: float, seconds_per_solve: float) -> int:
+    """The sketch size whose solves fit ``budget_seconds`` at the timed rate (at least
+    :data:`MIN_BUDGET_SKETCH`)."""
+    return max(MIN_BUDGET_SKETCH, int(budget_seconds / max(seconds_per_solve, 1e-9)))
+
+
+def sketch_epsilon(n: int, k: int) -> float:
+    """``sqrt(24 ln n / k)``: the relative error every resistor stays within at once with
+    probability at least ``1 - 1/n`` for sketch size ``k`` (inverse of :func:`sketch_size`)."""
+    return math.sqrt(24.0 * math.log(max(n, 2)) / k)
+
+
+def _unknown_blocks(solver, tracker: Tracker):
+    """Yield ``(unknowns, X, l1)``: blocks of columns of ``A^{-1}`` (the first one alone, timed),
+    with a bound on each column's exact residual ``||r||_1``."""
     n = solver.free.size
-    step = block_columns(n)
-    for begin in range(0, n, step):
-        cols = np.arange(begin, min(begin + step, n))
+    for part in first_then_blocks(n, block_columns(n)):
+        tracker.block()
+        cols = np.arange(part.start, part.stop)
         rhs = np.zeros((n, cols.size))
         rhs[cols, np.arange(cols.size)] = 1.0
         x = solver.solve_block(rhs)
-        yield cols, x, np.abs(rhs - solver.matrix @ x).sum(axis=0)
+        yield cols, x, solver.meter.residual_l1(rhs, x)
+        tracker.done(cols.size)
 
 
-def across_resistors(solver, exact=None, epsilon: float = 0.1, k: int | None = None,
-                     seed: int = 0, progress=None) -> ResistorResistances:
+def across_resistors(solver, exact=None, epsilon: float | None = None, k: int | None = None,
+                     seed: int = 0, progress=None, announce=None,
+                     time_budget: float | None = None) -> ResistorResistances:
     """Effective resistance across every resistor.
 
     Parameters
@@ -141,86 +167,127 @@ def across_resistors(solver, exact=None, epsilon: float = 0.1, k: int | None = N
     exact : bool, optional
         ``None`` chooses: exact when the unknowns are at most :data:`EXACT_UNKNOWN_LIMIT` or no
         more than the sketch size ``k``.
-    epsilon : float
+    epsilon : float, optional
         Target relative error for every resistor at once; sets ``k = ceil(24 ln n / ε²)``.
     k : int, optional
-        Sketch size, overriding ``epsilon``.
+        Sketch size, overriding ``epsilon`` and ``time_budget``.
     seed : int
         Seed of the random projection.
     progress : callable, optional
         Called with the number of right-hand sides solved after each block.
+    announce : callable, optional
+        Called once with the :class:`~ohmgraph.engine.resistance.progress.Plan`, after the
+        first timed solve.
+    time_budget : float, optional
+        Seconds the sketch may take, used when neither ``k`` nor ``epsilon`` is given: one
+        projection is solved and timed first, and ``k`` is what fits the budget at that rate
+        (:func:`budget_sketch_size`); :attr:`ResistorResistances.epsilon_all` says which
+        accuracy that gives. Without any of the three, ``epsilon`` is
+        :data:`DEFAULT_EPSILON`.
     """
     start = time.perf_counter()
     before = solver.stats.solves
     branches, a, b, resistor_ohms = solver.resistor_endpoints()
-    n_unknowns = solver.free.size
-    k = int(k) if k is not None else sketch_size(solver.graph.n_supernodes, epsilon)
-    if k < 1:
-        raise ValueError("the sketch size must be at least 1")
-    if exact is None:
-        exact = n_unknowns <= EXACT_UNKNOWN_LIMIT or n_unknowns <= k
-    solver.prepare(n_unknowns if exact else k)
+    n_unknowns, n = solver.free.size, solver.graph.n_supernodes
+    if k is not None:
+        k = int(k)
+        if k < 1:
+            raise ValueError("the sketch size must be at least 1")
+    elif epsilon is not None or time_budget is None:
+        k = sketch_size(n, DEFAULT_EPSILON if epsilon is None else epsilon)
+    if exact is None and n_unknowns <= EXACT_UNKNOWN_LIMIT:
+        exact = True
     live = (a != b) & (resistor_ohms > 0)
+    projection = _Projection(solver, a[live], b[live], resistor_ohms[live], seed)
+    rate = None
+    if exact is not True and k is None:              # a budget: time one projection first
+        solver.prepare(min(n_unknowns, sketch_size(n, DEFAULT_EPSILON)))
+        clock = time.perf_counter()
+        projection.add(1)
+        rate = time.perf_counter() - clock
+        k = budget_sketch_size(time_budget, rate)
+    if exact is None:
+        exact = n_unknowns <= k
     ohms = np.zeros(branches.size)
     accuracy = np.zeros(branches.size)
     if exact:
-        ohms[live], accuracy[live] = _exact_across(solver, a[live], b[live], progress)
+        solver.prepare(n_unknowns)
+        tracker = Tracker(n_unknowns, "exact: one solve per unknown", progress, announce)
+        ohms[live], accuracy[live] = _exact_across(solver, a[live], b[live], tracker)
         k_used, epsilon_all = 0, 0.0
     else:
-        ohms[live] = _sketch_across(solver, a[live], b[live], resistor_ohms[live], k, seed,
-                                    progress)
+        solver.prepare(k)
+        tracker = Tracker(k, "sketch", progress, announce, seconds_per_solve=rate)
+        tracker.start()
+        if projection.columns:
+            tracker.done(projection.columns)
+        projection.add(k - projection.columns, tracker)
+        ohms[live] = projection.values()
         accuracy[live] = math.sqrt(2.0 / k)
-        k_used = k
-        epsilon_all = math.sqrt(24.0 * math.log(max(solver.graph.n_supernodes, 2)) / k)
+        k_used, epsilon_all = k, sketch_epsilon(n, k)
     return ResistorResistances(branches, ohms, resistor_ohms, bool(exact), accuracy, k_used,
                                epsilon_all, solver.stats.solves - before,
                                time.perf_counter() - start)
 
 
-def _exact_across(solver, a, b, progress):
-    """``G_aa + G_bb - 2 G_ab`` from the columns of ``A^{-1}`` (grounded entries are 0)."""
+def _exact_across(solver, a, b, tracker: Tracker):
+    """``G_aa + G_bb - 2 G_ab`` from the columns of ``A^{-1}`` (grounded entries are 0), with
+    the first-order bounds of :meth:`ResistanceSolver.first_order_bounds`."""
     ua, ub = solver.unknown_of[a], solver.unknown_of[b]
     n = solver.free.size
     diagonal, residual_l1 = np.zeros(n + 1), np.zeros(n + 1)   # slot n: grounded, stays 0
     cross = np.zeros(a.size)
-    for cols, x, r1 in _unknown_blocks(solver):
+    for cols, x, l1 in _unknown_blocks(solver, tracker):
         diagonal[cols] = x[cols, np.arange(cols.size)]
-        residual_l1[cols] = r1
+        residual_l1[cols] = l1
         hit = np.flatnonzero((ua >= cols[0]) & (ua <= cols[-1]) & (ub >= 0))
         cross[hit] = x[ub[hit], ua[hit] - cols[0]]
-        if progress is not None:
-            progress(cols.size)
     values = diagonal[ua] + diagonal[ub] - 2.0 * cross        # index -1 reads slot n
-    worst = solver.ground_distance[solver.island[a]]
-    bounds = (residual_l1[ua] + residual_l1[ub]) * np.sqrt(worst / values)
-    return values, np.maximum(bounds, np.finfo(np.float64).eps)
+    bounds = solver.first_order_bounds(values, residual_l1[ua], residual_l1[ub], diagonal[ua],
+                                       diagonal[ub], cross, solver.island[a])
+    return values, bounds
 
 
-def _sketch_across(solver, a, b, resistor_ohms, k, seed, progress):
-    """Spielman–Srivastava estimate ``Σ_i (z_i[a] - z_i[b])^2`` with ``z_i = G B^T W^{1/2} q_i``."""
-    rng = np.random.default_rng(seed)
-    m, n_super = a.size, solver.graph.n_supernodes
-    edges = np.arange(m)
-    incidence_t = sp.csr_matrix((np.concatenate([np.ones(m), -np.ones(m)]),
-                                 (np.concatenate([a, b]), np.concatenate([edges, edges]))),
-                                shape=(n_super, m))
-    scale = np.sqrt(1.0 / resistor_ohms) / math.sqrt(k)
-    ua, ub = solver.unknown_of[a], solver.unknown_of[b]
-    sums = np.zeros(m)
-    step = block_columns(max(solver.free.size, m))
-    for begin in range(0, k, step):
-        cols = min(step, k - begin)
-        signs = rng.integers(0, 2, size=(m, cols), dtype=np.int8) * 2.0 - 1.0
-        rhs = (incidence_t @ (signs * scale[:, None]))[solver.free]
-        z = np.vstack([solver.solve_block(rhs), np.zeros((1, cols))])   # last row: ground
-        sums += ((z[ua] - z[ub]) ** 2).sum(axis=1)
-        if progress is not None:
-            progress(cols)
-    return sums
+class _Projection:
+    """Spielman–Srivastava sums ``Σ_i (z_i[a] - z_i[b])^2`` with ``z_i = G B^T W^{1/2} q_i``,
+    accumulated a block of random projections ``q_i`` at a time."""
+
+    def __init__(self, solver, a, b, resistor_ohms, seed):
+        self.solver, self.a, self.b = solver, a, b
+        self.rng = np.random.default_rng(seed)
+        m, n_super = a.size, solver.graph.n_supernodes
+        edges = np.arange(m)
+        self.incidence_t = sp.csr_matrix(
+            (np.concatenate([np.ones(m), -np.ones(m)]),
+             (np.concatenate([a, b]), np.concatenate([edges, edges]))), shape=(n_super, m))
+        self.scale = np.sqrt(1.0 / resistor_ohms)
+        self.sums = np.zeros(m)
+        self.columns = 0
+
+    def add(self, count: int, tracker: Tracker | None = None) -> None:
+        """Solve ``count`` more projections."""
+        solver = self.solver
+        ua, ub = solver.unknown_of[self.a], solver.unknown_of[self.b]
+        step = block_columns(max(solver.free.size, self.a.size))
+        for part in first_then_blocks(count, step):
+            if tracker is not None:
+                tracker.block()
+            cols = part.stop - part.start
+            signs = self.rng.integers(0, 2, size=(self.a.size, cols), dtype=np.int8) * 2.0 - 1.0
+            rhs = (self.incidence_t @ (signs * self.scale[:, None]))[solver.free]
+            z = np.vstack([solver.solve_block(rhs), np.zeros((1, cols))])   # last row: ground
+            self.sums += ((z[ua] - z[ub]) ** 2).sum(axis=1)
+            self.columns += cols
+            if tracker is not None:
+                tracker.done(cols)
+
+    def values(self) -> np.ndarray:
+        """The estimates ``R_e`` (the sums over ``k`` projections divided by ``k``)."""
+        return self.sums / self.columns
 
 
 def kirchhoff_index(solver, exact=None, samples: int = 200, seed: int = 0,
-                    confidence: float = 0.95, progress=None) -> KirchhoffIndex:
+                    confidence: float = 0.95, progress=None, announce=None) -> KirchhoffIndex:
     """The Kirchhoff index of the network (all node pairs, ideal connections counted as 0 ohm).
 
     Parameters
@@ -234,10 +301,11 @@ def kirchhoff_index(solver, exact=None, samples: int = 200, seed: int = 0,
     seed : int
     confidence : float
         Level of the reported confidence interval (normal approximation).
+    progress, announce : callable, optional
+        As for :func:`across_resistors`.
     """
     start = time.perf_counter()
     before = solver.stats.solves
-    n = solver.n_nodes
     if solver.n_islands > 1:
         return KirchhoffIndex(math.inf, True, math.inf, math.inf, confidence, 0.0, 0, 0,
                               time.perf_counter() - start)
@@ -245,20 +313,16 @@ def kirchhoff_index(solver, exact=None, samples: int = 200, seed: int = 0,
     if exact is None:
         exact = n_unknowns <= EXACT_UNKNOWN_LIMIT or n_unknowns <= samples
     solver.prepare(n_unknowns + 1 if exact else samples)
-    weight = solver.supernode_size[solver.free].astype(np.float64)
     if exact:
-        diagonal = np.zeros(n_unknowns)
-        for cols, x, _ in _unknown_blocks(solver):
-            diagonal[cols] = x[cols, np.arange(cols.size)]
-            if progress is not None:
-                progress(cols.size)
-        green_w = solver.solve_block(weight)
-        value = float(n * weight @ diagonal - weight @ green_w)
-        return KirchhoffIndex(value, True, value, value, confidence, 0.0, 0,
-                              solver.stats.solves - before, time.perf_counter() - start)
+        tracker = Tracker(n_unknowns + 1, "exact: one solve per unknown", progress, announce)
+        value, bound = _exact_kirchhoff(solver, tracker)
+        return KirchhoffIndex(value, True, value - bound, value + bound, confidence, 0.0, 0,
+                              solver.stats.solves - before, time.perf_counter() - start,
+                              bound / value if value > 0 else 0.0)
     if samples < 2:
         raise ValueError("Hutchinson's estimate needs at least 2 samples")
-    values = _hutchinson_samples(solver, samples, seed, progress)
+    tracker = Tracker(samples, "Hutchinson samples", progress, announce)
+    values = _hutchinson_samples(solver, samples, seed, tracker)
     mean = float(values.mean())
     std_error = float(values.std(ddof=1) / math.sqrt(samples))
     half = float(norm.ppf(0.5 + confidence / 2.0)) * std_error
@@ -266,22 +330,55 @@ def kirchhoff_index(solver, exact=None, samples: int = 200, seed: int = 0,
                           solver.stats.solves - before, time.perf_counter() - start)
 
 
-def _hutchinson_samples(solver, samples, seed, progress):
+def _exact_kirchhoff(solver, tracker: Tracker) -> tuple[float, float]:
+    """``Kf = n Σ_s w_s G_ss - w^T G w`` over the free supernodes (weights ``w``: nodes per
+    supernode), and a bound on its absolute error.
+
+    Each ``G_ss`` is read from the solve of ``e_s``, ``x = A^{-1} (e_s - r)``; its error
+    ``(A^{-1} r)_s`` is at most ``D ||r||_1`` (entries of ``A^{-1}`` are at most the ground
+    distance ``D``). ``w^T G w`` is the energy estimate of the solve of ``w`` (error: its rounding
+    plus ``||r||_1^2 D``). Both sums are correctly rounded (:func:`math.fsum`, each product
+    adding one rounding); the conductances move ``Kf``, a sum of resistances, by at most a
+    relative :data:`~ohmgraph.engine.resistance.accuracy.ASSEMBLY`.
+    """
+    n = solver.n_nodes
+    weight = solver.supernode_size[solver.free].astype(np.float64)
+    diagonal, residual_l1 = np.zeros(weight.size), np.zeros(weight.size)
+    for cols, x, l1 in _unknown_blocks(solver, tracker):
+        diagonal[cols] = x[cols, np.arange(cols.size)]
+        residual_l1[cols] = l1
+    tracker.block()
+    rhs = weight[:, None]
+    green_w = solver.solve_block(rhs)
+    tracker.done(1)
+    quadratic, linear = solver.meter.energy_estimates(rhs, green_w)
+    residual, slack = solver.meter.residual(rhs, green_w)
+    quadratic_error = linear[0] + solver.residual_energy_bound(np.abs(residual) + slack)[0]
+    products = weight * diagonal
+    first = n * math.fsum(products.tolist())
+    value = first - float(quadratic[0])
+    distance = solver.ground_distance[0]            # one island
+    error = (n * distance * float(weight @ residual_l1)
+             + 2.0 * UNIT_ROUNDOFF * abs(first) + quadratic_error
+             + (ASSEMBLY + UNIT_ROUNDOFF) * abs(value))
+    return value, error * MARGIN
+
+
+def _hutchinson_samples(solver, samples, seed, tracker: Tracker):
     """Samples ``n v^T G v`` with ``v = P W^{1/2} z``, ``z`` Rademacher over the supernodes."""
     rng = np.random.default_rng(seed)
     n = solver.n_nodes
     root_w = np.sqrt(solver.supernode_size.astype(np.float64))
     weight = solver.supernode_size.astype(np.float64)
     out = np.empty(samples)
-    step = block_columns(solver.free.size)
-    for begin in range(0, samples, step):
-        cols = min(step, samples - begin)
+    for part in first_then_blocks(samples, block_columns(solver.free.size)):
+        tracker.block()
+        cols = part.stop - part.start
         z = rng.integers(0, 2, size=(root_w.size, cols), dtype=np.int8) * 2.0 - 1.0
         v = root_w[:, None] * z
         v -= weight[:, None] * (v.sum(axis=0) / n)
         rhs = v[solver.free]
         x = solver.solve_block(rhs)
-        out[begin:begin + cols] = n * np.einsum("ij,ij->j", rhs, x)
-        if progress is not None:
-            progress(cols)
+        out[part] = n * np.einsum("ij,ij->j", rhs, x)
+        tracker.done(cols)
     return out

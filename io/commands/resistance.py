@@ -1,7 +1,10 @@
 """``ohmgraph resistance NET``: resistance between nodes, across resistors, Kirchhoff index.
 
 Every value is the resistance a two-point measurement reads with every source zeroed (voltage
-sources shorted, current sources removed), with its accuracy stated beside it.
+sources shorted, current sources removed), with its accuracy stated beside it. Only
+``--to-reference`` needs a reference node; the other queries ground a node of their own choosing
+(``--between A B`` grounds ``A``, which makes the pair one solve with the best-bounded value).
+Long queries say what they plan and show a progress bar on a terminal (:mod:`ohmgraph.io.progress`).
 """
 
 from __future__ import annotations
@@ -11,9 +14,8 @@ import sys
 from dataclasses import asdict
 
 import numpy as np
-from tqdm import tqdm
-
 from ohmgraph.engine.resistance import ResistanceSolver
+from ohmgraph.engine.resistance.sketch import DEFAULT_EPSILON, sketch_size
 from ohmgraph.engine.solvers import DEFAULT_RTOL, SOLVERS, SolverFailed
 from ohmgraph.io.atomic import refuse_existing, refuse_input
 from ohmgraph.io.commands.argtypes import positive_float, whole_number
@@ -23,12 +25,26 @@ from ohmgraph.io.formats import require_format
 from ohmgraph.io.jsonout import dumps
 from ohmgraph.io.numbers import UNCERTAINTY_DIGITS, digits_for, quantity, significant
 from ohmgraph.io.pairs import read_pairs
+from ohmgraph.io.progress import Feedback, format_seconds
 from ohmgraph.io.reader import read_network
 from ohmgraph.io.result_store import command_options
 from ohmgraph.io.result_table import TABLE_FORMATS, write_result_table
 
-# Batches of at least this many right-hand sides show a progress bar (on a terminal).
-PROGRESS_MIN = 32
+# Reference node of --to-reference when --ground is not given.
+DEFAULT_REFERENCE = "0"
+# Seconds --across-resistors may spend on a sketch when neither --epsilon nor --sketch-size is given.
+DEFAULT_TIME_BUDGET = 60.0
+
+# What the accuracy column means, by the method that produced the values.
+EXACT_ACCURACY = ("relative error bound, first order in the solve residuals; covers the rounding "
+                  "of the conductances, the residuals and the value")
+PAIR_ACCURACY = {
+    "pair solves": "relative error bound; covers the rounding of the conductances, the solve, "
+                   "the residuals and the value",
+    "terminal reduction": EXACT_ACCURACY,
+    "factor reach": "relative error estimate (first order, from one check solve's residual)",
+    "trivial": "exact",
+}
 
 
 def register(subparsers) -> None:
@@ -50,8 +66,9 @@ def register(subparsers) -> None:
                        help="resistance across every resistor (exact when small, else sketched)")
     query.add_argument("--kirchhoff", action="store_true",
                        help="Kirchhoff index: the sum of the resistances of all node pairs")
-    parser.add_argument("--ground", default="0", metavar="LABEL",
-                        help="reference node label (default 0)")
+    parser.add_argument("--ground", metavar="LABEL",
+                        help=f"reference node label: --to-reference measures to it (default "
+                             f"{DEFAULT_REFERENCE}); the other queries need none")
     parser.add_argument("--method", choices=["auto", *SOLVERS], default="auto",
                         help="linear solver (default auto: chosen for the network and the "
                              "number of solves)")
@@ -63,11 +80,16 @@ def register(subparsers) -> None:
                       help="--across-resistors/--kirchhoff: exact values (one solve per node)")
     mode.add_argument("--estimate", dest="exact", action="store_const", const=False,
                       help="--across-resistors/--kirchhoff: randomised estimate")
-    parser.add_argument("--epsilon", type=positive_float, default=0.1,
-                        help="--across-resistors: relative error for all resistors at once; "
-                             "sketch size ceil(24 ln n / epsilon^2) (default 0.1)")
-    parser.add_argument("--sketch-size", type=whole_number(1), metavar="K",
-                        help="--across-resistors: sketch size K (overrides --epsilon)")
+    size = parser.add_mutually_exclusive_group()
+    size.add_argument("--epsilon", type=positive_float,
+                      help="--across-resistors: relative error for all resistors at once; "
+                           "sketch size ceil(24 ln n / epsilon^2)")
+    size.add_argument("--sketch-size", type=whole_number(1), metavar="K",
+                      help="--across-resistors: sketch size K")
+    size.add_argument("--time-budget", type=positive_float, metavar="SECONDS",
+                      help=f"--across-resistors: without --epsilon or --sketch-size, the sketch "
+                           f"size whose solves fit SECONDS (the solver set-up not counted) at "
+                           f"the rate of a first timed solve (default {DEFAULT_TIME_BUDGET:g})")
     parser.add_argument("--samples", type=whole_number(2), default=200,
                         help="--kirchhoff: Hutchinson samples (default 200)")
     parser.add_argument("--seed", type=whole_number(0), default=0, help="random seed (default 0)")
@@ -78,6 +100,9 @@ def register(subparsers) -> None:
                         help="CSV tables: write every number exactly (shortest round-trip text) "
                              "instead of 12 significant digits")
     parser.add_argument("--json", action="store_true", help="print the result as JSON")
+    parser.add_argument("-q", "--quiet", action="store_true",
+                        help="no plan messages or progress bars (they appear only when standard "
+                             "error is a terminal)")
     parser.set_defaults(run=run)
 
 
@@ -90,26 +115,36 @@ def run(args) -> int:
         require_format(args.output, TABLE_FORMATS, role="-o")
         refuse_input(args.output, (args.network, args.pairs))
         refuse_existing(args.output, args.force)
-    net = read_network(args.network, ground=args.ground)
+    ground = args.ground
+    if ground is None and args.to_reference:
+        ground = DEFAULT_REFERENCE
+    net = read_network(args.network, ground=ground)
+    if args.between and args.ground is None:
+        _nodes(args, net, args.between[0], "--between")     # an unknown label: InputError
+        net = net.with_reference(args.between[0])
     try:
         solver = ResistanceSolver(net, method=args.method, rtol=args.rtol)
     except ValueError as error:
         raise NotWellPosed(f"{args.network}: not well-posed: {error}") from None
+    feedback = Feedback("ohmgraph resistance", args.quiet)
+    feedback.stage(f"{solver.free.size} unknowns: setting up the solver ({args.method}) and "
+                   "timing a first solve", solver.free.size)
     try:
-        if args.between:
-            return _between(args, net, solver)
-        if args.kirchhoff:
-            return _kirchhoff(args, solver)
-        if args.across_resistors:
-            return _across(args, net, solver)
-        if args.pairs:
-            a_labels, b_labels, a_idx, b_idx = read_pairs(args.pairs, net)
-        else:
-            a_labels = np.asarray(args.to_reference, dtype=str)
-            a_idx = _nodes(args, net, a_labels, "--to-reference")
-            b_idx = np.full(a_idx.size, net.reference)
-            b_labels = np.full(a_idx.size, net.reference_label)
-        return _pairs(args, solver, a_labels, b_labels, a_idx, b_idx)
+        with feedback:
+            if args.between:
+                return _between(args, net, solver)
+            if args.kirchhoff:
+                return _kirchhoff(args, solver, feedback)
+            if args.across_resistors:
+                return _across(args, net, solver, feedback)
+            if args.pairs:
+                a_labels, b_labels, a_idx, b_idx = read_pairs(args.pairs, net)
+            else:
+                a_labels = np.asarray(args.to_reference, dtype=str)
+                a_idx = _nodes(args, net, a_labels, "--to-reference")
+                b_idx = np.full(a_idx.size, net.reference)
+                b_labels = np.full(a_idx.size, net.reference_label)
+            return _pairs(args, solver, a_labels, b_labels, a_idx, b_idx, feedback)
     except SolverFailed as error:
         raise SolverError(f"{args.network}: {error}") from error
 
@@ -123,12 +158,6 @@ def _nodes(args, net, labels, option) -> np.ndarray:
                          "network)") from None
 
 
-def _progress(total: int, unit: str):
-    """A tqdm bar on standard error (shown on a terminal for batches of PROGRESS_MIN or more)."""
-    return tqdm(total=total, unit=unit, file=sys.stderr, leave=False,
-                disable=None if total >= PROGRESS_MIN else True)
-
-
 def _solver_summary(solver) -> dict:
     return asdict(solver.stats)
 
@@ -136,7 +165,7 @@ def _solver_summary(solver) -> dict:
 def _between(args, net, solver) -> int:
     a_idx = _nodes(args, net, [args.between[0]], "--between")
     b_idx = _nodes(args, net, [args.between[1]], "--between")
-    result = solver.pairs(a_idx, b_idx)
+    result = solver.pairs_by_index(a_idx, b_idx)
     ohms, accuracy = float(result.ohms[0]), float(result.accuracy[0])
     a, b = args.between
     if args.json:
@@ -147,28 +176,39 @@ def _between(args, net, solver) -> int:
               "so the resistance between them is infinite")
     else:
         print(f"R({a}, {b}) = {quantity(ohms, 'ohm', digits_for(accuracy))}  (relative error "
-              f"at most {accuracy:.1e}; "
+              f"at most {accuracy:.1e}, rounding included; "
               f"{solver.stats.method}, {result.solves} solve{'s' if result.solves != 1 else ''})")
     return EXIT_OK
 
 
-def _pairs(args, solver, a_labels, b_labels, a_idx, b_idx) -> int:
-    with _progress(a_idx.size, "solve") as bar:
-        result = solver.pairs(a_idx, b_idx, progress=bar.update)
+def _pairs(args, solver, a_labels, b_labels, a_idx, b_idx, feedback) -> int:
+    result = solver.pairs_by_index(a_idx, b_idx, progress=feedback.progress,
+                                   announce=feedback.announce)
     columns = {"a": a_labels, "b": b_labels, "ohms": result.ohms, "accuracy": result.accuracy}
     summary = {"pairs": int(a_idx.size), "method": result.method, "solves": result.solves,
                "seconds": result.seconds, "infinite": int(np.isinf(result.ohms).sum()),
                "max_accuracy": float(result.accuracy.max(initial=0.0)),
+               "accuracy_meaning": PAIR_ACCURACY[result.method],
                "solver": _solver_summary(solver)}
     return _emit_table(args, columns, summary)
 
 
-def _across(args, net, solver) -> int:
-    steps = solver.free.size if args.exact is not False else (args.sketch_size or 0)
-    with _progress(steps, "solve") as bar:
-        result = solver.across_resistors(exact=args.exact, epsilon=args.epsilon,
-                                         k=args.sketch_size, seed=args.seed,
-                                         progress=bar.update)
+def _across(args, net, solver, feedback) -> int:
+    budget = args.time_budget
+    if budget is None and args.epsilon is None and args.sketch_size is None:
+        budget = DEFAULT_TIME_BUDGET
+    result = solver.across_resistors(exact=args.exact, epsilon=args.epsilon,
+                                     k=args.sketch_size, seed=args.seed,
+                                     progress=feedback.progress, announce=feedback.announce,
+                                     time_budget=budget)
+    feedback.close()
+    if not result.exact and budget is not None and args.sketch_size is None:
+        feedback.message(f"sketch size {result.sketch_size} chosen to fit the time budget of "
+                         f"{format_seconds(budget)}: each value within a relative standard "
+                         f"deviation of {math.sqrt(2 / result.sketch_size):.2g}, all at once "
+                         f"within epsilon {result.epsilon_all:.2g} (probability 1 - 1/n); "
+                         f"--epsilon {DEFAULT_EPSILON:g} would need "
+                         f"{sketch_size(solver.graph.n_supernodes, DEFAULT_EPSILON)} solves")
     branches = result.branches
     with np.errstate(divide="ignore", invalid="ignore"):
         share = np.where(result.resistor_ohms > 0, result.ohms / result.resistor_ohms, 0.0)
@@ -178,26 +218,27 @@ def _across(args, net, solver) -> int:
                "resistor_ohms": result.resistor_ohms, "ohms": result.ohms, "share": share,
                "accuracy": result.accuracy}
     summary = {"resistors": int(branches.size), "exact": result.exact,
-               "accuracy_meaning": ("relative error bound" if result.exact
+               "accuracy_meaning": (EXACT_ACCURACY if result.exact
                                     else "relative standard deviation of each estimate"),
                "sketch_size": result.sketch_size, "epsilon_all": result.epsilon_all,
+               "time_budget": budget if budget is not None and not result.exact else 0.0,
                "share_sum": float(share.sum()), "solves": result.solves,
                "seconds": result.seconds, "solver": _solver_summary(solver)}
     return _emit_table(args, columns, summary)
 
 
-def _kirchhoff(args, solver) -> int:
-    total = solver.free.size if args.exact is not False else args.samples
-    with _progress(total, "solve") as bar:
-        result = solver.kirchhoff_index(exact=args.exact, samples=args.samples, seed=args.seed,
-                                        progress=bar.update)
+def _kirchhoff(args, solver, feedback) -> int:
+    result = solver.kirchhoff_index(exact=args.exact, samples=args.samples, seed=args.seed,
+                                    progress=feedback.progress, announce=feedback.announce)
+    feedback.close()
     if args.json:
         print(dumps({**asdict(result), "solver": _solver_summary(solver)}))
     elif not math.isfinite(result.value):
         print("Kirchhoff index: infinite (the network has more than one island)")
     elif result.exact:
-        print(f"Kirchhoff index = {quantity(result.value, 'ohm', digits_for(args.rtol))} "
-              f"(exact, {result.solves} solves)")
+        print(f"Kirchhoff index = {quantity(result.value, 'ohm', digits_for(result.accuracy))} "
+              f"(relative error at most {result.accuracy:.1e}, rounding included; exact method, "
+              f"{result.solves} solves)")
     else:
         half = (result.high - result.low) / 2
         digits = digits_for(half / abs(result.value) if result.value else None)
@@ -218,8 +259,12 @@ def _emit_table(args, columns: dict, summary: dict) -> int:
                                     **({"pairs": args.pairs} if args.pairs else {})},
                            command="resistance", options=command_options(args))
         summary = {"output": str(args.output), **summary}
+        sketch = (f" (sketch of {summary['sketch_size']} projections: relative standard "
+                  f"deviation {math.sqrt(2 / summary['sketch_size']):.2g} per value, epsilon "
+                  f"{summary['epsilon_all']:.2g} for all at once)"
+                  if summary.get("sketch_size") else "")
         print(dumps(summary) if args.json else
-              f"wrote {len(next(iter(columns.values())))} rows to {args.output}")
+              f"wrote {len(next(iter(columns.values())))} rows to {args.output}{sketch}")
     elif args.json:
         print(dumps({**summary, "rows": [dict(zip(columns, row))
                                          for row in zip(*columns.values())]}))
