@@ -6,6 +6,8 @@ Formats, chosen by the file extension after an optional ``.gz``:
   ``from``, ``to``, ``value`` in any order (case-insensitive). ``from``, ``to`` and ``value`` are
   required; a missing ``name`` column names each branch by its 1-based row number, a missing
   ``kind`` column makes every branch a resistor, and an empty ``kind`` field means ``R``.
+  Optional rating columns ``max_current`` (A) and ``max_power`` (W) take numbers greater than 0;
+  an empty field means no rating.
 * any other extension: a plain edge list, one resistor per line as ``from to ohms`` separated by
   spaces or tabs, with ``#`` comments (whole lines or trailing) and blank lines allowed.
 
@@ -22,7 +24,7 @@ from __future__ import annotations
 
 import csv
 import gzip
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
@@ -33,7 +35,9 @@ import pyarrow.csv as pa_csv
 from ohmgraph.engine.network import KIND_CODE, RESISTOR, Network
 from ohmgraph.io.errors import InputError, ProblemList
 
-COLUMNS = ("name", "kind", "from", "to", "value")
+COLUMNS = ("name", "kind", "from", "to", "value", "max_current", "max_power")
+# Optional ratings: amperes and watts, greater than 0; an empty field means no rating.
+RATING_COLUMNS = ("max_current", "max_power")
 REQUIRED_COLUMNS = ("from", "to", "value")
 TABLE_DELIMITERS = {".csv": ",", ".tsv": "\t"}
 EDGE_LIST_FIELDS = ("from", "to", "value")
@@ -56,6 +60,7 @@ class _Columns:
     value: np.ndarray
     kind: np.ndarray
     names: pa.Array | None
+    ratings: dict = field(default_factory=dict)
 
 
 class _Rejected(Exception):
@@ -64,7 +69,12 @@ class _Rejected(Exception):
 
 # ---------------------------------------------------------------------------------- public API
 def read_network(path, ground: str = "0") -> Network:
-    """Read a network file.
+    """Read a network file (see :func:`read_network_with_ratings`; ratings are dropped)."""
+    return read_network_with_ratings(path, ground)[0]
+
+
+def read_network_with_ratings(path, ground: str = "0") -> tuple[Network, dict]:
+    """Read a network file and its optional rating columns.
 
     Parameters
     ----------
@@ -77,6 +87,9 @@ def read_network(path, ground: str = "0") -> Network:
     Returns
     -------
     Network
+    dict
+        ``{"max_current": amperes, "max_power": watts}`` for the rating columns the table has,
+        float64 arrays with NaN where a row gives no rating.
 
     Raises
     ------
@@ -97,7 +110,7 @@ def read_network(path, ground: str = "0") -> Network:
             columns = _read_table(path, delimiter)
     except (OSError, EOFError) as error:      # unreadable gzip stream or a failing disk
         raise InputError(f"{path}: cannot be read ({error})") from None
-    return _build_network(path, columns, str(ground))
+    return _build_network(path, columns, str(ground)), columns.ratings
 
 
 def locate_lines(path, rows) -> np.ndarray:
@@ -212,7 +225,16 @@ def _convert(table: pa.Table) -> _Columns:
     else:
         kind = np.full(len(table), RESISTOR, np.uint8)
     names = trimmed("name") if "name" in table.column_names else None
-    return _Columns(from_labels, to_labels, value, kind, names)
+    ratings = {}
+    for column in RATING_COLUMNS:
+        if column in table.column_names:
+            text = trimmed(column)
+            text = pc.if_else(pc.equal(pc.utf8_length(text), 0), pa.scalar(None, pa.string()), text)
+            ratings[column] = pc.cast(text, pa.float64()).to_numpy(zero_copy_only=False)
+            given = ratings[column][~np.isnan(ratings[column])]
+            if not np.all(np.isfinite(given) & (given > 0)):
+                raise _Rejected
+    return _Columns(from_labels, to_labels, value, kind, names, ratings)
 
 
 def _build_network(path: Path, columns: _Columns, ground: str) -> Network:
@@ -318,6 +340,7 @@ class _ColumnsBuilder:
 
     def __init__(self):
         self.from_labels, self.to_labels, self.values, self.kinds, self.names = [], [], [], [], []
+        self.ratings = {column: [] for column in RATING_COLUMNS}
 
     def add_row(self, problems: ProblemList, line: int, fields: dict) -> None:
         ok = True
@@ -341,17 +364,32 @@ class _ColumnsBuilder:
             problems.add(line, "column 'value': " + (f"{fields['value']!r} is not a number"
                                                      if fields["value"] else "empty"))
             ok = False
+        ratings = {}
+        for column in RATING_COLUMNS:
+            text = fields.get(column, "")
+            try:
+                ratings[column] = _parse_number(text) if text else np.nan
+            except ValueError:
+                ratings[column] = -1.0
+            if not (np.isnan(ratings[column])
+                    or (np.isfinite(ratings[column]) and ratings[column] > 0)):
+                problems.add(line, f"column {column!r}: {text!r} is not a rating (a finite "
+                                   "number greater than 0, or empty for none)")
+                ok = False
         if ok:
+            for column in RATING_COLUMNS:
+                self.ratings[column].append(ratings[column])
             self.from_labels.append(fields["from"])
             self.to_labels.append(fields["to"])
             self.values.append(value)
             self.kinds.append(kind)
             self.names.append(fields.get("name"))
 
-    def columns(self, named: bool) -> _Columns:
+    def columns(self, named: bool, rated=()) -> _Columns:
         return _Columns(pa.array(self.from_labels, pa.string()), pa.array(self.to_labels, pa.string()),
                         np.asarray(self.values, np.float64), np.asarray(self.kinds, np.uint8),
-                        pa.array(self.names, pa.string()) if named else None)
+                        pa.array(self.names, pa.string()) if named else None,
+                        {column: np.asarray(self.ratings[column], np.float64) for column in rated})
 
 
 def _exact_table(path: Path, delimiter: str, header: list) -> _Columns:
@@ -365,7 +403,8 @@ def _exact_table(path: Path, delimiter: str, header: list) -> _Columns:
             continue
         rows.add_row(problems, line, {name: field.strip() for name, field in zip(header, fields)})
     problems.raise_if_any()
-    return rows.columns(named="name" in header)
+    return rows.columns(named="name" in header,
+                        rated=[column for column in RATING_COLUMNS if column in header])
 
 
 def _exact_edge_list(path: Path) -> _Columns:
@@ -379,4 +418,5 @@ def _exact_edge_list(path: Path) -> _Columns:
     return rows.columns(named=False)
 
 
-__all__ = ["read_network", "locate_lines", "table_delimiter", "COLUMNS", "REQUIRED_COLUMNS"]
+__all__ = ["read_network", "read_network_with_ratings", "locate_lines", "table_delimiter",
+           "COLUMNS", "REQUIRED_COLUMNS", "RATING_COLUMNS"]

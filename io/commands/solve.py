@@ -5,14 +5,17 @@ from __future__ import annotations
 import time
 
 from ohmgraph.engine.checks import check
+from ohmgraph.engine.drop import DEFAULT_THRESHOLDS, supply_drop
 from ohmgraph.engine.solve import solve
 from ohmgraph.engine.solvers import DEFAULT_RTOL, SOLVERS, SolverFailed
-from ohmgraph.io.commands.argtypes import positive_float
+from ohmgraph.io.commands.argtypes import finite_float, positive_float
+from ohmgraph.io.drop_view import drop_datasets, thresholds_type
 from ohmgraph.io.atomic import refuse_existing, refuse_input
 from ohmgraph.io.check_view import format_report, report_to_dict
 from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, SolverError
 from ohmgraph.io.jsonout import dumps
-from ohmgraph.io.reader import read_network
+from ohmgraph.io.node_table import read_node_table
+from ohmgraph.io.reader import read_network_with_ratings
 from ohmgraph.io.solution_view import format_solution, solution_summary
 from ohmgraph.io.store import write_solution
 
@@ -36,6 +39,16 @@ def register(subparsers) -> None:
                         help="reference (0 V) node label (default 0)")
     parser.add_argument("--allow-floating", action="store_true",
                         help="pin one node of every island without a path to the reference at 0 V")
+    parser.add_argument("--nodes", metavar="NODES.csv",
+                        help="node table: label,x,y and optionally layer (stored with the "
+                             "solution, used by 'map' and 'report')")
+    parser.add_argument("--nominal", type=finite_float, metavar="VOLTS",
+                        help="supply voltage of every net for the drop (default: the potential "
+                             "each net's source-held nodes are held at; 0 V for a ground net)")
+    parser.add_argument("--drop-thresholds", type=thresholds_type, default=DEFAULT_THRESHOLDS,
+                        metavar="LIST", help="drop thresholds to count nodes over, comma-"
+                                             "separated, such as 1%%,5%%,10mV (default "
+                                             "1%%,2%%,5%%,10%%)")
     parser.add_argument("--force", action="store_true", help="overwrite OUT.h5 if it exists")
     parser.add_argument("--json", action="store_true", help="print the summary as JSON")
     parser.set_defaults(run=run)
@@ -43,10 +56,11 @@ def register(subparsers) -> None:
 
 def run(args) -> int:
     """Run ``solve``; return the exit code (see :mod:`ohmgraph.io.errors`)."""
-    refuse_input(args.output, [args.network])
+    refuse_input(args.output, [args.network, args.nodes])
     refuse_existing(args.output, args.force)
     start = time.perf_counter()
-    net = read_network(args.network, ground=args.ground)
+    net, ratings = read_network_with_ratings(args.network, ground=args.ground)
+    nodes = read_node_table(args.nodes, net) if args.nodes else None
     read_seconds = time.perf_counter() - start
 
     start = time.perf_counter()
@@ -63,9 +77,15 @@ def run(args) -> int:
     except SolverFailed as error:
         raise SolverError(f"{args.network}: {error}") from error
     solution.timings = {"read": read_seconds, **solution.timings, "check": check_seconds}
+    start = time.perf_counter()
+    drop = supply_drop(net, solution.node_voltage, nominal=args.nominal,
+                       thresholds=args.drop_thresholds)
+    solution.timings["drop"] = time.perf_counter() - start
+    extra = {**drop_datasets(drop), **{f"branches/{k}": v for k, v in ratings.items()},
+             **(nodes.datasets() if nodes else {})}
     store_seconds = write_solution(args.output, solution, input_path=args.network,
-                                   force=args.force)
-    summary = solution_summary(solution, {"store": store_seconds})
+                                   force=args.force, extra=extra)
+    summary = solution_summary(solution, {"store": store_seconds}, drop)
     if args.json:
         print(dumps({"output": str(args.output), **summary}))
     else:
