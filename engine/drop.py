@@ -191,7 +191,8 @@ def supply_drop(net: Network, node_voltage: np.ndarray, *, nominal=None,
             raise ValueError(f"{nominals.size} nominal(s) given for {k} net(s)")
     node_nominal = np.full(net.n_nodes, np.nan)
     node_nominal[node_net >= 0] = nominals[node_net[node_net >= 0]]
-    drop = np.abs(node_nominal) - np.sign(node_nominal) * v
+    drop = np.where(node_nominal == 0, np.abs(v),
+                    np.abs(node_nominal) - np.sign(node_nominal) * v)
     drop[net.reference] = np.nan
 
     counted = (node_net >= 0) & ~held & np.isfinite(drop)
