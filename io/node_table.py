@@ -101,3 +101,22 @@ def read_node_table(path, net: Network) -> NodeTable:
         y=spread(coordinates["y"], np.nan) if "y" in coordinates else None,
         layer=(spread(table["layer"].to_numpy(dtype=str), "")
                if "layer" in table.columns else None))
+
+
+def node_table_by_label(stored, net: Network) -> NodeTable | None:
+    """The node table of a stored solution carried over to ``net`` by label (None when the
+    solution has none); nodes it does not know get no coordinates."""
+    if "nodes/x" not in stored.extra and "nodes/layer" not in stored.extra:
+        return None
+    where = pd.Index(stored.network.node_labels).get_indexer(net.node_labels)
+    found = where >= 0
+
+    def carried(name, fill):
+        data = stored.extra.get(f"nodes/{name}")
+        if data is None:
+            return None
+        out = np.full(net.n_nodes, fill, dtype=np.float64 if fill != "" else data.dtype)
+        out[found] = data[where[found]]
+        return out
+
+    return NodeTable(carried("x", np.nan), carried("y", np.nan), carried("layer", ""))

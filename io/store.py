@@ -490,3 +490,14 @@ def _check_extra(path, extra: dict, network: Network) -> None:
                              f"({lengths[along]},...)")
         if name != "nodes/layer" and name != "nets/threshold" and data.dtype.kind not in "iufb":
             raise InputError(f"{path}: /{name} holds {data.dtype} values, expected numbers")
+
+
+def voltages_by_label(stored: StoredSolution, net: Network) -> tuple[np.ndarray, int]:
+    """The stored node voltages of the nodes of ``net`` (NaN where the stored solution has no
+    node of that label), and how many nodes matched; for a warm start."""
+    import pandas as pd
+
+    where = pd.Index(stored.network.node_labels).get_indexer(net.node_labels)
+    voltage = np.full(net.n_nodes, np.nan)
+    voltage[where >= 0] = stored.node_voltage[where[where >= 0]]
+    return voltage, int(np.count_nonzero(where >= 0))

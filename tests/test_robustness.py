@@ -95,6 +95,12 @@ FILES = {
     "rated_zero.csv": "name,kind,from,to,value,max_current\nsupply,V,top,0,10,\nr1,R,top,0,5,0\n",
     "rated_negative.csv": "name,from,to,value,max_power\nr1,top,0,5,-2\n",
     "imax.csv": "name,from,to,value,imax\nr1,top,0,5,1\n",
+    "chg_missing.csv": "name,value\nr_upper,2000\nnowhere,5\n",
+    "chg_open_source.csv": "name,value\nsupply,inf\n",
+    "chg_column.csv": "name,value,colour\nr_upper,1,red\n",
+    "chg_wrong_ends.csv": "name,from,to,value\nr_upper,mid,top,5\n",
+    "chg_twice.csv": "name,value\nr_upper,1\nr_upper,2\n",
+    "chg_isolate.csv": "name,value\nr_upper,inf\nr_lower,inf\n",
 }
 FOLDERS = ("folder", "folder.h5", "folder.csv", "demo/sensor_board.csv")
 SOLUTIONS = {
@@ -267,6 +273,25 @@ REFUSED = [
     ("report foreign.h5 -o out.html", EXIT_BAD_INPUT, "not an ohmgraph solution file"),
     ("report sol.h5 -o sol.h5 --force", EXIT_BAD_INPUT, "is also the input file"),
     ("report sol.h5 -o missing/out.html", EXIT_OUTPUT_REFUSED, "does not exist"),
+    # change files, warm starts, diff
+    ("solve net.csv -o out.h5 --changes chg_missing.csv", EXIT_BAD_INPUT,
+     "chg_missing.csv:3: column 'name': no branch 'nowhere' in the network"),
+    ("solve net.csv -o out.h5 --changes chg_open_source.csv", EXIT_BAD_INPUT,
+     "chg_open_source.csv:2: column 'value': V source 'supply' cannot be opened"),
+    ("solve net.csv -o out.h5 --changes chg_column.csv", EXIT_BAD_INPUT,
+     "unknown column(s) 'colour'"),
+    ("solve net.csv -o out.h5 --changes chg_wrong_ends.csv", EXIT_BAD_INPUT,
+     "branch 'r_upper' joins top -> mid"),
+    ("solve net.csv -o out.h5 --changes chg_twice.csv", EXIT_BAD_INPUT, "is changed twice"),
+    ("solve net.csv -o out.h5 --changes empty.csv", EXIT_BAD_INPUT, "empty.csv"),
+    ("solve net.csv -o out.h5 --changes chg_isolate.csv", EXIT_FAILED, "NOT solvable"),
+    ("solve net.csv -o out.h5 --start-from foreign.h5", EXIT_BAD_INPUT,
+     "not an ohmgraph solution file"),
+    ("solve net.csv -o sol.h5 --start-from sol.h5 --force", EXIT_BAD_INPUT,
+     "is also the input file"),
+    ("diff sol.h5 foreign.h5", EXIT_BAD_INPUT, "not an ohmgraph solution file"),
+    ("diff sol.h5 sol.h5 --map out.png", EXIT_BAD_INPUT, "no node coordinates"),
+    ("diff sol.h5 sol.h5 --map out.gif", EXIT_BAD_INPUT, "unknown picture type"),
     # networks that are not well-posed
     ("compare islands.csv meas_islands.csv --accuracy 1%+1mV", EXIT_FAILED, "not well-posed"),
     ("diagnose islands.csv meas_islands.csv --accuracy 1%+1mV", EXIT_FAILED, "not well-posed"),

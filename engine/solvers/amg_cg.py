@@ -46,7 +46,11 @@ class AmgCgSolver(SPDSolver):
             max_coarse=self.max_coarse, coarse_solver="splu")
         self._preconditioner = self._hierarchy.aspreconditioner(cycle="V")
 
-    def _solve_column(self, b):
+    def preconditioner(self):
+        """One V-cycle of the hierarchy."""
+        return self._preconditioner
+
+    def _solve_column(self, b, x0=None):
         count = [0]
 
         def tally(_):
@@ -55,13 +59,14 @@ class AmgCgSolver(SPDSolver):
         if not np.any(b):
             return np.zeros_like(b), 0
         # Ask CG for half the target: its recurrence residual drifts from the true one.
-        x, _ = spla.cg(self.matrix, b, rtol=0.5 * self.rtol, atol=0.0, maxiter=self.max_iterations,
+        x, _ = spla.cg(self.matrix, b, x0=x0, rtol=0.5 * self.rtol, atol=0.0, maxiter=self.max_iterations,
                        M=self._preconditioner, callback=tally)
         return x, count[0]
 
-    def _solve(self, b):
+    def _solve(self, b, x0=None):
         if b.ndim == 1:
-            return self._solve_column(b)
-        columns = [self._solve_column(b[:, j]) for j in range(b.shape[1])]
+            return self._solve_column(b, x0)
+        columns = [self._solve_column(b[:, j], None if x0 is None else x0[:, j])
+                   for j in range(b.shape[1])]
         return (np.column_stack([c[0] for c in columns]),
                 max((c[1] for c in columns), default=0))

@@ -14,10 +14,12 @@ from ohmgraph.io.atomic import refuse_existing, refuse_input
 from ohmgraph.io.check_view import format_report, report_to_dict
 from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, SolverError
 from ohmgraph.io.jsonout import dumps
-from ohmgraph.io.node_table import read_node_table
+from ohmgraph.engine.variant import apply_changes
+from ohmgraph.io.changes import change_note, read_changes
+from ohmgraph.io.node_table import node_table_by_label, read_node_table
 from ohmgraph.io.reader import read_network_with_ratings
 from ohmgraph.io.solution_view import format_solution, solution_summary
-from ohmgraph.io.store import write_solution
+from ohmgraph.io.store import read_solution, voltages_by_label, write_solution
 
 
 def register(subparsers) -> None:
@@ -49,6 +51,14 @@ def register(subparsers) -> None:
                         metavar="LIST", help="drop thresholds to count nodes over, comma-"
                                              "separated, such as 1%%,5%%,10mV (default "
                                              "1%%,2%%,5%%,10%%)")
+    parser.add_argument("--changes", metavar="CHANGES.csv",
+                        help="change file, a branch table: a row naming a branch of NET sets its "
+                             "value (inf opens a resistor) and ratings, a row with a new name "
+                             "adds a branch")
+    parser.add_argument("--start-from", metavar="BASE.h5",
+                        help="stored solution of a nearby network to start the solver from "
+                             "(matched by node label; its node table is kept when --nodes is "
+                             "not given)")
     parser.add_argument("--force", action="store_true", help="overwrite OUT.h5 if it exists")
     parser.add_argument("--json", action="store_true", help="print the summary as JSON")
     parser.set_defaults(run=run)
@@ -56,11 +66,25 @@ def register(subparsers) -> None:
 
 def run(args) -> int:
     """Run ``solve``; return the exit code (see :mod:`ohmgraph.io.errors`)."""
-    refuse_input(args.output, [args.network, args.nodes])
+    refuse_input(args.output, [args.network, args.nodes, args.changes, args.start_from])
     refuse_existing(args.output, args.force)
     start = time.perf_counter()
     net, ratings = read_network_with_ratings(args.network, ground=args.ground)
+    notes = []
+    if args.changes:
+        change_file = read_changes(args.changes, net)
+        ratings = change_file.changed_ratings(net, ratings)
+        net = apply_changes(net, change_file.changes)
+        notes.append(change_note(args.changes, change_file.changes))
     nodes = read_node_table(args.nodes, net) if args.nodes else None
+    start_voltage = None
+    if args.start_from:
+        base = read_solution(args.start_from)
+        start_voltage, matched = voltages_by_label(base, net)
+        notes.append(f"started from {args.start_from} ({matched:,} of {net.n_nodes:,} nodes "
+                     "matched by label)")
+        if nodes is None:
+            nodes = node_table_by_label(base, net)
     read_seconds = time.perf_counter() - start
 
     start = time.perf_counter()
@@ -73,10 +97,12 @@ def run(args) -> int:
 
     try:
         solution = solve(net, method=args.method, rtol=args.rtol,
-                         allow_floating=args.allow_floating, report=report)
+                         allow_floating=args.allow_floating, report=report,
+                         start_voltage=start_voltage)
     except SolverFailed as error:
         raise SolverError(f"{args.network}: {error}") from error
     solution.timings = {"read": read_seconds, **solution.timings, "check": check_seconds}
+    solution.notes += notes
     start = time.perf_counter()
     drop = supply_drop(net, solution.node_voltage, nominal=args.nominal,
                        thresholds=args.drop_thresholds)
