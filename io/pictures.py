@@ -147,7 +147,8 @@ def map_figure(points: Points, *, title: str, label: str, unit: str, kind: str,
         if mark_largest:
             on_layer = np.flatnonzero(layer == name)
             worst = on_layer[np.argmax(np.abs(value[on_layer]))]
-            axis.plot(x[worst], y[worst], marker="x", color="#00c8ff", markersize=9, mew=2)
+            axis.plot(x[worst], y[worst], marker="x", color="#00c8ff", markersize=9, mew=2,
+                      clip_on=False)
     for axis in axes.flat[len(layers):]:
         axis.set_visible(False)
     colorbar = figure.colorbar(image, ax=axes, shrink=0.9)
