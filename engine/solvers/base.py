@@ -121,8 +121,9 @@ class SPDSolver(ABC):
         end starts from); return the solution and iteration count."""
 
     @abstractmethod
-    def preconditioner(self) -> spla.LinearOperator:
-        """This set-up as an approximate inverse of its matrix (for another, nearby matrix)."""
+    def preconditioner(self, matrix=None) -> spla.LinearOperator:
+        """This set-up as an approximate inverse of its matrix, or of ``matrix``, a nearby
+        matrix of the same size (a back end may fold ``matrix`` in where that is cheap)."""
 
     def solve(self, b: np.ndarray, x0: np.ndarray | None = None) -> tuple[np.ndarray, SolveInfo]:
         """Solve ``A x = b`` for one column (shape ``(n,)``) or a block (shape ``(n, r)``),
@@ -162,7 +163,7 @@ class SPDSolver(ABC):
             with single_threaded_blas():
                 # Half the target, as in amg_cg: CG's recurrence residual drifts from the true one.
                 x, _ = spla.cg(matrix, b, x0=x0, rtol=0.5 * self.rtol, atol=0.0,
-                               maxiter=max_iterations, M=self.preconditioner(), callback=tally)
+                               maxiter=max_iterations, M=self.preconditioner(matrix), callback=tally)
         elapsed = time.perf_counter() - start
         residual = relative_residual(matrix, x, b) if b.size else 0.0
         converged = bool(np.isfinite(residual) and residual <= self.rtol)

@@ -30,8 +30,8 @@ class DirectSolver(SPDSolver):
         for callers that exploit the factors' sparsity (:mod:`ohmgraph.engine.resistance.reach`)."""
         return self._lu
 
-    def preconditioner(self):
-        """The factorisation's solve (exact for this matrix)."""
+    def preconditioner(self, matrix=None):
+        """The factorisation's solve (exact for this set-up's matrix; ``matrix`` is not used)."""
         n = self.matrix.shape[0]
         return spla.LinearOperator((n, n), matvec=self._lu.solve, dtype=np.float64)
 
