@@ -186,8 +186,12 @@ def read_changes(path, net: Network) -> ChangeFile:
     return ChangeFile(changes, rating_changes)
 
 
+CHANGES_NOTE = "changes from "
+
+
 def change_note(path, changes: BranchChanges) -> str:
-    """One line saying what a change file did."""
-    return (f"changes from {path}: {changes.index.size - changes.opened.size:,} value(s) set, "
+    """One line saying what a change file did (stored in the solution's notes, which tells
+    later runs that the stored network is not the input file's)."""
+    return (f"{CHANGES_NOTE}{path}: {changes.index.size - changes.opened.size:,} value(s) set, "
             f"{changes.opened.size:,} resistor(s) opened, {changes.new_names.size:,} "
             "branch(es) added")

@@ -94,6 +94,13 @@ def test_cli_variant_with_changes_and_warm_start(tmp_path, capsys):
         current = h5["branches/current"][...]
     assert current[names.index("R1")] == pytest.approx(2.0)
     assert current[names.index("R3")] == pytest.approx(1.0)
+    assert "network taken from" in text            # NET unchanged since a.h5: reused
+    # b.h5 holds a changed network: a run from it must read NET again
+    code, text = run(capsys, "solve", tmp_path / "d.csv", "--start-from", tmp_path / "b.h5",
+                     "-o", tmp_path / "again.h5")
+    assert code == 0 and "network taken from" not in text
+    with h5py.File(tmp_path / "again.h5") as h5:
+        assert h5["branches/name"].shape == (3,)
     code, text = run(capsys, "diff", tmp_path / "a.h5", tmp_path / "b.h5", "--json")
     result = json.loads(text)
     assert code == 0 and result["branches"]["only_in_B"] == 1

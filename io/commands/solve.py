@@ -15,11 +15,11 @@ from ohmgraph.io.check_view import format_report, report_to_dict
 from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, SolverError
 from ohmgraph.io.jsonout import dumps
 from ohmgraph.engine.variant import apply_changes
-from ohmgraph.io.changes import change_note, read_changes
+from ohmgraph.io.changes import CHANGES_NOTE, change_note, read_changes
 from ohmgraph.io.node_table import node_table_by_label, read_node_table
-from ohmgraph.io.reader import read_network_with_ratings
+from ohmgraph.io.reader import RATING_COLUMNS, read_network_with_ratings
 from ohmgraph.io.solution_view import format_solution, solution_summary
-from ohmgraph.io.store import read_solution, voltages_by_label, write_solution
+from ohmgraph.io.store import file_sha256, read_solution, voltages_by_label, write_solution
 
 
 def register(subparsers) -> None:
@@ -64,13 +64,28 @@ def register(subparsers) -> None:
     parser.set_defaults(run=run)
 
 
+def read_inputs(args, base) -> tuple:
+    """The network and its ratings: taken from ``BASE.h5`` when NET is the very file it was
+    solved from (same SHA-256, same reference node, no change file applied then), else read
+    from NET; and the notes saying which."""
+    if (base is not None and base.attrs.get("input_sha256") == file_sha256(args.network)
+            and base.attrs["reference"] == args.ground
+            and not any(note.startswith(CHANGES_NOTE) for note in base.attrs.get("notes", []))):
+        ratings = {name: base.extra[f"branches/{name}"] for name in RATING_COLUMNS
+                   if f"branches/{name}" in base.extra}
+        return base.network, ratings, [f"network taken from {args.start_from}: {args.network} "
+                                       "is unchanged since (same SHA-256)"]
+    net, ratings = read_network_with_ratings(args.network, ground=args.ground)
+    return net, ratings, []
+
+
 def run(args) -> int:
     """Run ``solve``; return the exit code (see :mod:`ohmgraph.io.errors`)."""
     refuse_input(args.output, [args.network, args.nodes, args.changes, args.start_from])
     refuse_existing(args.output, args.force)
     start = time.perf_counter()
-    net, ratings = read_network_with_ratings(args.network, ground=args.ground)
-    notes = []
+    base = read_solution(args.start_from) if args.start_from else None
+    net, ratings, notes = read_inputs(args, base)
     if args.changes:
         change_file = read_changes(args.changes, net)
         ratings = change_file.changed_ratings(net, ratings)
@@ -78,8 +93,7 @@ def run(args) -> int:
         notes.append(change_note(args.changes, change_file.changes))
     nodes = read_node_table(args.nodes, net) if args.nodes else None
     start_voltage = None
-    if args.start_from:
-        base = read_solution(args.start_from)
+    if base is not None:
         start_voltage, matched = voltages_by_label(base, net)
         notes.append(f"started from {args.start_from} ({matched:,} of {net.n_nodes:,} nodes "
                      "matched by label)")
