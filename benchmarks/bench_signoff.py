@@ -28,7 +28,7 @@ import h5py
 import numpy as np
 import pandas as pd
 import pytest
-from conftest import RTOL, SIZE, supplied_lattice
+from conftest import RTOL, supplied_lattice
 
 from ohmgraph.datasets.generators import site_coordinates
 from ohmgraph.engine import solve

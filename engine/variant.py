@@ -31,7 +31,7 @@ import scipy.sparse as sp
 
 from .network import CURRENT_SOURCE, RESISTOR, Network
 from .solve import Solution, finish, solve
-from .solvers import DEFAULT_RTOL, SolverFailed
+from .solvers import SolverFailed
 
 
 @dataclass(frozen=True)

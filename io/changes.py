@@ -97,16 +97,26 @@ def read_changes(path, net: Network) -> ChangeFile:
     table = table[(table[list(COLUMNS)] != "").any(axis=1)]
 
     problems = ProblemList(path)
-    first = {}
-    for k, name in enumerate(net.branch_names.tolist()):
-        first.setdefault(name, k)
+    # First branch of each named row: look the network's names up among the file's few names.
+    wanted = pd.Index(table["name"].unique())
+    hit = wanted.get_indexer(net.branch_names)
+    found = np.flatnonzero(hit >= 0)
+    first = np.full(len(wanted), -1, np.int64)
+    first[hit[found][::-1]] = found[::-1]                  # the last write, the first branch
+    table["branch"] = first[wanted.get_indexer(table["name"])]
     labels = net.node_labels
-    index, value = [], []
+    # The common row, a finite value for a branch named once and nothing else, in one step.
+    numbers = pd.to_numeric(table["value"], errors="coerce").to_numpy(np.float64)
+    simple = ((table["branch"].to_numpy() >= 0) & np.isfinite(numbers)
+              & ~table["name"].duplicated(keep=False).to_numpy()
+              & (table[["kind", "from", "to", *RATING_COLUMNS]] == "").all(axis=1).to_numpy())
+    index = table["branch"].to_numpy()[simple].tolist()
+    value = numbers[simple].tolist()
     ratings = {column: ([], []) for column in RATING_COLUMNS}
     new = {"name": [], "kind": [], "from": [], "to": [], "value": [],
            **{f"new:{c}": [] for c in RATING_COLUMNS}}
     seen = set()
-    for row in table.to_dict("records"):
+    for row in table[~simple].to_dict("records"):
         line, name = row["line"], row["name"]
         if not name:
             problems.add(line, "column 'name': empty (a change names the branch it changes)")
@@ -133,8 +143,8 @@ def read_changes(path, net: Network) -> ChangeFile:
         if kind and kind not in KIND_CODE:
             problems.add(line, f"column 'kind': {row['kind']!r} is not a branch kind (R, V or I)")
             continue
-        k = first.get(name)
-        if k is None:
+        k = int(row["branch"])
+        if k < 0:
             if not (row["from"] and row["to"]):
                 problems.add(line, f"column 'name': no branch {name!r} in the network; a new "
                                    "branch needs 'from' and 'to'")
@@ -170,7 +180,7 @@ def read_changes(path, net: Network) -> ChangeFile:
                 ratings[column][0].append(k)
                 ratings[column][1].append(given[column])
     problems.raise_if_any()
-    if not seen:
+    if not (seen or index):
         raise InputError(f"{path}: the file holds no changes")
     changes = BranchChanges(
         np.asarray(index, np.int64), np.asarray(value, np.float64),

@@ -497,7 +497,12 @@ def voltages_by_label(stored: StoredSolution, net: Network) -> tuple[np.ndarray,
     node of that label), and how many nodes matched; for a warm start."""
     import pandas as pd
 
-    where = pd.Index(stored.network.node_labels).get_indexer(net.node_labels)
+    stored_labels = stored.network.node_labels
+    if np.array_equal(stored_labels, net.node_labels[:stored_labels.size]):   # the usual case
+        voltage = np.full(net.n_nodes, np.nan)
+        voltage[:stored_labels.size] = stored.node_voltage
+        return voltage, int(stored_labels.size)
+    where = pd.Index(stored_labels).get_indexer(net.node_labels)
     voltage = np.full(net.n_nodes, np.nan)
     voltage[where >= 0] = stored.node_voltage[where[where >= 0]]
     return voltage, int(np.count_nonzero(where >= 0))
