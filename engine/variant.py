@@ -59,6 +59,15 @@ class BranchChanges:
     new_to: np.ndarray = field(default_factory=lambda: np.empty(0, str))
     new_value: np.ndarray = field(default_factory=lambda: np.empty(0))
 
+    def __post_init__(self) -> None:
+        setter = object.__setattr__.__get__(self)
+        for name, dtype in (("index", np.int64), ("value", np.float64), ("new_names", str),
+                            ("new_kind", np.uint8), ("new_from", str), ("new_to", str),
+                            ("new_value", np.float64)):
+            setter(name, np.asarray(getattr(self, name), dtype=dtype))
+        if self.index.shape != self.value.shape:
+            raise ValueError("index and value must have the same length")
+
     @property
     def opened(self) -> np.ndarray:
         """Existing branches opened (set to ``inf``)."""

@@ -43,6 +43,11 @@ def _replace(h5, name, data) -> None:
     h5[name] = data
 
 
+def _readings_result(path) -> None:
+    """An ohmgraph HDF5 file of another kind: the result of comparing readings."""
+    main(["compare", "net.csv", "meas.csv", "-o", str(path)])
+
+
 def _foreign(path) -> None:
     with h5py.File(path, "w") as h5:
         h5["x"] = np.arange(3)
@@ -106,6 +111,7 @@ FOLDERS = ("folder", "folder.h5", "folder.csv", "demo/sensor_board.csv")
 SOLUTIONS = {
     "sol.h5": _solution,
     "foreign.h5": _foreign,
+    "readings.h5": _readings_result,
     "rtol_text.h5": lambda p: _tampered(p, lambda h5: h5.attrs.__setitem__("rtol", "abc")),
     "notes_number.h5": lambda p: _tampered(p, lambda h5: h5.attrs.__setitem__("notes", 5)),
     "float_index.h5": lambda p: _tampered(
@@ -259,6 +265,9 @@ REFUSED = [
     # limits, export, map, report
     ("limits sol.h5", EXIT_BAD_INPUT, "nothing to check"),
     ("limits foreign.h5 --max-drop 5%", EXIT_BAD_INPUT, "not an ohmgraph solution file"),
+    ("limits readings.h5 --max-drop 5%", EXIT_BAD_INPUT, "not an ohmgraph solution file"),
+    ("report readings.h5 -o out.html", EXIT_BAD_INPUT, "not an ohmgraph solution file"),
+    ("export readings.h5 --nodes out.csv", EXIT_BAD_INPUT, "not an ohmgraph solution file"),
     ("limits notes.txt --max-drop 5%", EXIT_BAD_INPUT, "not an HDF5 file"),
     ("limits sol.h5 --max-drop 0%", EXIT_BAD_INPUT, "is not a drop limit greater than 0"),
     ("limits sol.h5 --max-current -1", EXIT_BAD_INPUT, "greater than 0"),
