@@ -223,3 +223,21 @@ def test_report_of_the_ladder_lists_violations(ladder, tmp_path, capsys):
     page.feed(out.read_text(encoding="utf-8"))
     words = " ".join(page.text)
     assert "2 limit(s) exceeded" in words and "Rbc" in words and "200.0%" in words
+
+
+def test_solve_json_thresholds_and_nominal(tmp_path, capsys):
+    (tmp_path / "ladder.csv").write_text(LADDER)
+    # drops of b and c are 2 V and 3 V below 10 V (the ladder above): over 25 % and over 2.5 V
+    # only c; with a 12 V nominal imposed they are 4 V and 5 V, both over
+    code, text = run(capsys, "solve", tmp_path / "ladder.csv", "-o", tmp_path / "a.h5", "--json",
+                     "--drop-thresholds", "25%,2.5V")
+    net0 = json.loads(text)["supply_drop"]["nets_shown"][0]
+    assert code == 0 and net0["over"] == {"25%": 1, "2.5 V": 1}
+    assert net0["worst_node"] == "c" and net0["worst_drop_V"] == pytest.approx(3.0)
+    code, text = run(capsys, "solve", tmp_path / "ladder.csv", "-o", tmp_path / "b.h5", "--json",
+                     "--drop-thresholds", "2.5V", "--nominal", "12")
+    net0 = json.loads(text)["supply_drop"]["nets_shown"][0]
+    assert net0["over"] == {"2.5 V": 2} and net0["worst_drop_V"] == pytest.approx(5.0)
+    # limits reads the stored nominal back
+    code, text = run(capsys, "limits", tmp_path / "b.h5", "--max-drop", "4.5V", "--json")
+    assert json.loads(text)["counts"]["drop"] == 1
