@@ -449,3 +449,30 @@ def knn_network(n: int, k: int = 4, seed: int = 0, *, ohms_per_unit: float = 1.0
     return _network(labels, names, low, high, ohms_per_unit * distance, pad_nodes=pad_nodes,
                     supply_volts=supply_volts, load_nodes=load_nodes, load_amps=load_amps,
                     reference=reference)
+
+
+def site_coordinates(labels) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Coordinates and layer of nodes labelled by :func:`grid2d` (``"x_y"``) or
+    :func:`layered_mesh` (``"m{layer}_{x}_{y}"``), for a node table.
+
+    Returns
+    -------
+    x, y : ndarray of float64
+        Site coordinates; NaN for other labels (such as the reference ``"0"``).
+    layer : ndarray of str
+        ``"m0"``, ``"m1"``, ... for mesh labels, empty otherwise.
+    """
+    import pandas as pd
+
+    parts = pd.Series(np.asarray(labels, dtype=str)).str.split("_", expand=True)
+    if parts.shape[1] < 2:
+        nan = np.full(len(parts), np.nan)
+        return nan, nan.copy(), np.full(len(parts), "", dtype=str)
+    layered = parts.shape[1] >= 3
+    layer = parts[0].where(parts[2].notna(), "") if layered else pd.Series([""] * len(parts))
+    xs = parts[1].where(parts[2].notna(), parts[0]) if layered else parts[0]
+    ys = parts[2].where(parts[2].notna(), parts[1]) if layered else parts[1]
+    x = pd.to_numeric(xs, errors="coerce").to_numpy(np.float64)
+    y = pd.to_numeric(ys, errors="coerce").to_numpy(np.float64)
+    x[np.isnan(y)] = np.nan
+    return x, y, layer.fillna("").to_numpy(dtype=str)

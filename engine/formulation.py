@@ -132,6 +132,19 @@ class ReducedSystem:
         potential[self.free] = x
         return potential[self.contraction.supernode] + self.contraction.offset
 
+    def unknowns_from_voltages(self, voltage: np.ndarray) -> np.ndarray:
+        """The reduced unknowns that node voltages imply (the inverse of :meth:`node_voltages`),
+        for an initial guess: each free supernode gets the mean of ``V - offset`` over its nodes
+        with a finite voltage, 0 where none has one."""
+        voltage = np.asarray(voltage, dtype=np.float64)
+        known = np.isfinite(voltage)
+        supernode = self.contraction.supernode[known]
+        n = self.contraction.n_supernodes
+        total = np.bincount(supernode, voltage[known] - self.contraction.offset[known], n)
+        count = np.bincount(supernode, minlength=n)
+        potential = np.where(count > 0, total / np.maximum(count, 1), 0.0)
+        return potential[self.free]
+
 
 def assemble(net: Network, contraction: Contraction, pinned_nodes=()) -> ReducedSystem:
     """Assemble the reduced system of a network that passed :func:`ohmgraph.engine.check`.

@@ -133,8 +133,10 @@ class SolveSession:
         self.stats.setup_seconds += time.perf_counter() - start
         self.stats.method, self.stats.reason = method, reason
 
-    def solve(self, b: np.ndarray) -> np.ndarray:
+    def solve(self, b: np.ndarray, x0: np.ndarray | None = None) -> np.ndarray:
         """Solve ``A x = b`` for one column (shape ``(n,)``) or a block (shape ``(n, r)``).
+
+        ``x0`` is an initial guess for an iterative back end (ignored by a factorisation).
 
         Returns
         -------
@@ -149,7 +151,7 @@ class SolveSession:
         b = np.asarray(b, dtype=np.float64)
         if self._solver is None:
             self.expect(1 if b.ndim == 1 else b.shape[1])
-        x, info = self._solver.solve(b)
+        x, info = self._solver.solve(b, x0)
         if not info.converged and self._solver.method != "direct":
             allowed, why = direct_fallback_allowed(self.matrix, self.memory_budget)
             if not allowed:
@@ -163,13 +165,35 @@ class SolveSession:
             x, info = self._solver.solve(b)
         if not info.converged:
             raise SolverFailed(shortfall(info, self.rtol), info)
+        self._record(b, info)
+        return x
+
+    def solve_nearby(self, matrix, b: np.ndarray, x0: np.ndarray | None = None) -> np.ndarray:
+        """Solve ``matrix @ x = b`` (one column) for a matrix near this session's one, such as
+        the same network with some resistors changed: conjugate gradient preconditioned by this
+        session's set-up, started from ``x0``.
+
+        Raises
+        ------
+        SolverFailed
+            When the measured residual ``||matrix x - b|| / ||b||`` misses ``rtol`` (the caller
+            then sets up a session for ``matrix``).
+        """
+        if self._solver is None:
+            self.expect(1)
+        x, info = self._solver.solve_nearby(sp.csr_matrix(matrix), b, x0)
+        if not info.converged:
+            raise SolverFailed(shortfall(info, self.rtol), info)
+        self._record(b, info)
+        return x
+
+    def _record(self, b: np.ndarray, info: SolveInfo) -> None:
         self.last = info
         stats = self.stats
         stats.solves += 1 if b.ndim == 1 else b.shape[1]
         stats.solve_seconds += info.solve_seconds
         stats.max_iterations = max(stats.max_iterations, info.iterations)
         stats.max_relative_residual = max(stats.max_relative_residual, info.relative_residual)
-        return x
 
 
 def solve_spd(A, b, rtol: float = DEFAULT_RTOL, method: str = "auto") -> np.ndarray:

@@ -151,7 +151,8 @@ class Solution:
 
 def solve(net: Network, *, method: str = "auto", rtol: float = DEFAULT_RTOL,
           allow_floating: bool = False, report: CheckReport | None = None,
-          memory_budget: float | None = None) -> Solution:
+          memory_budget: float | None = None,
+          start_voltage: np.ndarray | None = None) -> Solution:
     """Solve a network: every node voltage and every branch current, voltage and power.
 
     Parameters
@@ -168,6 +169,10 @@ def solve(net: Network, *, method: str = "auto", rtol: float = DEFAULT_RTOL,
         A report from :func:`check` with the same ``allow_floating``, to avoid checking twice.
     memory_budget : float, optional
         Bytes the solver's set-up may use (``auto`` chooses within it).
+    start_voltage : ndarray, optional
+        Node voltages to start an iterative solver from (a warm start, for example a stored
+        solution of a nearby network; NaN where unknown). The result is held to ``rtol`` all
+        the same.
 
     Raises
     ------
@@ -190,7 +195,22 @@ def solve(net: Network, *, method: str = "auto", rtol: float = DEFAULT_RTOL,
     timings["assemble"] = time.perf_counter() - start
 
     session = SolveSession(system.matrix, method, rtol, memory_budget=memory_budget)
-    x = session.solve(system.rhs)
+    x0 = None if start_voltage is None else system.unknowns_from_voltages(start_voltage)
+    x = session.solve(system.rhs, x0)
+    return finish(net, report, system, session, x, rtol, timings)
+
+
+def finish(net: Network, report: CheckReport, system: ReducedSystem, session: SolveSession,
+           x: np.ndarray, rtol: float, timings: dict) -> Solution:
+    """Recover node voltages and branch quantities from the reduced solution ``x`` and prove
+    them (KCL residual, power balance): the last stage of :func:`solve`, shared with
+    re-solves of changed networks (:mod:`ohmgraph.engine.variant`).
+
+    Raises
+    ------
+    SolverFailed
+        When the voltages, currents or powers overflow double precision.
+    """
     stats = session.stats
     timings["setup"], timings["solve"] = stats.setup_seconds, stats.solve_seconds
 

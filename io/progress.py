@@ -95,3 +95,9 @@ class Feedback:
 
     def __exit__(self, *exc) -> None:
         self.close()
+
+
+def steps(total: int, what: str) -> tqdm:
+    """A progress bar of ``total`` steps, silent unless standard error is a terminal."""
+    return tqdm(total=total, desc=what, unit="step", file=sys.stderr,
+                disable=not stderr_is_terminal(), leave=False)

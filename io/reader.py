@@ -7,6 +7,8 @@ Formats, chosen by the file extension (after an optional ``.gz``) through
   ``from``, ``to``, ``value`` in any order (case-insensitive). ``from``, ``to`` and ``value`` are
   required; a missing ``name`` column names each branch by its 1-based row number, a missing
   ``kind`` column makes every branch a resistor, and an empty ``kind`` field means ``R``.
+  Optional rating columns ``max_current`` (A) and ``max_power`` (W) take numbers greater than 0;
+  an empty field means no rating.
 * ``.parquet``: the same columns and rules as a branch table (any column types: numbers and
   labels are read through their text, so integer labels become decimal text and values keep
   every digit); problems are reported by row (``FILE:row 3: column 'value': ...``).
@@ -30,7 +32,7 @@ from __future__ import annotations
 
 import csv
 import gzip
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 import numpy as np
@@ -44,7 +46,9 @@ from ohmgraph.engine.network import KIND_CODE, RESISTOR, Network
 from ohmgraph.io.errors import InputError, ProblemList
 from ohmgraph.io.formats import EDGE_LIST, PARQUET, network_format
 
-COLUMNS = ("name", "kind", "from", "to", "value")
+COLUMNS = ("name", "kind", "from", "to", "value", "max_current", "max_power")
+# Optional ratings: amperes and watts, greater than 0; an empty field means no rating.
+RATING_COLUMNS = ("max_current", "max_power")
 REQUIRED_COLUMNS = ("from", "to", "value")
 EDGE_LIST_FIELDS = ("from", "to", "value")
 # Edge-list line forms by field count: weighted (from to ohms) and unweighted (from to).
@@ -70,6 +74,7 @@ class _Columns:
     kind: np.ndarray
     names: pa.Array | None
     values_defaulted: bool = False
+    ratings: dict = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -83,11 +88,15 @@ class NetworkFile:
     findings : tuple of Finding
         ``info`` findings about the reading itself (for example ``default-resistance`` when
         every value was defaulted to 1 ohm); :meth:`check` adds them to the check report.
+    ratings : dict
+        ``{"max_current": amperes, "max_power": watts}`` for the rating columns the table has,
+        float64 arrays with NaN where a row gives no rating.
     """
 
     path: Path
     network: Network
     findings: tuple = ()
+    ratings: dict = field(default_factory=dict)
 
     def check(self, allow_floating: bool = False) -> CheckReport:
         """:func:`ohmgraph.engine.check` of the network, the reader's findings appended."""
@@ -101,7 +110,8 @@ class _Rejected(Exception):
 
 # ---------------------------------------------------------------------------------- public API
 def read_network(path, ground: str | None = "0") -> Network:
-    """Read a network file (:func:`read_network_file` without the reader's findings).
+    """Read a network file (:func:`read_network_file` without the reader's findings and
+    ratings).
 
     Parameters
     ----------
@@ -121,7 +131,7 @@ def read_network(path, ground: str | None = "0") -> Network:
 
 
 def read_network_file(path, ground: str | None = "0") -> NetworkFile:
-    """Read a network file and record what the reader assumed.
+    """Read a network file and record what the reader assumed, with its optional ratings.
 
     Parameters
     ----------
@@ -158,7 +168,7 @@ def read_network_file(path, ground: str | None = "0") -> NetworkFile:
     except (OSError, EOFError) as error:      # unreadable gzip stream or a failing disk
         raise InputError(f"{path}: cannot be read ({error})") from None
     network = _build_network(path, columns, None if ground is None else str(ground))
-    return NetworkFile(path, network, _reading_findings(columns))
+    return NetworkFile(path, network, _reading_findings(columns), columns.ratings)
 
 
 def _reading_findings(columns: _Columns) -> tuple:
@@ -301,7 +311,16 @@ def _convert(table: pa.Table) -> _Columns:
     else:
         kind = np.full(len(table), RESISTOR, np.uint8)
     names = trimmed("name") if "name" in table.column_names else None
-    return _Columns(from_labels, to_labels, value, kind, names, defaulted)
+    ratings = {}
+    for column in RATING_COLUMNS:
+        if column in table.column_names:
+            text = trimmed(column)
+            text = pc.if_else(pc.equal(pc.utf8_length(text), 0), pa.scalar(None, pa.string()), text)
+            ratings[column] = pc.cast(text, pa.float64()).to_numpy(zero_copy_only=False)
+            given = ratings[column][~np.isnan(ratings[column])]
+            if not np.all(np.isfinite(given) & (given > 0)):
+                raise _Rejected
+    return _Columns(from_labels, to_labels, value, kind, names, defaulted, ratings)
 
 
 def _build_network(path: Path, columns: _Columns, ground: str | None) -> Network:
@@ -411,6 +430,7 @@ class _ColumnsBuilder:
 
     def __init__(self):
         self.from_labels, self.to_labels, self.values, self.kinds, self.names = [], [], [], [], []
+        self.ratings = {column: [] for column in RATING_COLUMNS}
 
     def add_row(self, problems: ProblemList, line: int | str, fields: dict) -> None:
         ok = True
@@ -434,17 +454,32 @@ class _ColumnsBuilder:
             problems.add(line, "column 'value': " + (f"{fields['value']!r} is not a number"
                                                      if fields["value"] else "empty"))
             ok = False
+        ratings = {}
+        for column in RATING_COLUMNS:
+            text = fields.get(column, "")
+            try:
+                ratings[column] = _parse_number(text) if text else np.nan
+            except ValueError:
+                ratings[column] = -1.0
+            if not (np.isnan(ratings[column])
+                    or (np.isfinite(ratings[column]) and ratings[column] > 0)):
+                problems.add(line, f"column {column!r}: {text!r} is not a rating (a finite "
+                                   "number greater than 0, or empty for none)")
+                ok = False
         if ok:
+            for column in RATING_COLUMNS:
+                self.ratings[column].append(ratings[column])
             self.from_labels.append(fields["from"])
             self.to_labels.append(fields["to"])
             self.values.append(value)
             self.kinds.append(kind)
             self.names.append(fields.get("name"))
 
-    def columns(self, named: bool, values_defaulted: bool = False) -> _Columns:
+    def columns(self, named: bool, values_defaulted: bool = False, rated=()) -> _Columns:
         return _Columns(pa.array(self.from_labels, pa.string()), pa.array(self.to_labels, pa.string()),
                         np.asarray(self.values, np.float64), np.asarray(self.kinds, np.uint8),
-                        pa.array(self.names, pa.string()) if named else None, values_defaulted)
+                        pa.array(self.names, pa.string()) if named else None, values_defaulted,
+                        {column: np.asarray(self.ratings[column], np.float64) for column in rated})
 
 
 def _exact_table(path: Path, delimiter: str, header: list) -> _Columns:
@@ -458,7 +493,8 @@ def _exact_table(path: Path, delimiter: str, header: list) -> _Columns:
             continue
         rows.add_row(problems, line, {name: field.strip() for name, field in zip(header, fields)})
     problems.raise_if_any()
-    return rows.columns(named="name" in header)
+    return rows.columns(named="name" in header,
+                        rated=[column for column in RATING_COLUMNS if column in header])
 
 
 def _exact_rows(path: Path, text: pa.Table, header: list) -> _Columns:
@@ -467,7 +503,8 @@ def _exact_rows(path: Path, text: pa.Table, header: list) -> _Columns:
     for row, fields in enumerate(text.to_pylist(), start=1):
         rows.add_row(problems, f"row {row}", {name: fields[name].strip() for name in header})
     problems.raise_if_any()
-    return rows.columns(named="name" in header)
+    return rows.columns(named="name" in header,
+                        rated=[column for column in RATING_COLUMNS if column in header])
 
 
 def _exact_edge_list(path: Path) -> _Columns:
@@ -491,4 +528,4 @@ def _exact_edge_list(path: Path) -> _Columns:
 
 
 __all__ = ["read_network", "read_network_file", "NetworkFile", "locate_lines", "COLUMNS",
-           "REQUIRED_COLUMNS"]
+           "REQUIRED_COLUMNS", "RATING_COLUMNS"]

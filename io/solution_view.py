@@ -9,7 +9,9 @@ from __future__ import annotations
 
 import numpy as np
 
+from ohmgraph.engine.drop import SupplyDrop
 from ohmgraph.engine.solve import Solution
+from ohmgraph.io.drop_view import drop_summary, format_drop, stored_drop
 from ohmgraph.io.numbers import digits_for, quantity, significant
 from ohmgraph.io.store import StoredSolution
 
@@ -22,9 +24,13 @@ def _findings_digest(findings) -> list:
     return [{"severity": f.severity, "code": f.code, "message": f.message} for f in findings]
 
 
-def solution_summary(solution: Solution, extra_timings: dict | None = None) -> dict:
-    """:meth:`Solution.summary` plus the check findings and any extra stage timings (seconds)."""
+def solution_summary(solution: Solution, extra_timings: dict | None = None,
+                     drop: SupplyDrop | None = None) -> dict:
+    """:meth:`Solution.summary` plus the check findings, any extra stage timings (seconds) and
+    the supply drop."""
     summary = solution.summary()
+    if drop is not None:
+        summary["supply_drop"] = drop_summary(drop, solution.network.node_labels)
     summary["timings_s"].update(extra_timings or {})
     summary["findings"] = _findings_digest(solution.report.findings if solution.report else [])
     return summary
@@ -46,6 +52,7 @@ def summary_from_stored(stored: StoredSolution) -> dict:
     summary = rebuilt.summary()
     summary["unknowns"] = attrs.get("unknowns")
     summary["findings"] = _findings_digest(stored.findings)
+    summary["supply_drop"] = drop_summary(stored_drop(stored), net.node_labels)
     return summary
 
 
@@ -97,6 +104,8 @@ def format_solution(summary: dict) -> str:
     if s.get("undetermined_currents"):
         lines.append(f"          {s['undetermined_currents']} branch current(s) left undetermined "
                      "by source loops (stored as 0 A)")
+    if s.get("supply_drop"):
+        lines += ["", *format_drop(s["supply_drop"])]
     lines += ["", "largest branch currents", *_table(s["largest_currents_A"], "A", digits)]
     lines += ["", "largest resistor powers", *_table(s["largest_resistor_powers_W"], "W", digits),
               f"  {POWER_CAUTION}"]

@@ -7,6 +7,10 @@ reads the file):
 * ``/branches/name``, ``kind`` (letters R, V, I), ``from`` and ``to`` (indices into ``/nodes``),
   ``value`` (ohm, V or A by kind), ``current`` (A), ``voltage`` (V), ``power`` (W),
   ``current_determined`` (bool);
+* optional, when given: ``/nodes/x``, ``/nodes/y``, ``/nodes/layer`` (node table),
+  ``/nodes/net``, ``/nodes/drop`` (V), ``/nodes/held`` and the ``/nets`` group (supply drop, see
+  :mod:`ohmgraph.engine.drop`), ``/branches/max_current`` (A) and ``/branches/max_power`` (W)
+  (ratings, NaN = none);
 * ``/checks``: one entry per check finding (``code``, ``severity``, ``message``, and the node
   and branch indices involved, concatenated with ``*_offsets`` to split them), with the check
   summary as attributes;
@@ -52,6 +56,16 @@ REQUIRED_ATTRIBUTES = (
     "reference", "method", "rtol", "iterations", "relative_residual", "kcl_max_residual",
     "kcl_worst_node", "power_balance", "power_dissipated",
 )
+# Optional datasets, stored when a command computed them (``OPTIONAL_DATASETS[name]`` is the
+# array the dataset runs along: "nodes", "branches" or "nets").
+OPTIONAL_DATASETS = {
+    "nodes/x": "nodes", "nodes/y": "nodes", "nodes/layer": "nodes",
+    "nodes/net": "nodes", "nodes/drop": "nodes", "nodes/held": "nodes",
+    "branches/max_current": "branches", "branches/max_power": "branches",
+    "nets/representative": "nets", "nets/nominal": "nets", "nets/size": "nets",
+    "nets/worst_node": "nets", "nets/worst_drop": "nets", "nets/over": "nets",
+    "nets/threshold": None,
+}
 TEXT_ATTRIBUTES = ("reference", "method", "kcl_worst_node")
 INDEX_DATASETS = ("branches/from", "branches/to")
 NUMBER_DATASETS = ("nodes/voltage", "branches/value", "branches/current", "branches/voltage",
@@ -62,6 +76,11 @@ UNITS = {
     "branches/current": "A",
     "branches/voltage": "V",
     "branches/power": "W",
+    "nodes/drop": "V",
+    "branches/max_current": "A",
+    "branches/max_power": "W",
+    "nets/nominal": "V",
+    "nets/worst_drop": "V",
 }
 DESCRIPTIONS = {
     "nodes/label": "unique node label",
@@ -76,6 +95,21 @@ DESCRIPTIONS = {
     "branches/power": "power absorbed (negative where a source delivers)",
     "branches/current_determined": "false where a loop of sources/ideal connections leaves the "
                                    "current free (given 0 A on the loop-closing branch)",
+    "nodes/x": "x coordinate from the node table (NaN where not given)",
+    "nodes/y": "y coordinate from the node table (NaN where not given)",
+    "nodes/layer": "layer from the node table (empty where not given)",
+    "nodes/net": "index into /nets of the node's net (-1 for the reference node)",
+    "nodes/drop": "drop below the net's supply: |nominal| - sign(nominal) * V; |V| on a 0 V net",
+    "nodes/held": "true where a voltage source holds the node",
+    "branches/max_current": "current rating from the branch table (NaN = none)",
+    "branches/max_power": "power rating from the branch table (NaN = none)",
+    "nets/representative": "index into /nodes of a node naming the net",
+    "nets/nominal": "supply potential of the net (NaN when unknown)",
+    "nets/size": "nodes in the net",
+    "nets/worst_node": "index into /nodes of the largest drop (-1 if none)",
+    "nets/worst_drop": "largest drop, reference and source-held nodes excluded",
+    "nets/over": "nodes over each threshold of /nets/threshold (-1: does not apply)",
+    "nets/threshold": "drop thresholds of /nets/over",
 }
 
 
@@ -90,6 +124,9 @@ class StoredSolution:
     node_voltage, branch_current, branch_voltage, branch_power : ndarray
         Volts, amperes, volts, watts.
     current_determined : ndarray of bool
+    extra : dict
+        The optional datasets present in the file (``"nodes/x"`` → array), see
+        :data:`OPTIONAL_DATASETS`.
     attrs : dict
         Root attributes (provenance and solve evidence) as plain Python values.
     findings : list of Finding
@@ -107,6 +144,7 @@ class StoredSolution:
     branch_power: np.ndarray
     current_determined: np.ndarray
     attrs: dict
+    extra: dict = field(default_factory=dict)
     findings: list = field(default_factory=list)
     check_summary: dict = field(default_factory=dict)
     timings: dict = field(default_factory=dict)
@@ -151,7 +189,8 @@ def _put(group: h5py.Group, name: str, data) -> None:
         data = encoded.view(h5py.string_dtype("utf-8", encoded.dtype.itemsize))
     options = {}
     if data.size >= COMPRESS_FROM:
-        options = dict(chunks=(min(data.size, CHUNK_ELEMENTS),), compression="gzip",
+        chunks = (min(data.size, CHUNK_ELEMENTS),) if data.ndim == 1 else True
+        options = dict(chunks=chunks, compression="gzip",
                        compression_opts=GZIP_LEVEL, shuffle=True)
     dataset = group.create_dataset(name, data=data, **options)
     key = f"{group.name.strip('/')}/{name}"
@@ -249,7 +288,8 @@ def _root_attrs(solution: Solution, input_path) -> dict:
     return attrs
 
 
-def write_solution(path, solution: Solution, *, input_path=None, force: bool = False) -> float:
+def write_solution(path, solution: Solution, *, input_path=None, force: bool = False,
+                   extra: dict | None = None) -> float:
     """Store a solution in a new HDF5 file, atomically.
 
     Parameters
@@ -262,6 +302,8 @@ def write_solution(path, solution: Solution, *, input_path=None, force: bool = F
         The network file the solution came from; its name and SHA-256 are recorded.
     force : bool
         Replace an existing file.
+    extra : dict, optional
+        Optional datasets by name (keys of :data:`OPTIONAL_DATASETS`).
 
     Returns
     -------
@@ -294,6 +336,9 @@ def write_solution(path, solution: Solution, *, input_path=None, force: bool = F
             _put(branches, "voltage", solution.branch_voltage)
             _put(branches, "power", solution.branch_power)
             _put(branches, "current_determined", np.asarray(solution.current_determined, bool))
+            for name, data in (extra or {}).items():
+                group, dataset = name.split("/")
+                _put(h5.require_group(group), dataset, data)
             report = solution.report
             _write_findings(h5.create_group("checks"), report.findings if report else [],
                             report.summary if report else {})
@@ -396,6 +441,7 @@ def read_solution(path) -> StoredSolution:
                              f"{absent[0]!r}")
         _check_types(path, attrs)
         data = {name: _dataset(h5, name) for name in REQUIRED_DATASETS}
+        extra = {name: _dataset(h5, name) for name in OPTIONAL_DATASETS if name in h5}
         findings, check_summary = _read_findings(h5, path)
         timings = ({stage: _plain(seconds) for stage, seconds in h5["timings"].attrs.items()
                     if stage != "units"} if "timings" in h5 else {})
@@ -423,10 +469,40 @@ def read_solution(path) -> StoredSolution:
         if data[name].shape != (expected,):
             raise InputError(f"{path}: /{name} has shape {data[name].shape}, expected "
                              f"({expected},)")
+    _check_extra(path, extra, network)
     return StoredSolution(
         network=network, node_voltage=data["nodes/voltage"].astype(np.float64),
         branch_current=data["branches/current"].astype(np.float64),
         branch_voltage=data["branches/voltage"].astype(np.float64),
         branch_power=data["branches/power"].astype(np.float64),
         current_determined=data["branches/current_determined"].astype(bool),
-        attrs=attrs, findings=findings, check_summary=check_summary, timings=timings)
+        attrs=attrs, extra=extra, findings=findings, check_summary=check_summary, timings=timings)
+
+
+def _check_extra(path, extra: dict, network: Network) -> None:
+    """Raise :class:`InputError` when an optional dataset does not fit the network."""
+    lengths = {"nodes": network.n_nodes, "branches": network.n_branches,
+               "nets": extra["nets/nominal"].shape[0] if "nets/nominal" in extra else None}
+    for name, data in extra.items():
+        along = OPTIONAL_DATASETS[name]
+        if along and data.shape[:1] != (lengths[along],):
+            raise InputError(f"{path}: /{name} has shape {data.shape}, expected "
+                             f"({lengths[along]},...)")
+        if name != "nodes/layer" and name != "nets/threshold" and data.dtype.kind not in "iufb":
+            raise InputError(f"{path}: /{name} holds {data.dtype} values, expected numbers")
+
+
+def voltages_by_label(stored: StoredSolution, net: Network) -> tuple[np.ndarray, int]:
+    """The stored node voltages of the nodes of ``net`` (NaN where the stored solution has no
+    node of that label), and how many nodes matched; for a warm start."""
+    import pandas as pd
+
+    stored_labels = stored.network.node_labels
+    if np.array_equal(stored_labels, net.node_labels[:stored_labels.size]):   # the usual case
+        voltage = np.full(net.n_nodes, np.nan)
+        voltage[:stored_labels.size] = stored.node_voltage
+        return voltage, int(stored_labels.size)
+    where = pd.Index(stored_labels).get_indexer(net.node_labels)
+    voltage = np.full(net.n_nodes, np.nan)
+    voltage[where >= 0] = stored.node_voltage[where[where >= 0]]
+    return voltage, int(np.count_nonzero(where >= 0))

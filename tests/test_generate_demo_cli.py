@@ -112,6 +112,12 @@ def test_demo_small_runs_and_stores_a_solution(tmp_path, capsys):
     assert all(voltage[label] == pytest.approx(1.2, abs=1e-12) for label in pad_labels)
     mesh = [v for label, v in voltage.items() if label != "0"]
     assert max(mesh) == pytest.approx(1.2, abs=1e-12) and min(mesh) < 1.2
+    # the sign-off part: node table, drop and coordinates stored, map and report written
+    assert "nodes/drop" in stored.extra and "nodes/x" in stored.extra
+    assert "limits exceeded" in text or "no limit exceeded" in text
+    assert (folder / "sensor_board_drop.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    page = (folder / "sensor_board_report.html").read_text(encoding="utf-8")
+    assert page.startswith("<!DOCTYPE html>") and page.count("data:image/png;base64,") == 2
     # running again replaces the demo's own files
     code, _, err = run(capsys, "demo", "--output-dir", folder, "--size", 16)
     assert code == 0, err

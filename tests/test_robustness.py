@@ -43,6 +43,11 @@ def _replace(h5, name, data) -> None:
     h5[name] = data
 
 
+def _readings_result(path) -> None:
+    """An ohmgraph HDF5 file of another kind: the result of comparing readings."""
+    main(["compare", "net.csv", "meas.csv", "-o", str(path)])
+
+
 def _foreign(path) -> None:
     with h5py.File(path, "w") as h5:
         h5["x"] = np.arange(3)
@@ -92,11 +97,24 @@ FILES = {
     "tol_source.csv": "branch,tolerance\nsupply,1%\n",
     "notes.txt": "not hdf5\n",
     "broken.parquet": b"PAR1 not really a Parquet file",
+    "nodes_unknown.csv": "label,x,y\ntop,0,0\nnowhere,1,1\n",
+    "nodes_bad.csv": "label,x,y\ntop,0,0\nmid,east,1\n",
+    "nodes_column.csv": "label,x,y,z\ntop,0,0,1\n",
+    "rated_zero.csv": "name,kind,from,to,value,max_current\nsupply,V,top,0,10,\nr1,R,top,0,5,0\n",
+    "rated_negative.csv": "name,from,to,value,max_power\nr1,top,0,5,-2\n",
+    "imax.csv": "name,from,to,value,imax\nr1,top,0,5,1\n",
+    "chg_missing.csv": "name,value\nr_upper,2000\nnowhere,5\n",
+    "chg_open_source.csv": "name,value\nsupply,inf\n",
+    "chg_column.csv": "name,value,colour\nr_upper,1,red\n",
+    "chg_wrong_ends.csv": "name,from,to,value\nr_upper,mid,top,5\n",
+    "chg_twice.csv": "name,value\nr_upper,1\nr_upper,2\n",
+    "chg_isolate.csv": "name,value\nr_upper,inf\nr_lower,inf\n",
 }
 FOLDERS = ("folder", "folder.h5", "folder.csv", "demo/sensor_board.csv")
 SOLUTIONS = {
     "sol.h5": _solution,
     "foreign.h5": _foreign,
+    "readings.h5": _readings_result,
     "rtol_text.h5": lambda p: _tampered(p, lambda h5: h5.attrs.__setitem__("rtol", "abc")),
     "notes_number.h5": lambda p: _tampered(p, lambda h5: h5.attrs.__setitem__("notes", 5)),
     "float_index.h5": lambda p: _tampered(
@@ -251,6 +269,59 @@ REFUSED = [
      "not allowed with argument"),
     ("resistance net.csv --to-reference mid --ground nowhere", EXIT_BAD_INPUT,
      "reference node 'nowhere' is not a node"),
+    # node tables and ratings
+    ("solve net.csv -o out.h5 --nodes nodes_unknown.csv", EXIT_BAD_INPUT,
+     "nodes_unknown.csv:3: column 'label': unknown node 'nowhere'"),
+    ("solve net.csv -o out.h5 --nodes nodes_bad.csv", EXIT_BAD_INPUT,
+     "nodes_bad.csv:3: column 'x': 'east' is not a finite number"),
+    ("solve net.csv -o out.h5 --nodes nodes_column.csv", EXIT_BAD_INPUT,
+     "unknown column(s) 'z' (expected label, x, y, layer)"),
+    ("solve net.csv -o out.h5 --nodes missing.csv", EXIT_BAD_INPUT, "missing.csv: no such file"),
+    ("solve rated_zero.csv -o out.h5", EXIT_BAD_INPUT,
+     "rated_zero.csv:3: column 'max_current': '0' is not a rating"),
+    ("solve rated_negative.csv -o out.h5", EXIT_BAD_INPUT,
+     "rated_negative.csv:2: column 'max_power': '-2' is not a rating"),
+    ("check imax.csv", EXIT_BAD_INPUT, "max_current, max_power)"),
+    ("solve net.csv -o out.h5 --drop-thresholds 5%,x", EXIT_BAD_INPUT, "'x' is not a drop limit"),
+    # limits, export, map, report
+    ("limits sol.h5", EXIT_BAD_INPUT, "nothing to check"),
+    ("limits foreign.h5 --max-drop 5%", EXIT_BAD_INPUT, "not an ohmgraph solution file"),
+    ("limits readings.h5 --max-drop 5%", EXIT_BAD_INPUT, "not an ohmgraph solution file"),
+    ("report readings.h5 -o out.html", EXIT_BAD_INPUT, "not an ohmgraph solution file"),
+    ("export readings.h5 --nodes out.csv", EXIT_BAD_INPUT, "not an ohmgraph solution file"),
+    ("limits notes.txt --max-drop 5%", EXIT_BAD_INPUT, "not an HDF5 file"),
+    ("limits sol.h5 --max-drop 0%", EXIT_BAD_INPUT, "is not a drop limit greater than 0"),
+    ("limits sol.h5 --max-current -1", EXIT_BAD_INPUT, "greater than 0"),
+    ("export sol.h5 --nodes out.txt", EXIT_BAD_INPUT, "unknown table type"),
+    ("export sol.h5", EXIT_BAD_INPUT, "nothing to write"),
+    ("export foreign.h5 --nodes out.csv", EXIT_BAD_INPUT, "not an ohmgraph solution file"),
+    ("export sol.h5 --nodes sol.h5.csv --branches folder.csv --force", EXIT_OUTPUT_REFUSED,
+     "is a folder"),
+    ("map sol.h5 -o out.png", EXIT_BAD_INPUT, "no node coordinates"),
+    ("map sol.h5 -o out.jpg --histograms", EXIT_BAD_INPUT, "unknown picture type"),
+    ("map foreign.h5 -o out.png --histograms", EXIT_BAD_INPUT, "not an ohmgraph solution file"),
+    ("report foreign.h5 -o out.html", EXIT_BAD_INPUT, "not an ohmgraph solution file"),
+    ("report sol.h5 -o sol.h5 --force", EXIT_BAD_INPUT, "is also the input file"),
+    ("report sol.h5 -o missing/out.html", EXIT_OUTPUT_REFUSED, "does not exist"),
+    # change files, warm starts, diff
+    ("solve net.csv -o out.h5 --changes chg_missing.csv", EXIT_BAD_INPUT,
+     "chg_missing.csv:3: column 'name': no branch 'nowhere' in the network"),
+    ("solve net.csv -o out.h5 --changes chg_open_source.csv", EXIT_BAD_INPUT,
+     "chg_open_source.csv:2: column 'value': V source 'supply' cannot be opened"),
+    ("solve net.csv -o out.h5 --changes chg_column.csv", EXIT_BAD_INPUT,
+     "unknown column(s) 'colour'"),
+    ("solve net.csv -o out.h5 --changes chg_wrong_ends.csv", EXIT_BAD_INPUT,
+     "branch 'r_upper' joins top -> mid"),
+    ("solve net.csv -o out.h5 --changes chg_twice.csv", EXIT_BAD_INPUT, "is changed twice"),
+    ("solve net.csv -o out.h5 --changes empty.csv", EXIT_BAD_INPUT, "empty.csv"),
+    ("solve net.csv -o out.h5 --changes chg_isolate.csv", EXIT_FAILED, "NOT solvable"),
+    ("solve net.csv -o out.h5 --start-from foreign.h5", EXIT_BAD_INPUT,
+     "not an ohmgraph solution file"),
+    ("solve net.csv -o sol.h5 --start-from sol.h5 --force", EXIT_BAD_INPUT,
+     "is also the input file"),
+    ("diff sol.h5 foreign.h5", EXIT_BAD_INPUT, "not an ohmgraph solution file"),
+    ("diff sol.h5 sol.h5 --map out.png", EXIT_BAD_INPUT, "no node coordinates"),
+    ("diff sol.h5 sol.h5 --map out.gif", EXIT_BAD_INPUT, "unknown picture type"),
     # networks that are not well-posed
     ("compare islands.csv meas_islands.csv --accuracy 1%+1mV", EXIT_FAILED, "not well-posed"),
     ("diagnose islands.csv meas_islands.csv --accuracy 1%+1mV", EXIT_FAILED, "not well-posed"),

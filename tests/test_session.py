@@ -12,6 +12,8 @@ from __future__ import annotations
 import networkx as nx
 import numpy as np
 import pytest
+import scipy.sparse as sp
+import scipy.sparse.linalg as spla
 from conftest import BACK_ENDS
 
 import ohmgraph.engine.session as session_module
@@ -175,8 +177,11 @@ class NeverConverges(SPDSolver):
     def _setup(self) -> None:
         pass
 
-    def _solve(self, b):
+    def _solve(self, b, x0=None):
         return np.zeros_like(b), 1
+
+    def preconditioner(self, matrix=None):
+        return spla.aslinearoperator(sp.identity(self.matrix.shape[0]))
 
 
 @pytest.fixture

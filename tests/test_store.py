@@ -11,6 +11,7 @@ import numpy as np
 import pytest
 
 from ohmgraph.engine import Network, solve
+from ohmgraph.engine.drop import supply_drop
 from ohmgraph.io import read_solution, write_solution
 from ohmgraph.io.errors import InputError, OutputRefused
 from ohmgraph.io.solution_view import (POWER_CAUTION, format_solution, solution_summary,
@@ -196,7 +197,8 @@ def test_summary_from_file_equals_summary_of_solve(tmp_path, make_network):
     solution = solve(make_network(5))
     out = tmp_path / "random.h5"
     seconds = write_solution(out, solution)
-    fresh = solution_summary(solution, {"store": seconds})
+    drop = supply_drop(solution.network, solution.node_voltage)
+    fresh = solution_summary(solution, {"store": seconds}, drop)
     assert summary_from_stored(read_solution(out)) == fresh
     text = format_solution(fresh)
     for needle in ("relative residual", "KCL max residual", "power balance",

@@ -22,6 +22,7 @@ from dataclasses import dataclass
 
 import numpy as np
 import scipy.sparse as sp
+import scipy.sparse.linalg as spla
 from threadpoolctl import ThreadpoolController
 
 DEFAULT_RTOL = 1e-10
@@ -115,21 +116,56 @@ class SPDSolver(ABC):
         """Factorise or build the preconditioner."""
 
     @abstractmethod
-    def _solve(self, b: np.ndarray) -> tuple[np.ndarray, int]:
-        """Solve for a 1-D or 2-D right-hand side; return the solution and iteration count."""
+    def _solve(self, b: np.ndarray, x0: np.ndarray | None = None) -> tuple[np.ndarray, int]:
+        """Solve for a 1-D or 2-D right-hand side (``x0``: an initial guess an iterative back
+        end starts from); return the solution and iteration count."""
 
-    def solve(self, b: np.ndarray) -> tuple[np.ndarray, SolveInfo]:
-        """Solve ``A x = b`` for one column (shape ``(n,)``) or a block (shape ``(n, r)``)."""
+    @abstractmethod
+    def preconditioner(self, matrix=None) -> spla.LinearOperator:
+        """This set-up as an approximate inverse of its matrix, or of ``matrix``, a nearby
+        matrix of the same size (a back end may fold ``matrix`` in where that is cheap)."""
+
+    def solve(self, b: np.ndarray, x0: np.ndarray | None = None) -> tuple[np.ndarray, SolveInfo]:
+        """Solve ``A x = b`` for one column (shape ``(n,)``) or a block (shape ``(n, r)``),
+        starting an iterative back end from ``x0`` when given."""
         b = np.asarray(b, dtype=np.float64)
         start = time.perf_counter()
         if self.matrix.shape[0] == 0:
             x, iterations = np.zeros_like(b), 0
         else:
             with single_threaded_blas():
-                x, iterations = self._solve(b)
+                x, iterations = self._solve(b, x0)
         elapsed = time.perf_counter() - start
         residual = relative_residual(self.matrix, x, b) if b.size else 0.0
         target = max(self.rtol, DIRECT_RESIDUAL_LIMIT) if self.method == "direct" else self.rtol
         converged = bool(np.isfinite(residual) and residual <= target)
         return x, SolveInfo(self.method, iterations, residual, converged,
                             self.setup_seconds, elapsed)
+
+    def solve_nearby(self, matrix, b: np.ndarray, x0: np.ndarray | None = None,
+                     max_iterations: int = 500) -> tuple[np.ndarray, SolveInfo]:
+        """Solve ``matrix @ x = b`` for one column by conjugate gradient preconditioned by this
+        set-up (made for a nearby matrix of the same size), from ``x0`` when given.
+
+        The returned :class:`SolveInfo` holds the residual measured against ``matrix``; its
+        ``converged`` says whether ``rtol`` was met (the caller decides what to do otherwise).
+        """
+        b = np.asarray(b, dtype=np.float64)
+        count = [0]
+
+        def tally(_):
+            count[0] += 1
+
+        start = time.perf_counter()
+        if matrix.shape[0] == 0 or not np.any(b):
+            x = np.zeros_like(b)
+        else:
+            with single_threaded_blas():
+                # Half the target, as in amg_cg: CG's recurrence residual drifts from the true one.
+                x, _ = spla.cg(matrix, b, x0=x0, rtol=0.5 * self.rtol, atol=0.0,
+                               maxiter=max_iterations, M=self.preconditioner(matrix), callback=tally)
+        elapsed = time.perf_counter() - start
+        residual = relative_residual(matrix, x, b) if b.size else 0.0
+        converged = bool(np.isfinite(residual) and residual <= self.rtol)
+        return x, SolveInfo(f"cg preconditioned by {self.method}", count[0], residual, converged,
+                            0.0, elapsed)

@@ -3,18 +3,24 @@
 from __future__ import annotations
 
 import time
+from dataclasses import replace
 
+from ohmgraph.engine.drop import DEFAULT_THRESHOLDS, supply_drop
 from ohmgraph.engine.solve import solve
 from ohmgraph.engine.solvers import DEFAULT_RTOL, SOLVERS, SolverFailed
-from ohmgraph.io.commands.argtypes import positive_float
+from ohmgraph.io.commands.argtypes import finite_float, positive_float
+from ohmgraph.io.drop_view import drop_datasets, thresholds_type
 from ohmgraph.io.atomic import refuse_existing, refuse_input
 from ohmgraph.io.check_view import format_report, report_to_dict
 from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, SolverError
 from ohmgraph.io.formats import HDF5, require_format
 from ohmgraph.io.jsonout import dumps
-from ohmgraph.io.reader import read_network_file
+from ohmgraph.engine.variant import apply_changes
+from ohmgraph.io.changes import CHANGES_NOTE, change_note, read_changes
+from ohmgraph.io.node_table import node_table_by_label, read_node_table
+from ohmgraph.io.reader import RATING_COLUMNS, NetworkFile, read_network_file
 from ohmgraph.io.solution_view import format_solution, solution_summary
-from ohmgraph.io.store import write_solution
+from ohmgraph.io.store import file_sha256, read_solution, voltages_by_label, write_solution
 
 
 def register(subparsers) -> None:
@@ -36,19 +42,66 @@ def register(subparsers) -> None:
                         help="reference (0 V) node label (default 0)")
     parser.add_argument("--allow-floating", action="store_true",
                         help="pin one node of every island without a path to the reference at 0 V")
+    parser.add_argument("--nodes", metavar="NODES.csv",
+                        help="node table: label,x,y and optionally layer (stored with the "
+                             "solution, used by 'map' and 'report')")
+    parser.add_argument("--nominal", type=finite_float, metavar="VOLTS",
+                        help="supply voltage of every net for the drop (default: the potential "
+                             "each net's source-held nodes are held at; 0 V for a ground net)")
+    parser.add_argument("--drop-thresholds", type=thresholds_type, default=DEFAULT_THRESHOLDS,
+                        metavar="LIST", help="drop thresholds to count nodes over, comma-"
+                                             "separated, such as 1%%,5%%,10mV (default "
+                                             "1%%,2%%,5%%,10%%)")
+    parser.add_argument("--changes", metavar="CHANGES.csv",
+                        help="change file, a branch table: a row naming a branch of NET sets its "
+                             "value (inf opens a resistor) and ratings, a row with a new name "
+                             "adds a branch")
+    parser.add_argument("--start-from", metavar="BASE.h5",
+                        help="stored solution of a nearby network to start the solver from "
+                             "(matched by node label; its node table is kept when --nodes is "
+                             "not given)")
     parser.add_argument("--force", action="store_true", help="overwrite OUT.h5 if it exists")
     parser.add_argument("--json", action="store_true", help="print the summary as JSON")
     parser.set_defaults(run=run)
 
 
+def read_inputs(args, base) -> tuple[NetworkFile, list]:
+    """The network file (network, reader's findings, ratings): taken from ``BASE.h5`` when NET
+    is the very file it was solved from (same SHA-256, same reference node, no change file
+    applied then), else read from NET; and the notes saying which."""
+    if (base is not None and base.attrs.get("input_sha256") == file_sha256(args.network)
+            and base.attrs["reference"] == args.ground
+            and not any(note.startswith(CHANGES_NOTE) for note in base.attrs.get("notes", []))):
+        ratings = {name: base.extra[f"branches/{name}"] for name in RATING_COLUMNS
+                   if f"branches/{name}" in base.extra}
+        return (NetworkFile(args.network, base.network, (), ratings),
+                [f"network taken from {args.start_from}: {args.network} is unchanged since "
+                 "(same SHA-256)"])
+    return read_network_file(args.network, ground=args.ground), []
+
+
 def run(args) -> int:
     """Run ``solve``; return the exit code (see :mod:`ohmgraph.io.errors`)."""
-    refuse_input(args.output, [args.network])
+    refuse_input(args.output, [args.network, args.nodes, args.changes, args.start_from])
     refuse_existing(args.output, args.force)
     require_format(args.output, (HDF5,), role="-o")
     start = time.perf_counter()
-    read = read_network_file(args.network, ground=args.ground)
-    net = read.network
+    base = read_solution(args.start_from) if args.start_from else None
+    read, notes = read_inputs(args, base)
+    if args.changes:
+        change_file = read_changes(args.changes, read.network)
+        read = replace(read, network=apply_changes(read.network, change_file.changes),
+                       ratings=change_file.changed_ratings(read.network, read.ratings))
+        notes.append(change_note(args.changes, change_file.changes))
+    net, ratings = read.network, read.ratings
+    nodes = read_node_table(args.nodes, net) if args.nodes else None
+    start_voltage = None
+    if base is not None:
+        start_voltage, matched = voltages_by_label(base, net)
+        notes.append(f"started from {args.start_from} ({matched:,} of {net.n_nodes:,} nodes "
+                     "matched by label)")
+        if nodes is None:
+            nodes = node_table_by_label(base, net)
     read_seconds = time.perf_counter() - start
 
     start = time.perf_counter()
@@ -61,13 +114,21 @@ def run(args) -> int:
 
     try:
         solution = solve(net, method=args.method, rtol=args.rtol,
-                         allow_floating=args.allow_floating, report=report)
+                         allow_floating=args.allow_floating, report=report,
+                         start_voltage=start_voltage)
     except SolverFailed as error:
         raise SolverError(f"{args.network}: {error}") from error
     solution.timings = {"read": read_seconds, **solution.timings, "check": check_seconds}
+    solution.notes += notes
+    start = time.perf_counter()
+    drop = supply_drop(net, solution.node_voltage, nominal=args.nominal,
+                       thresholds=args.drop_thresholds)
+    solution.timings["drop"] = time.perf_counter() - start
+    extra = {**drop_datasets(drop), **{f"branches/{k}": v for k, v in ratings.items()},
+             **(nodes.datasets() if nodes else {})}
     store_seconds = write_solution(args.output, solution, input_path=args.network,
-                                   force=args.force)
-    summary = solution_summary(solution, {"store": store_seconds})
+                                   force=args.force, extra=extra)
+    summary = solution_summary(solution, {"store": store_seconds}, drop)
     if args.json:
         print(dumps({"output": str(args.output), **summary}))
     else:

@@ -1,0 +1,133 @@
+"""Variants: change files, re-solves that reuse the base set-up or start from a stored
+solution, and diff — each checked against a fresh solve of the changed network."""
+
+from __future__ import annotations
+
+import json
+
+import h5py
+import numpy as np
+import pytest
+
+from ohmgraph.datasets.generators import grid2d, layered_mesh
+from ohmgraph.engine import Network, check, solve
+from ohmgraph.engine.formulation import assemble
+from ohmgraph.engine.network import RESISTOR
+from ohmgraph.engine.variant import BranchChanges, _updated_system, apply_changes, resolve
+from ohmgraph.io.cli import main
+
+DIVIDER = "name,kind,from,to,value\nV1,V,in,0,5\nR1,R,in,mid,2\nR2,R,mid,0,3\n"
+
+
+def _random_changes(net, fraction, seed):
+    rng = np.random.default_rng(seed)
+    resistors = np.flatnonzero(net.kind == RESISTOR)
+    index = np.sort(rng.choice(resistors, max(1, int(net.n_branches * fraction)), replace=False))
+    return BranchChanges(index, net.value[index] * rng.uniform(0.5, 2.0, index.size))
+
+
+def test_updated_system_equals_a_new_assembly():
+    net = layered_mesh(12, 12, 2, pads=3, loads=20, seed=4)
+    base = solve(net)
+    changes = _random_changes(net, 0.05, 1)
+    loads = np.flatnonzero(net.kind == 2)[:3]
+    changes = BranchChanges(np.concatenate([changes.index, loads]),
+                            np.concatenate([changes.value, net.value[loads] * 2]))
+    changed = apply_changes(net, changes)
+    updated = _updated_system(base, changed, changes.index)
+    report = check(changed)
+    fresh = assemble(changed, report.contraction, report.pinned_nodes)
+    np.testing.assert_allclose(updated.matrix.toarray(), fresh.matrix.toarray(), atol=1e-12)
+    np.testing.assert_allclose(updated.rhs, fresh.rhs, atol=1e-12)
+
+
+@pytest.mark.parametrize("side, method", [(20, "direct"), (120, "amg-cg")])
+def test_resolve_matches_a_fresh_solve(side, method):
+    net = grid2d(side, side, 1.0, pads=4, loads=side * side // 10, load_amps=1e-4, seed=1)
+    base = solve(net, method=method)
+    changes = _random_changes(net, 0.01, 2)
+    variant = resolve(base, changes)
+    fresh = solve(apply_changes(net, changes), method=method)
+    assert "base set-up" in variant.notes[0]
+    assert variant.relative_residual <= base.rtol
+    np.testing.assert_allclose(variant.node_voltage, fresh.node_voltage, atol=1e-8)
+    np.testing.assert_allclose(variant.branch_current, fresh.branch_current, atol=1e-8)
+    assert variant.kcl_max_residual < 1e-8
+
+
+def test_resolve_with_structural_changes_solves_afresh():
+    """The divider: opening R2 leaves 'mid' at 5 V; adding R3 = 3 ohm beside R2 gives
+    V(mid) = 5 * 1.5 / 3.5 (common practice: voltage divider)."""
+    net = Network.from_arrays(["in", "in", "mid"], ["0", "mid", "0"], [5.0, 2.0, 3.0],
+                              ["V", "R", "R"], names=["V1", "R1", "R2"])
+    base = solve(net)
+    added = BranchChanges(np.empty(0, np.int64), np.empty(0), np.array(["R3"]),
+                          np.array([RESISTOR], np.uint8), np.array(["mid"]), np.array(["0"]),
+                          np.array([3.0]))
+    variant = resolve(base, added)
+    mid = variant.network.node_index("mid")[0]
+    assert variant.node_voltage[mid] == pytest.approx(5 * 1.5 / 3.5)
+    assert "from scratch" in variant.notes[-1]
+    opened = resolve(base, BranchChanges(np.array([2]), np.array([np.inf])))
+    assert opened.network.n_branches == 2
+    assert opened.node_voltage[opened.network.node_index("mid")[0]] == pytest.approx(5.0)
+
+
+def run(capsys, *argv):
+    code = main([str(a) for a in argv])
+    out, err = capsys.readouterr()
+    return code, out + err
+
+
+def test_cli_variant_with_changes_and_warm_start(tmp_path, capsys):
+    (tmp_path / "d.csv").write_text(DIVIDER)
+    # R1 set to 1 ohm and R3 = 3 ohm added beside R2: 1 + 1.5 = 2.5 ohm, 2 A, V(mid) = 3 V
+    # (common practice: series and parallel resistors)
+    (tmp_path / "c.csv").write_text("name,kind,from,to,value\nR1,R,in,mid,1\nR3,R,mid,0,3\n")
+    assert run(capsys, "solve", tmp_path / "d.csv", "-o", tmp_path / "a.h5")[0] == 0
+    code, text = run(capsys, "solve", tmp_path / "d.csv", "--changes", tmp_path / "c.csv",
+                     "--start-from", tmp_path / "a.h5", "-o", tmp_path / "b.h5")
+    assert code == 0, text
+    assert "1 value(s) set" in text and "1 branch(es) added" in text and "started from" in text
+    with h5py.File(tmp_path / "b.h5") as h5:
+        names = h5["branches/name"].asstr()[...].tolist()
+        current = h5["branches/current"][...]
+    assert current[names.index("R1")] == pytest.approx(2.0)
+    assert current[names.index("R3")] == pytest.approx(1.0)
+    assert "network taken from" in text            # NET unchanged since a.h5: reused
+    # b.h5 holds a changed network: a run from it must read NET again
+    code, text = run(capsys, "solve", tmp_path / "d.csv", "--start-from", tmp_path / "b.h5",
+                     "-o", tmp_path / "again.h5")
+    assert code == 0 and "network taken from" not in text
+    with h5py.File(tmp_path / "again.h5") as h5:
+        assert h5["branches/name"].shape == (3,)
+    code, text = run(capsys, "diff", tmp_path / "a.h5", tmp_path / "b.h5", "--json")
+    result = json.loads(text)
+    assert code == 0 and result["branches"]["only_in_B"] == 1
+    assert result["voltage_change_V"]["largest_magnitude"] == pytest.approx(0.0, abs=1e-12)
+    changes = {row["branch"]: row["change"] for row in result["top_branches"]}
+    assert changes["R1"] == pytest.approx(1.0) and changes["V1"] == pytest.approx(-1.0)
+
+
+def test_cli_warm_start_matches_a_cold_solve_on_a_mesh(tmp_path, capsys):
+    net = grid2d(150, 150, 0.01, pads=6, loads=2000, load_amps=1e-3, supply_volts=0.9, seed=5)
+    from ohmgraph.io.branch_table import write_branch_table
+
+    write_branch_table(tmp_path / "m.csv", net)
+    rng = np.random.default_rng(3)
+    picked = rng.choice(np.flatnonzero(net.kind == RESISTOR), net.n_branches // 100,
+                        replace=False)
+    rows = "".join(f"{net.branch_names[k]},{float(net.value[k]) * 1.5!r}\n" for k in picked)
+    (tmp_path / "c.csv").write_text("name,value\n" + rows)
+    for argv in (["-o", tmp_path / "a.h5"],
+                 ["--changes", tmp_path / "c.csv", "-o", tmp_path / "cold.h5"],
+                 ["--changes", tmp_path / "c.csv", "--start-from", tmp_path / "a.h5",
+                  "-o", tmp_path / "warm.h5", "--method", "amg-cg"]):
+        code, text = run(capsys, "solve", tmp_path / "m.csv", *argv)
+        assert code == 0, text
+    with h5py.File(tmp_path / "cold.h5") as cold, h5py.File(tmp_path / "warm.h5") as warm:
+        np.testing.assert_allclose(warm["nodes/voltage"][...], cold["nodes/voltage"][...],
+                                   atol=1e-9)
+        assert warm.attrs["relative_residual"] <= 1e-10
+    code, text = run(capsys, "diff", tmp_path / "a.h5", tmp_path / "warm.h5", "--top", "3")
+    assert code == 0 and "largest voltage changes" in text and "worst drop" in text
