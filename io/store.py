@@ -38,6 +38,8 @@ from ohmgraph.engine.network import KIND_LETTERS, Network, kind_codes
 from ohmgraph.engine.solve import Solution
 from ohmgraph.io.atomic import atomic_output
 from ohmgraph.io.errors import InputError, OutputRefused
+from ohmgraph.io.hdf5_output import create_hdf5
+from ohmgraph.io.interrupts import checkpoint
 
 LAYOUT_VERSION = 1
 COMPRESS_FROM = 4096          # arrays shorter than this are stored contiguous, uncompressed
@@ -280,7 +282,7 @@ def write_solution(path, solution: Solution, *, input_path=None, force: bool = F
     root_attrs = _root_attrs(solution, input_path)
     try:
         with (atomic_output(path, force) as temporary,
-              h5py.File(temporary, "w", track_order=True) as h5):
+              create_hdf5(temporary, track_order=True) as h5):
             h5.attrs.update(root_attrs)
             nodes = h5.create_group("nodes")
             _put(nodes, "label", net.node_labels)
@@ -304,6 +306,7 @@ def write_solution(path, solution: Solution, *, input_path=None, force: bool = F
                 timings.attrs[stage] = float(seconds)
             elapsed = time.perf_counter() - start
             timings.attrs["store"] = elapsed
+            checkpoint("store")
     except OSError as error:
         raise OutputRefused(f"{path}: cannot be written ({error})") from error
     return elapsed

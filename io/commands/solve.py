@@ -11,6 +11,7 @@ from ohmgraph.io.commands.argtypes import positive_float
 from ohmgraph.io.atomic import refuse_existing, refuse_input
 from ohmgraph.io.check_view import format_report, report_to_dict
 from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, SolverError
+from ohmgraph.io.interrupts import checkpoint
 from ohmgraph.io.jsonout import dumps
 from ohmgraph.io.reader import read_network
 from ohmgraph.io.solution_view import format_solution, solution_summary
@@ -45,10 +46,12 @@ def run(args) -> int:
     """Run ``solve``; return the exit code (see :mod:`ohmgraph.io.errors`)."""
     refuse_input(args.output, [args.network])
     refuse_existing(args.output, args.force)
+    checkpoint("read")
     start = time.perf_counter()
     net = read_network(args.network, ground=args.ground)
     read_seconds = time.perf_counter() - start
 
+    checkpoint("check")
     start = time.perf_counter()
     report = check(net, allow_floating=args.allow_floating)
     check_seconds = time.perf_counter() - start
@@ -57,6 +60,7 @@ def run(args) -> int:
               else format_report(report, net, source=args.network))
         return EXIT_FAILED
 
+    checkpoint("solve")
     try:
         solution = solve(net, method=args.method, rtol=args.rtol,
                          allow_floating=args.allow_floating, report=report)

@@ -1,0 +1,93 @@
+"""SIGINT and SIGTERM sent to running ``ohmgraph solve`` processes at every stage.
+
+Each run reports its stages on standard error (``OHMGRAPH_TEST_STAGES``) and, for the paused
+cases, waits at one stage (``OHMGRAPH_TEST_PAUSE``), so the signal arrives at a known point
+without any timing guess. Exit codes 128 + signal number (130, 143) are the shell's convention
+(POSIX, "Shell Command Language", 2.8.2 Exit Status for Commands).
+"""
+
+from __future__ import annotations
+
+import os
+import signal
+import subprocess
+import sys
+
+import pytest
+
+from ohmgraph.datasets.generators import grid2d
+from ohmgraph.io.branch_table import write_branch_table
+
+DIVIDER = ("name,kind,from,to,value\nsupply,V,top,0,10\nr_upper,R,top,mid,1000\n"
+           "r_lower,R,mid,0,3000\nload,I,mid,0,0.002\n")
+TIMEOUT = 180          # seconds: generous, the machine may be loaded
+
+
+def start_solve(folder, network, pause=None, force=False):
+    """Start ``ohmgraph solve`` in ``folder``; it reports its stages on standard error."""
+    env = {**os.environ, "OHMGRAPH_TEST_STAGES": "1"}
+    if pause:
+        env["OHMGRAPH_TEST_PAUSE"] = pause
+    command = [sys.executable, "-m", "ohmgraph.io.cli", "solve", network, "-o", "out.h5"]
+    return subprocess.Popen(command + (["--force"] if force else []), cwd=folder, env=env,
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+
+
+def wait_for_stage(process, stage) -> list:
+    """Read standard error until the process reports ``stage``; return the lines read."""
+    lines = []
+    while True:
+        line = process.stderr.readline()
+        assert line, f"the process ended before stage {stage}: {lines}"
+        lines.append(line)
+        if line.strip() == f"ohmgraph: stage {stage}":
+            return lines
+
+
+def interrupt_at(folder, network, stage, signum, pause=True):
+    process = start_solve(folder, network, pause=stage if pause else None)
+    lines = wait_for_stage(process, stage)
+    process.send_signal(signum)
+    _, rest = process.communicate(timeout=TIMEOUT)
+    return process.returncode, "".join(lines) + rest
+
+
+@pytest.fixture
+def divider(tmp_path):
+    (tmp_path / "net.csv").write_text(DIVIDER)
+    return tmp_path
+
+
+CASES = [("read", signal.SIGINT), ("check", signal.SIGTERM), ("solve", signal.SIGINT),
+         ("store", signal.SIGTERM), ("store", signal.SIGINT), ("publish", signal.SIGINT),
+         ("published", signal.SIGTERM)]
+
+
+@pytest.mark.parametrize("stage, signum", CASES, ids=[f"{s}-{n.name}" for s, n in CASES])
+def test_a_signal_at_any_stage_leaves_nothing(divider, stage, signum):
+    code, err = interrupt_at(divider, "net.csv", stage, signum)
+    assert code == 128 + signum, err
+    messages = [line for line in err.splitlines() if not line.startswith("ohmgraph: stage")]
+    assert messages == [f"ohmgraph solve: interrupted by {signum.name}; no output was written"]
+    # the store stage had a partial temporary file, 'published' had the finished output
+    assert sorted(p.name for p in divider.iterdir()) == ["net.csv"]
+    assert (divider / "net.csv").read_text() == DIVIDER
+
+
+@pytest.fixture(scope="module")
+def grid(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("grid")
+    write_branch_table(folder / "grid.csv", grid2d(400, 400, pads=4, loads=40, seed=1))
+    return folder
+
+
+@pytest.mark.parametrize("stage, signum", [("check", signal.SIGINT), ("solve", signal.SIGTERM)])
+def test_a_signal_during_real_work_leaves_nothing(grid, tmp_path, stage, signum):
+    """No pause: the signal lands wherever the 400 x 400 solve happens to be."""
+    os.link(grid / "grid.csv", tmp_path / "grid.csv")
+    code, err = interrupt_at(tmp_path, "grid.csv", stage, signum, pause=False)
+    assert code == 128 + signum, err
+    assert "Traceback" not in err
+    assert err.splitlines()[-1] == (f"ohmgraph solve: interrupted by {signum.name}; "
+                                    "no output was written")
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["grid.csv"]
