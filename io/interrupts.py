@@ -14,7 +14,8 @@ that call returns.
 
 :func:`checkpoint` marks the stages of a run for tests: with ``OHMGRAPH_TEST_STAGES`` set it
 prints ``ohmgraph: stage NAME`` on standard error, and with ``OHMGRAPH_TEST_PAUSE=NAME`` it
-also waits there (up to :data:`PAUSE_SECONDS`), so a test can send a signal at a known stage.
+also waits there until its standard input is closed, so a test can send a signal at a known
+stage or release two runs together.
 """
 
 from __future__ import annotations
@@ -23,10 +24,8 @@ import contextlib
 import os
 import signal
 import sys
-import time
 
 SIGNALS = (signal.SIGINT, signal.SIGTERM)
-PAUSE_SECONDS = 120.0
 
 
 class Interrupted(KeyboardInterrupt):
@@ -107,6 +106,4 @@ def checkpoint(stage: str) -> None:
         return
     print(f"ohmgraph: stage {stage}", file=sys.stderr, flush=True)
     if os.environ.get("OHMGRAPH_TEST_PAUSE") == stage:
-        deadline = time.monotonic() + PAUSE_SECONDS
-        while time.monotonic() < deadline:
-            time.sleep(0.05)
+        sys.stdin.read()

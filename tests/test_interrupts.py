@@ -1,8 +1,7 @@
 """SIGINT and SIGTERM sent to running ``ohmgraph solve`` processes at every stage.
 
-Each run reports its stages on standard error (``OHMGRAPH_TEST_STAGES``) and, for the paused
-cases, waits at one stage (``OHMGRAPH_TEST_PAUSE``), so the signal arrives at a known point
-without any timing guess. Exit codes 128 + signal number (130, 143) are the shell's convention
+Each run reports its stages on standard error and, for the paused cases, waits at one stage
+(``tests/solve_process.py``), so the signal arrives at a known point without any timing guess. Exit codes 128 + signal number (130, 143) are the shell's convention
 (POSIX, "Shell Command Language", 2.8.2 Exit Status for Commands).
 """
 
@@ -10,46 +9,25 @@ from __future__ import annotations
 
 import os
 import signal
-import subprocess
-import sys
 
 import pytest
 
 from ohmgraph.datasets.generators import grid2d
 from ohmgraph.io.branch_table import write_branch_table
 
+from solve_process import TIMEOUT, finish, messages, start_solve, wait_for_stage
+
 DIVIDER = ("name,kind,from,to,value\nsupply,V,top,0,10\nr_upper,R,top,mid,1000\n"
            "r_lower,R,mid,0,3000\nload,I,mid,0,0.002\n")
-TIMEOUT = 180          # seconds: generous, the machine may be loaded
-
-
-def start_solve(folder, network, pause=None, force=False):
-    """Start ``ohmgraph solve`` in ``folder``; it reports its stages on standard error."""
-    env = {**os.environ, "OHMGRAPH_TEST_STAGES": "1"}
-    if pause:
-        env["OHMGRAPH_TEST_PAUSE"] = pause
-    command = [sys.executable, "-m", "ohmgraph.io.cli", "solve", network, "-o", "out.h5"]
-    return subprocess.Popen(command + (["--force"] if force else []), cwd=folder, env=env,
-                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
-
-
-def wait_for_stage(process, stage) -> list:
-    """Read standard error until the process reports ``stage``; return the lines read."""
-    lines = []
-    while True:
-        line = process.stderr.readline()
-        assert line, f"the process ended before stage {stage}: {lines}"
-        lines.append(line)
-        if line.strip() == f"ohmgraph: stage {stage}":
-            return lines
 
 
 def interrupt_at(folder, network, stage, signum, pause=True):
     process = start_solve(folder, network, pause=stage if pause else None)
     lines = wait_for_stage(process, stage)
     process.send_signal(signum)
-    _, rest = process.communicate(timeout=TIMEOUT)
-    return process.returncode, "".join(lines) + rest
+    process.wait(timeout=TIMEOUT)          # still paused: standard input stays open till now
+    code, _, err = finish(process, lines)
+    return code, err
 
 
 @pytest.fixture
@@ -67,8 +45,7 @@ CASES = [("read", signal.SIGINT), ("check", signal.SIGTERM), ("solve", signal.SI
 def test_a_signal_at_any_stage_leaves_nothing(divider, stage, signum):
     code, err = interrupt_at(divider, "net.csv", stage, signum)
     assert code == 128 + signum, err
-    messages = [line for line in err.splitlines() if not line.startswith("ohmgraph: stage")]
-    assert messages == [f"ohmgraph solve: interrupted by {signum.name}; no output was written"]
+    assert messages(err) == [f"ohmgraph solve: interrupted by {signum.name}; no output was written"]
     # the store stage had a partial temporary file, 'published' had the finished output
     assert sorted(p.name for p in divider.iterdir()) == ["net.csv"]
     assert (divider / "net.csv").read_text() == DIVIDER
