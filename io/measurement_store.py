@@ -29,6 +29,7 @@ import numpy as np
 
 from ohmgraph.io.atomic import atomic_output
 from ohmgraph.io.errors import InputError, OutputRefused
+from ohmgraph.io.hdf5_output import create_hdf5
 from ohmgraph.io.store import (decode_strings, encode_strings, file_sha256, flatten_attrs,
                                tool_version)
 
@@ -112,7 +113,7 @@ def write_results(path, name: str, columns: dict, *, units: dict | None = None,
         with atomic_output(path, force or append) as temporary:
             if append:
                 shutil.copyfile(path, temporary)
-            with h5py.File(temporary, "a" if append else "w") as h5:
+            with create_hdf5(temporary, "a" if append else "w") as h5:
                 if not append:
                     h5.attrs.update({**provenance, "result": name})
                 if name in h5:

@@ -19,6 +19,7 @@ import pandas as pd
 from ohmgraph.engine.network import Network
 from ohmgraph.io.atomic import atomic_output
 from ohmgraph.io.errors import InputError
+from ohmgraph.io.hdf5_output import create_hdf5
 
 PAIR_COLUMNS = ("a", "b")
 HDF5_SUFFIXES = (".h5", ".hdf5")
@@ -124,7 +125,7 @@ def write_table(path, columns: dict, force: bool = False, attributes: dict | Non
 def _write_hdf5(path: Path, frame: pd.DataFrame, attributes: dict) -> None:
     import h5py
 
-    with h5py.File(path, "w") as store:
+    with create_hdf5(path) as store:
         group = store.create_group(HDF5_GROUP)
         for name in frame.columns:
             values = frame[name].to_numpy()
