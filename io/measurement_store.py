@@ -29,11 +29,11 @@ import numpy as np
 
 from ohmgraph.io.atomic import atomic_output
 from ohmgraph.io.errors import InputError, OutputRefused
+from ohmgraph.io.hdf5_integrity import (FILE_OPTIONS, check_file, dataset_options,
+                                        seal_attributes)
 from ohmgraph.io.hdf5_output import create_hdf5
 from ohmgraph.io.store import (decode_strings, encode_strings, file_sha256, flatten_attrs,
                                tool_version)
-
-COMPRESS_FROM = 4096
 
 
 def _plain_array(values) -> np.ndarray:
@@ -57,11 +57,12 @@ def refuse_existing_group(path, name: str, force: bool) -> None:
         if Path(path).is_dir():
             raise OutputRefused(f"{path}: is a folder, not an HDF5 file")
         with h5py.File(path, "r") as h5:
+            check_file(h5, path)
             present = name in h5
     except FileNotFoundError:
         raise OutputRefused(f"{path}: does not exist (--append adds to an existing HDF5 "
                             "file)") from None
-    except OSError as error:
+    except (OSError, RuntimeError, ValueError) as error:
         raise OutputRefused(f"{path}: not a readable HDF5 file ({error})") from None
     if present and not force:
         raise OutputRefused(f"{path}: already holds '/{name}' (use --force to replace it)")
@@ -113,19 +114,16 @@ def write_results(path, name: str, columns: dict, *, units: dict | None = None,
         with atomic_output(path, force or append) as temporary:
             if append:
                 shutil.copyfile(path, temporary)
-            with create_hdf5(temporary, "a" if append else "w") as h5:
+            with create_hdf5(temporary, "a" if append else "w", **FILE_OPTIONS) as h5:
                 if not append:
                     h5.attrs.update({**provenance, "result": name})
+                    seal_attributes(h5)
                 if name in h5:
                     del h5[name]
                 group = h5.create_group(name)
                 for column, values in {**columns, **(matrices or {})}.items():
                     data = _plain_array(values)
-                    options = {}
-                    if data.size >= COMPRESS_FROM and data.dtype.kind != "S":
-                        options = dict(chunks=True, compression="gzip", compression_opts=1,
-                                       shuffle=True)
-                    dataset = group.create_dataset(column, data=data, **options)
+                    dataset = group.create_dataset(column, data=data, **dataset_options(data))
                     if column in units:
                         dataset.attrs["units"] = units[column]
                 _set_attrs(group, {**provenance, **(attrs or {})})

@@ -19,7 +19,6 @@ import pandas as pd
 from ohmgraph.engine.network import Network
 from ohmgraph.io.atomic import atomic_output
 from ohmgraph.io.errors import InputError
-from ohmgraph.io.hdf5_output import create_hdf5
 
 PAIR_COLUMNS = ("a", "b")
 HDF5_SUFFIXES = (".h5", ".hdf5")
@@ -125,14 +124,17 @@ def write_table(path, columns: dict, force: bool = False, attributes: dict | Non
 def _write_hdf5(path: Path, frame: pd.DataFrame, attributes: dict) -> None:
     import h5py
 
-    with create_hdf5(path) as store:
+    from ohmgraph.io.hdf5_integrity import FILE_OPTIONS, dataset_options
+    from ohmgraph.io.hdf5_output import create_hdf5
+    from ohmgraph.io.store import encode_strings
+
+    with create_hdf5(path, **FILE_OPTIONS) as store:
         group = store.create_group(HDF5_GROUP)
         for name in frame.columns:
             values = frame[name].to_numpy()
-            if values.dtype.kind in "OUS":
-                group.create_dataset(name, data=values.astype(str).astype(object),
-                                     dtype=h5py.string_dtype("utf-8"))
-            else:
-                group.create_dataset(name, data=values)
+            if values.dtype.kind in "OUS":        # fixed-length UTF-8: filters need fixed sizes
+                encoded = encode_strings(values.astype(str))
+                values = encoded.view(h5py.string_dtype("utf-8", encoded.dtype.itemsize))
+            group.create_dataset(name, data=values, **dataset_options(values))
         for key, value in attributes.items():
             group.attrs[key] = value

@@ -14,11 +14,15 @@ reads the file):
 * root attributes: provenance (tool version, input file name and SHA-256, creation time) and
   the evidence of the solve (method, tolerance, iterations, residuals, power balance).
 
-Large arrays are chunked and compressed with gzip level 1 plus the shuffle filter. On 2M-element
-float64 arrays LZF wrote about twice as fast, but LZF is a filter bundled with h5py, not with
-the HDF5 library, so other tools could not open the file; gzip (deflate) ships with every HDF5
-build. Files are written through :func:`ohmgraph.io.atomic.atomic_output`, so a failure never
-leaves a partial file.
+Every array is chunked and carries the Fletcher-32 checksum filter, and the root attribute
+``attrs_sha256`` is the SHA-256 of the other root attributes (:mod:`ohmgraph.io.hdf5_integrity`),
+so damage after writing is found on reading. Large arrays are also compressed with gzip level 1
+plus the shuffle filter. On 2M-element float64 arrays LZF wrote about twice as fast, but LZF is
+a filter bundled with h5py, not with the HDF5 library, so other tools could not open the file;
+gzip (deflate) and Fletcher-32 ship with every HDF5 build. Files are written through
+:func:`ohmgraph.io.atomic.atomic_output`, so a failure never leaves a partial file.
+
+Layout versions: 1 (no checksums, no digest) is still read; 2 adds the checksums and the digest.
 """
 
 from __future__ import annotations
@@ -38,13 +42,13 @@ from ohmgraph.engine.network import KIND_LETTERS, Network, kind_codes
 from ohmgraph.engine.solve import Solution
 from ohmgraph.io.atomic import atomic_output
 from ohmgraph.io.errors import InputError, OutputRefused
+from ohmgraph.io.hdf5_integrity import (FILE_OPTIONS, check_attributes, dataset_options,
+                                        read_dataset, seal_attributes)
 from ohmgraph.io.hdf5_output import create_hdf5
 from ohmgraph.io.interrupts import checkpoint
 
-LAYOUT_VERSION = 1
-COMPRESS_FROM = 4096          # arrays shorter than this are stored contiguous, uncompressed
-CHUNK_ELEMENTS = 1 << 18
-GZIP_LEVEL = 1
+LAYOUT_VERSION = 2
+READABLE_LAYOUTS = (1, 2)
 
 REQUIRED_DATASETS = (
     "nodes/label", "nodes/voltage",
@@ -152,11 +156,7 @@ def _put(group: h5py.Group, name: str, data) -> None:
     if data.dtype.kind == "U":
         encoded = encode_strings(data)
         data = encoded.view(h5py.string_dtype("utf-8", encoded.dtype.itemsize))
-    options = {}
-    if data.size >= COMPRESS_FROM:
-        options = dict(chunks=(min(data.size, CHUNK_ELEMENTS),), compression="gzip",
-                       compression_opts=GZIP_LEVEL, shuffle=True)
-    dataset = group.create_dataset(name, data=data, **options)
+    dataset = group.create_dataset(name, data=data, **dataset_options(data))
     key = f"{group.name.strip('/')}/{name}"
     if key in UNITS:
         dataset.attrs["units"] = UNITS[key]
@@ -282,8 +282,9 @@ def write_solution(path, solution: Solution, *, input_path=None, force: bool = F
     root_attrs = _root_attrs(solution, input_path)
     try:
         with (atomic_output(path, force) as temporary,
-              create_hdf5(temporary, track_order=True) as h5):
+              create_hdf5(temporary, track_order=True, **FILE_OPTIONS) as h5):
             h5.attrs.update(root_attrs)
+            seal_attributes(h5)
             nodes = h5.create_group("nodes")
             _put(nodes, "label", net.node_labels)
             _put(nodes, "voltage", solution.node_voltage)
@@ -323,8 +324,8 @@ def _plain(value):
     return value
 
 
-def _dataset(h5: h5py.File, name: str) -> np.ndarray:
-    data = h5[name][...]
+def _dataset(h5: h5py.File, name: str, path) -> np.ndarray:
+    data = read_dataset(h5[name], path)
     if data.dtype.kind == "S":
         return decode_strings(data)
     return data
@@ -335,10 +336,11 @@ def _read_findings(h5: h5py.File, path) -> tuple[list, dict]:
         return [], {}
     group = h5["checks"]
     try:
-        codes, severities, messages = (group[n].asstr()[...].tolist()
+        codes, severities, messages = (_dataset(group, n, path).tolist()
                                        for n in ("code", "severity", "message"))
-        nodes, node_offsets = group["nodes"][...], group["node_offsets"][...]
-        branches, branch_offsets = group["branches"][...], group["branch_offsets"][...]
+        nodes, node_offsets, branches, branch_offsets = (
+            read_dataset(group[n], path)
+            for n in ("nodes", "node_offsets", "branches", "branch_offsets"))
     except KeyError as error:
         raise InputError(f"{path}: /checks is incomplete ({error})") from error
     findings = [Finding(severity, code, message,
@@ -377,31 +379,67 @@ def _check_types(path, attrs: dict) -> None:
         raise InputError(f"{path}: root attribute 'notes' is {notes!r}, expected a list of text")
 
 
+def _check_layout(path, h5: h5py.File, attrs: dict) -> None:
+    """Refuse unknown layout versions; from version 2 on, check the attribute digest."""
+    version = attrs.get("layout_version", 1)
+    if version not in READABLE_LAYOUTS:
+        raise InputError(f"{path}: layout version {version!r} is not one this ohmgraph reads "
+                         f"({', '.join(map(str, READABLE_LAYOUTS))}); a newer version wrote it?")
+    if version >= 2:
+        check_attributes(h5, path)
+
+
+def _read_arrays(h5: h5py.File, path) -> tuple:
+    """Attributes, arrays, findings and timings of an open solution file, checked for damage."""
+    missing = [name for name in REQUIRED_DATASETS if name not in h5]
+    if missing:
+        raise InputError(f"{path}: not an ohmgraph solution file: missing dataset "
+                         f"/{missing[0]}" + (f" and {len(missing) - 1} more" if len(missing) > 1
+                                              else ""))
+    attrs = {key: _plain(value) for key, value in h5.attrs.items()}
+    absent = [name for name in REQUIRED_ATTRIBUTES if name not in attrs]
+    if absent:
+        raise InputError(f"{path}: not an ohmgraph solution file: missing root attribute "
+                         f"{absent[0]!r}")
+    _check_types(path, attrs)
+    _check_layout(path, h5, attrs)
+    _check_lengths(path, h5)
+    data = {name: _dataset(h5, name, path) for name in REQUIRED_DATASETS}
+    findings, check_summary = _read_findings(h5, path)
+    timings = ({stage: _plain(seconds) for stage, seconds in h5["timings"].attrs.items()
+                if stage != "units"} if "timings" in h5 else {})
+    return attrs, data, findings, check_summary, timings
+
+
+def _check_lengths(path, h5: h5py.File) -> None:
+    """Every ``/nodes`` and every ``/branches`` array is one-dimensional, of one length."""
+    for group in ("nodes", "branches"):
+        names = [name for name in REQUIRED_DATASETS if name.startswith(f"{group}/")]
+        shapes = {name: h5[name].shape for name in names}
+        first = names[0]
+        for name, shape in shapes.items():
+            if len(shape) != 1 or shape != shapes[first]:
+                raise InputError(f"{path}: /{name} has shape {shape}, but /{first} has "
+                                 f"{shapes[first]}: the file is damaged or not ohmgraph's")
+
+
 def read_solution(path) -> StoredSolution:
-    """Read a solution written by :func:`write_solution`.
+    """Read a solution written by :func:`write_solution` (any layout in ``READABLE_LAYOUTS``).
 
     Raises
     ------
     InputError
-        If the file is missing, is not HDF5, lacks a required dataset or attribute, or its
-        arrays do not fit together; the message names the file and what is wrong.
+        If the file is missing, is not HDF5, is damaged (a failed checksum, attributes that do
+        not match their digest, sizes its stored bytes cannot hold), lacks a required dataset
+        or attribute, or its arrays do not fit together; the message names the file and what
+        is wrong.
     """
     with _open(path) as h5:
-        missing = [name for name in REQUIRED_DATASETS if name not in h5]
-        if missing:
-            raise InputError(f"{path}: not an ohmgraph solution file: missing dataset "
-                             f"/{missing[0]}" + (f" and {len(missing) - 1} more" if len(missing) > 1
-                                                  else ""))
-        attrs = {key: _plain(value) for key, value in h5.attrs.items()}
-        absent = [name for name in REQUIRED_ATTRIBUTES if name not in attrs]
-        if absent:
-            raise InputError(f"{path}: not an ohmgraph solution file: missing root attribute "
-                             f"{absent[0]!r}")
-        _check_types(path, attrs)
-        data = {name: _dataset(h5, name) for name in REQUIRED_DATASETS}
-        findings, check_summary = _read_findings(h5, path)
-        timings = ({stage: _plain(seconds) for stage, seconds in h5["timings"].attrs.items()
-                    if stage != "units"} if "timings" in h5 else {})
+        try:
+            attrs, data, findings, check_summary, timings = _read_arrays(h5, path)
+        except (OSError, RuntimeError, KeyError, ValueError) as error:
+            raise InputError(f"{path}: damaged: HDF5 cannot read its structure ({error})") \
+                from None
     for names, kinds, what in ((INDEX_DATASETS, "iu", "integer"),
                                (NUMBER_DATASETS, "iuf", "number")):
         for name in names:
