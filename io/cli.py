@@ -21,7 +21,7 @@ from . import atomic, interrupts
 from .errors import EXIT_BAD_INPUT, EXIT_OK, UserError
 
 COMMANDS = ["check", "solve", "show", "generate", "demo", "compare", "diagnose", "tolerance",
-            "resistance"]
+            "resistance", "verify"]
 
 
 def build_parser() -> argparse.ArgumentParser:

@@ -191,6 +191,10 @@ REFUSED = [
     ("show notes_number.h5", EXIT_BAD_INPUT, "'notes' is 5"),
     ("show float_index.h5", EXIT_BAD_INPUT, "/branches/from holds float64"),
     ("show timing_text.h5", EXIT_BAD_INPUT, "/timings"),
+    ("verify foreign.h5", EXIT_BAD_INPUT, "not an ohmgraph solution file"),
+    ("verify truncated.h5", EXIT_BAD_INPUT, "not an HDF5 file"),
+    ("verify sol.h5 missing.csv", EXIT_BAD_INPUT, "missing.csv: no such file"),
+    ("verify sol.h5 garbage.csv", EXIT_BAD_INPUT, "garbage.csv"),
     # measurement tables
     ("compare net.csv meas_inf.csv --accuracy 1%", EXIT_BAD_INPUT,
      "meas_inf.csv:2: column 'value': 'inf' is not a finite number"),
