@@ -66,14 +66,14 @@ def _evidence(stored) -> list[dict]:
 
 
 def _belongs(stored, path) -> list[dict]:
+    given = read_network(path, ground=stored.attrs["reference"])
     recorded = stored.attrs.get("input_sha256")
     digest = file_sha256(path)
     same_file = {"check": f"input file SHA-256 matches {path}", "rows": 1, "over": "file",
                  "failed": int(recorded != digest), "first_failures": [] if recorded == digest
                  else [{"row": "file", "stored": recorded or "(none recorded)",
                         "expected": digest}]}
-    differences = network_differences(stored.network,
-                                      read_network(path, ground=stored.attrs["reference"]))
+    differences = network_differences(stored.network, given)
     same_network = {"check": f"every branch matches {path}", "rows": stored.network.n_branches,
                     "over": "branch", "failed": len(differences),
                     "first_failures": [{"row": text} for text in differences[:FIRST_ROWS]]}
