@@ -18,7 +18,8 @@ import sys
 import numpy as np
 
 from . import atomic, interrupts
-from .errors import EXIT_BAD_INPUT, EXIT_OK, UserError
+from .errors import EXIT_BAD_INPUT, EXIT_NO_MEMORY, EXIT_OK, UserError
+from .memory_guard import OUT_OF_MEMORY
 
 COMMANDS = ["check", "solve", "show", "generate", "demo", "compare", "diagnose", "tolerance",
             "resistance", "verify"]
@@ -76,9 +77,8 @@ def _run(args) -> int:
         print(f"ohmgraph {args.command}: error: {error}", file=sys.stderr)
         return error.exit_code
     except MemoryError:
-        print(f"ohmgraph {args.command}: error: not enough memory for this input or size",
-              file=sys.stderr)
-        return EXIT_BAD_INPUT
+        print(f"ohmgraph {args.command}: error: {OUT_OF_MEMORY}", file=sys.stderr)
+        return EXIT_NO_MEMORY
     except BrokenPipeError:
         # The reader of our output (``| head``) went away: stop quietly, as other tools do.
         os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())

@@ -13,6 +13,7 @@ from ohmgraph.io.check_view import format_report, report_to_dict
 from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, SolverError
 from ohmgraph.io.interrupts import checkpoint
 from ohmgraph.io.jsonout import dumps
+from ohmgraph.io.memory_guard import refuse_if_too_big
 from ohmgraph.io.reader import read_network
 from ohmgraph.io.solution_view import format_solution, solution_summary
 from ohmgraph.io.store import write_solution
@@ -50,6 +51,7 @@ def run(args) -> int:
     start = time.perf_counter()
     net = read_network(args.network, ground=args.ground)
     read_seconds = time.perf_counter() - start
+    refuse_if_too_big(net, args.method, args.network)
 
     checkpoint("check")
     start = time.perf_counter()
