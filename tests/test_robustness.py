@@ -18,8 +18,8 @@ import pytest
 
 import ohmgraph.datasets.generators as generators
 from ohmgraph.io.cli import main
-from ohmgraph.io.errors import (EXIT_BAD_INPUT, EXIT_FAILED, EXIT_OK, EXIT_OUTPUT_REFUSED,
-                                EXIT_SOLVER_FAILED)
+from ohmgraph.io.errors import (EXIT_BAD_INPUT, EXIT_FAILED, EXIT_NO_MEMORY, EXIT_OK,
+                                EXIT_OUTPUT_REFUSED, EXIT_SOLVER_FAILED)
 
 # A loaded divider: 10 V across 1 kohm + 3 kohm, 2 mA drawn from the middle.
 NET = ("name,kind,from,to,value\nsupply,V,top,0,10\nr_upper,R,top,mid,1000\n"
@@ -294,5 +294,5 @@ def test_running_out_of_memory_is_a_message(workspace, capsys, monkeypatch):
     monkeypatch.setattr(generators, "grid2d", too_large)
     before = snapshot(workspace)
     code, text = run_cli(["generate", "grid2d", "100000", "100000", "-o", "big.csv"], capsys)
-    assert code == EXIT_BAD_INPUT and "not enough memory" in text
+    assert code == EXIT_NO_MEMORY and "ran out of memory (an allocation failed)" in text
     assert snapshot(workspace) == before
