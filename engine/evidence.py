@@ -4,20 +4,20 @@ Every check compares a stored quantity with one recomputed from other stored qua
 row, and passes where ``|error| <= tolerance``. With ε the unit roundoff of binary64
 (``2.2e-16``) and ``ρ = max(rtol, relative_residual)`` as stored:
 
-==================  ====================================  ======================================
-check               error                                 tolerance
-==================  ====================================  ======================================
-branch voltage      ``v - (V(from) - V(to))``             ``4ε (|V(from)| + |V(to)|)``
-Ohm's law (R > 0)   ``I·R - v``                           ``4ε |v|``
-ideal link (R = 0)  ``v``                                 ``4ε (|V(from)| + |V(to)|)``
-voltage source      ``v - value``                         ``64ε (|V(from)| + |V(to)| + |value|)``
-current source      ``I - value``                         ``ε |value|``
-branch power        ``p - v·I``                           ``4ε |v·I|``
-KCL at every node   ``k(n)``, net current leaving ``n``   ``(d(n) + 4)ε s(n) + (ρ + 64ε) S``
-power balance       ``Σ p - Σ V(n) k(n)``                 ``2ε [(log2(m+2) + 9) Σ|p|
-                                                          + (log2(N+2) + 8) Σ|V(n) k(n)|
-                                                          + Σ (d(n) + 1) |V(n)| s(n)]``
-==================  ====================================  ======================================
+=================  ===============================  =====================================
+check              error                            tolerance
+=================  ===============================  =====================================
+branch voltage     ``v - (V(from) - V(to))``        ``4ε (|V(from)| + |V(to)|)``
+Ohm's law, R > 0   ``I·R - v``                      ``4ε |v|``
+ideal link, R = 0  ``v``                            ``4ε (|V(from)| + |V(to)|)``
+voltage source     ``v - value``                    ``64ε (|V(from)| + |V(to)| + |value|)``
+current source     ``I - value``                    ``ε |value|``
+branch power       ``p - v·I``                      ``4ε |v·I|``
+KCL at node n      ``k(n)``: net current leaving n  ``(d(n) + 4)ε s(n) + (ρ + 64ε) S``
+power balance      ``Σ p - Σ V(n) k(n)``            ``2ε [(log2(m+2) + 9) Σ|p| +
+                                                    (log2(N+2) + 8) Σ|V(n) k(n)| +
+                                                    Σ (d(n) + 1) |V(n)| s(n)]``
+=================  ===============================  =====================================
 
 where ``s(n)`` is the sum of ``|I|`` over the ``d(n)`` branches at node ``n``, ``S = Σ|I|``
 over all ``m`` branches and ``N`` the number of nodes. The branch rows repeat the engine's own

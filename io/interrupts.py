@@ -3,10 +3,10 @@
 While :func:`handling` is active the first of these signals raises :class:`Interrupted` in the
 main thread, which unwinds through every ``finally`` and
 :func:`ohmgraph.io.atomic.atomic_output` block; later signals are only recorded, so clean-up is
-never cut short. The signal is also remembered, so a run whose exception was swallowed somewhere
-(a library's ``__del__``, for example) still ends as interrupted when it finishes. Code that must not be cut in half — the
-publishing of a finished file and the final clean-up — runs under :func:`deferred`: a signal
-arriving there is held and raised when the block ends.
+never cut short. The signal is also remembered, so a run whose exception was swallowed
+somewhere (a library's ``__del__``, for example) still ends as interrupted when it finishes.
+Code that must not be cut in half — the publishing of a finished file and the final clean-up —
+runs under :func:`deferred`: a signal arriving there is held and raised when the block ends.
 
 Python runs signal handlers between bytecodes of the main thread, so a signal that arrives in
 the middle of a long compiled call (a sparse factorisation, a numba kernel) takes effect when

@@ -1,8 +1,9 @@
 """SIGINT and SIGTERM sent to running ``ohmgraph solve`` processes at every stage.
 
 Each run reports its stages on standard error and, for the paused cases, waits at one stage
-(``tests/solve_process.py``), so the signal arrives at a known point without any timing guess. Exit codes 128 + signal number (130, 143) are the shell's convention
-(POSIX, "Shell Command Language", 2.8.2 Exit Status for Commands).
+(``tests/solve_process.py``), so the signal arrives at a known point without any timing guess.
+Exit codes 128 + signal number (130, 143) are the shell's convention (POSIX, "Shell Command
+Language", 2.8.2 Exit Status for Commands).
 """
 
 from __future__ import annotations
