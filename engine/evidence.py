@@ -2,7 +2,7 @@
 
 Every check compares a stored quantity with one recomputed from other stored quantities, row by
 row, and passes where ``|error| <= tolerance``. With ε the unit roundoff of binary64
-(``2.2e-16``) and ``ρ = max(rtol, relative_residual)`` as stored:
+(``1.1e-16``) and ``ρ = max(rtol, relative_residual)`` as stored:
 
 =================  ===============================  =====================================
 check              error                            tolerance
