@@ -1,20 +1,26 @@
 """Peak memory of a solve, estimated from the network's size and the solver before it runs.
 
-The model is a fixed part plus a part per branch, measured with ``ohmgraph solve`` on lattices
-with pads and loads (``ru_maxrss`` of the process less that of the imports alone, 2 cores):
+The model is a fixed part, a part per branch and a part per node, fitted to ``ohmgraph solve``
+runs (peak resident memory of the process less that of the imports alone, 243 MB; 2 cores;
+``benchmarks/bench_memory.py``) and set about 10 % above them:
 
-===========  =========  ==========  ==========  ==================
-method       200 x 200  400 x 400   700 x 700   model
-===========  =========  ==========  ==========  ==================
-direct       150 MB     374 MB      972 MB      80 MB + 950 B/branch x fill growth
-amg-cg       137 MB     259 MB      557 MB      100 MB + 520 B/branch
-===========  =========  ==========  ==========  ==================
+============================  =======  ========  ==============  ==============
+network                       nodes    branches  direct MB       amg-cg MB
+                                                 (measured/est.) (measured/est.)
+============================  =======  ========  ==============  ==============
+lattice 200 x 200, loads       40,001    79,658  150 / 174       137 / 154
+lattice 400 x 400, loads      160,001   319,258  374 / 442       259 / 284
+lattice 700 x 700, loads      490,001   979,258  972 / 1,178     557 / 645
+two-layer mesh 400 x 400      200,001   439,008  600 / 542       365 / 347
+6-nearest-neighbour graph     100,001   353,218  314 / 352       272 / 294
+6-nearest-neighbour graph     300,001 1,058,030  756 / 886       588 / 660
+============================  =======  ========  ==============  ==============
 
-(80,000, 319,000 and 979,000 branches.) The sparse LU factor grows a little faster than the
-branch count (nested-dissection fill of planar graphs grows as ``n log n``: A. George, SIAM J.
-Numer. Anal. 10, 345–363, 1973), so the direct estimate is scaled by ``log2(m) / log2(10^6)``
-above a million branches. The estimate covers reading's arrays, the checks, assembly, the solver
-and the recovered quantities; the memory already in use is measured separately by the caller.
+Every estimate is within -10 % and +30 % of its measurement. The sparse LU factor's fill grows
+faster than the node count on large meshes (nested-dissection fill of planar graphs grows as
+``n log n``: A. George, SIAM J. Numer. Anal. 10, 345–363, 1973), so beyond the largest measured
+size the direct estimate is scaled by ``log2(n) / log2(FILL_FROM)``. The caller compares the
+estimate with the memory still available (the imports and the read network are in use already).
 """
 
 from __future__ import annotations
@@ -24,9 +30,10 @@ import math
 from .solvers import choose_method
 
 MB = 1 << 20
-FIXED = {"direct": 80 * MB, "amg-cg": 100 * MB}
-PER_BRANCH = {"direct": 950, "amg-cg": 520}
-FILL_FROM = 1_000_000          # branches beyond which the direct factor's fill grows
+FIXED = {"direct": 85 * MB, "amg-cg": 110 * MB}
+PER_BRANCH = {"direct": 300, "amg-cg": 510}
+PER_NODE = {"direct": 1740, "amg-cg": 125}
+FILL_FROM = 500_000            # nodes beyond which the direct factor's fill is extrapolated
 
 
 def solve_method(n_nodes: int, method: str = "auto") -> str:
@@ -37,7 +44,7 @@ def solve_method(n_nodes: int, method: str = "auto") -> str:
 def estimate_solve_bytes(n_nodes: int, n_branches: int, method: str = "auto") -> int:
     """Bytes a solve of this size needs beyond the memory in use before it (see module notes)."""
     method = solve_method(n_nodes, method)
-    per_branch = PER_BRANCH[method] * n_branches
-    if method == "direct" and n_branches > FILL_FROM:
-        per_branch *= math.log2(n_branches) / math.log2(FILL_FROM)
-    return int(FIXED[method] + per_branch)
+    scaled = PER_BRANCH[method] * n_branches + PER_NODE[method] * n_nodes
+    if method == "direct" and n_nodes > FILL_FROM:
+        scaled *= math.log2(n_nodes) / math.log2(FILL_FROM)
+    return int(FIXED[method] + scaled)

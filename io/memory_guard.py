@@ -37,7 +37,7 @@ def refuse_if_too_big(net, method: str, source) -> None:
     if needed <= room.bytes:
         return
     chosen = solve_method(net.n_nodes, method)
-    other = (", use --method amg-cg (about half the memory of direct)" if chosen == "direct"
+    other = (", use --method amg-cg (less memory than direct)" if chosen == "direct"
              else "")
     raise NotEnoughMemory(
         f"{source}: solving {net.n_branches:,} branches with {chosen} needs about "
