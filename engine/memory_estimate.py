@@ -1,20 +1,22 @@
 """Peak memory of a solve, estimated from the network's size and the solver before it runs.
 
 The model is a fixed part, a part per branch and a part per node, fitted to ``ohmgraph solve``
-runs (peak resident memory of the process less that of the imports alone, 243 MB; 2 cores;
-``benchmarks/bench_memory.py``) and set about 10 % above them:
+runs (peak resident memory of the process less that of the imports alone, about 240 MB; 2 cores;
+``benchmarks/bench_memory.py``) by a linear programme that keeps every estimate as far inside
+-10 % / +30 % of its measurement as possible:
 
-============================  =======  ========  ==============  ==============
-network                       nodes    branches  direct MB       amg-cg MB
-                                                 (measured/est.) (measured/est.)
-============================  =======  ========  ==============  ==============
-lattice 200 x 200, loads       40,001    79,658  150 / 174       137 / 154
-lattice 400 x 400, loads      160,001   319,258  374 / 442       259 / 284
-lattice 700 x 700, loads      490,001   979,258  972 / 1,178     557 / 645
-two-layer mesh 400 x 400      200,001   439,008  600 / 542       365 / 347
-6-nearest-neighbour graph     100,001   353,218  314 / 352       272 / 294
-6-nearest-neighbour graph     300,001 1,058,030  756 / 886       588 / 660
-============================  =======  ========  ==============  ==============
+============================  =======  =========  ===============  ===============
+network                       nodes    branches   direct MB        amg-cg MB
+                                                  measured / est.  measured / est.
+============================  =======  =========  ===============  ===============
+lattice 200 x 200, loads       40,001     79,658  150 / 193        137 / 164
+lattice 400 x 400, loads      160,001    319,258  374 / 444        259 / 297
+lattice 700 x 700, loads      490,001    979,258  972 / 1,134      557 / 662
+the same, other pad places    490,001    978,658  882 / 1,134      550 / 661
+two-layer mesh 400 x 400      200,001    439,008  580-600 / 548    365 / 363
+6-nearest-neighbour graph     100,001    353,218  314 / 397        272 / 315
+6-nearest-neighbour graph     300,001  1,058,030  756-761 / 972    588-592 / 706
+============================  =======  =========  ===============  ===============
 
 Every estimate is within -10 % and +30 % of its measurement. The sparse LU factor's fill grows
 faster than the node count on large meshes (nested-dissection fill of planar graphs grows as
@@ -30,9 +32,9 @@ import math
 from .solvers import choose_method
 
 MB = 1 << 20
-FIXED = {"direct": 85 * MB, "amg-cg": 110 * MB}
-PER_BRANCH = {"direct": 300, "amg-cg": 510}
-PER_NODE = {"direct": 1740, "amg-cg": 125}
+FIXED = {"direct": 109 * MB, "amg-cg": 120 * MB}
+PER_BRANCH = {"direct": 538, "amg-cg": 580}
+PER_NODE = {"direct": 1119, "amg-cg": 0}
 FILL_FROM = 500_000            # nodes beyond which the direct factor's fill is extrapolated
 
 
