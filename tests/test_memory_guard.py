@@ -111,3 +111,21 @@ def test_a_failed_allocation_ends_with_a_message(tmp_path):
     assert process.returncode == EXIT_NO_MEMORY, process.stderr
     assert process.stderr == f"ohmgraph generate: error: {memory_guard.OUT_OF_MEMORY}\n"
     assert list(tmp_path.iterdir()) == []
+
+
+@pytest.mark.parametrize("command", [
+    ["resistance", "net.csv", "--between", "0_0", "199_199", "--ground", "0"],
+    ["compare", "net.csv", "meas.csv"],
+    ["diagnose", "net.csv", "meas.csv"],
+    ["tolerance", "net.csv", "--default", "1", "--observe", "0_0"],
+])
+def test_every_solving_command_is_guarded(lattice, capsys, monkeypatch, command):
+    monkeypatch.setattr(memory_guard, "available_memory",
+                        lambda: Available(10 * MB, "free memory"))
+    monkeypatch.chdir(lattice)
+    (lattice / "meas.csv").write_text("kind,a,b,value,accuracy\nV,0_0,,0.5,1%\n")
+    code = main(command)
+    err = capsys.readouterr().err
+    assert code == EXIT_NO_MEMORY
+    assert err.startswith(f"ohmgraph {command[0]}: error: net.csv: solving 79,658 branches with "
+                          "direct needs about ") and "only 10 MB are available (free memory)" in err

@@ -21,6 +21,7 @@ from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, InputError, SolverError, Us
 from ohmgraph.io.jsonout import dumps
 from ohmgraph.io.measurement_store import refuse_existing_group, write_results
 from ohmgraph.io.measurement_table import UNIT_NAME, accuracy_rules, read_measurements
+from ohmgraph.io.memory_guard import refuse_if_too_big
 from ohmgraph.io.reader import read_network
 
 OUTPUT_SUFFIXES = (".csv", ".h5", ".hdf5")
@@ -166,6 +167,7 @@ def read_inputs(args):
     check_output(args)
     rules = accuracy_rules(args.accuracy)
     net = read_network(args.network, ground=args.ground)
+    refuse_if_too_big(net, args.method, args.network)
     return net, read_measurements(args.measurements, net, rules)
 
 

@@ -19,6 +19,7 @@ from ohmgraph.io.atomic import refuse_existing, refuse_input
 from ohmgraph.io.commands.argtypes import positive_float, whole_number
 from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, InputError, SolverError
 from ohmgraph.io.jsonout import dumps
+from ohmgraph.io.memory_guard import refuse_if_too_big
 from ohmgraph.io.pairs import check_table_path, read_pairs, write_table
 from ohmgraph.io.reader import read_network
 
@@ -83,6 +84,7 @@ def run(args) -> int:
         refuse_input(args.output, (args.network, args.pairs))
         refuse_existing(args.output, args.force)
     net = read_network(args.network, ground=args.ground)
+    refuse_if_too_big(net, args.method, args.network)
     try:
         solver = ResistanceSolver(net, method=args.method, rtol=args.rtol)
     except ValueError as error:
