@@ -8,7 +8,9 @@ A reader never sees a half-written file, and a failure leaves no file at all:
 * the finished file is flushed to the disk (``fsync``) and then published: without ``force`` by
   a hard link (``os.link``), which fails when the name exists, so of two runs creating the same
   file exactly one succeeds; with ``force`` by a rename (``os.replace``), so the file is wholly
-  one run's;
+  one run's. On a file system without hard links the name is claimed by exclusive creation
+  (``O_EXCL``) and the file renamed over that empty placeholder: still one winner, but the name
+  is an empty file for that moment;
 * this process remembers its temporary and published files: when SIGINT or SIGTERM ends the run
   (:mod:`ohmgraph.io.interrupts`), :func:`discard_run_files` removes them all, so an interrupt at
   any stage leaves nothing behind.
@@ -17,11 +19,15 @@ A reader never sees a half-written file, and a failure leaves no file at all:
 from __future__ import annotations
 
 import contextlib
+import errno
 import os
 from pathlib import Path
 
 from .errors import InputError, OutputRefused
 from .interrupts import checkpoint, deferred
+
+
+NO_HARD_LINKS = {errno.EPERM, errno.EOPNOTSUPP, errno.ENOTSUP, errno.ENOSYS}
 
 
 class _RunFiles:
@@ -75,6 +81,23 @@ def _fsync(path: Path) -> None:
         os.close(descriptor)
 
 
+def _claim(temporary: Path, path: Path) -> None:
+    """Publish ``temporary`` as ``path`` only if ``path`` does not exist (atomically)."""
+    try:
+        os.link(temporary, path)
+    except FileExistsError:
+        raise
+    except OSError as error:
+        if error.errno not in NO_HARD_LINKS:
+            raise
+        # A file system without hard links (FAT, some network shares): claim the name by
+        # exclusive creation, then rename over the empty placeholder.
+        os.close(os.open(path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666))
+        os.replace(temporary, path)
+        return
+    os.unlink(temporary)
+
+
 def _publish(temporary: Path, path: Path, force: bool) -> None:
     """Give the finished temporary file its name; signals wait until the name is recorded."""
     with deferred():
@@ -82,11 +105,10 @@ def _publish(temporary: Path, path: Path, force: bool) -> None:
             os.replace(temporary, path)
         else:
             try:
-                os.link(temporary, path)
+                _claim(temporary, path)
             except FileExistsError:
                 raise OutputRefused(f"{path}: already exists (another run created it while this "
                                     "one was working; use --force to overwrite)") from None
-            os.unlink(temporary)
         _RunFiles.temporaries.discard(temporary)
         status = os.stat(path)
         _RunFiles.published.append((path, status.st_dev, status.st_ino))

@@ -8,9 +8,14 @@ atomically), so the file is wholly one run's.
 
 from __future__ import annotations
 
+import errno
+import os
+from pathlib import Path
+
 import numpy as np
 import pytest
 
+from ohmgraph.io.cli import main
 from ohmgraph.io.errors import EXIT_OK, EXIT_OUTPUT_REFUSED
 from ohmgraph.io.store import file_sha256, read_solution
 
@@ -72,3 +77,21 @@ def test_with_force_the_file_is_wholly_one_runs(folder):
     labels = stored.network.node_labels.tolist()
     assert stored.node_voltage[labels.index("mid")] == pytest.approx(volts * 0.75, rel=1e-12)
     assert np.array_equal(stored.network.value, [volts, 1000, 3000])
+
+
+def test_without_hard_links_the_name_is_claimed_exclusively(folder, monkeypatch, capsys):
+    """A file system without hard links (link() fails with EPERM, as on FAT; Linux link(2))."""
+    def no_link(source, target):
+        raise PermissionError(errno.EPERM, "Operation not permitted")
+    monkeypatch.setattr(os, "link", no_link)
+    out = folder / "out.h5"
+    assert main(["solve", str(folder / "a.csv"), "-o", str(out)]) == EXIT_OK
+    assert read_solution(out).attrs["input_sha256"] == file_sha256(folder / "a.csv")
+    # the name taken meanwhile (after the early check): refused, and the file is untouched
+    for module in ("ohmgraph.io.atomic", "ohmgraph.io.commands.solve"):
+        monkeypatch.setattr(f"{module}.refuse_existing", lambda path, force: Path(path))
+    before = out.read_bytes()
+    assert main(["solve", str(folder / "b.csv"), "-o", str(out)]) == EXIT_OUTPUT_REFUSED
+    assert "another run created it" in capsys.readouterr().err
+    assert out.read_bytes() == before
+    assert sorted(p.name for p in folder.iterdir()) == ["a.csv", "b.csv", "out.h5"]
