@@ -458,12 +458,6 @@ def read_solution(path) -> StoredSolution:
                           int(reference[0]))
     except ValueError as error:
         raise InputError(f"{path}: /branches is inconsistent: {error}") from error
-    for name, expected in (("nodes/voltage", network.n_nodes),
-                           *((f"branches/{q}", network.n_branches) for q in
-                             ("current", "voltage", "power", "current_determined"))):
-        if data[name].shape != (expected,):
-            raise InputError(f"{path}: /{name} has shape {data[name].shape}, expected "
-                             f"({expected},)")
     return StoredSolution(
         network=network, node_voltage=data["nodes/voltage"].astype(np.float64),
         branch_current=data["branches/current"].astype(np.float64),
