@@ -29,7 +29,8 @@ import numpy as np
 
 from ohmgraph.io.atomic import atomic_output
 from ohmgraph.io.errors import InputError, OutputRefused
-from ohmgraph.io.hdf5_integrity import (FILE_OPTIONS, check_file, dataset_options,
+from ohmgraph.io.hdf5_integrity import (DIGEST_ATTRIBUTE, FILE_OPTIONS, check_attributes,
+                                        check_file, dataset_options, read_dataset,
                                         seal_attributes)
 from ohmgraph.io.hdf5_output import create_hdf5
 from ohmgraph.io.store import (decode_strings, encode_strings, file_sha256, flatten_attrs,
@@ -137,7 +138,8 @@ def read_results(path, name: str) -> tuple[dict, dict, dict]:
     Raises
     ------
     InputError
-        If the file is not HDF5 or has no such group.
+        If the file is not HDF5, has no such group, or is damaged (a failed checksum, root
+        attributes that do not match their digest, a size the stored bytes cannot hold).
     """
     try:
         h5 = h5py.File(path, "r")
@@ -146,9 +148,11 @@ def read_results(path, name: str) -> tuple[dict, dict, dict]:
     with h5:
         if name not in h5:
             raise InputError(f"{path}: no group '/{name}' (found {', '.join(h5.keys())})")
+        if DIGEST_ATTRIBUTE in h5.attrs:
+            check_attributes(h5, path)
         datasets = {}
         for key, dataset in h5[name].items():
-            data = dataset[()]
+            data = read_dataset(dataset, path)
             datasets[key] = decode_strings(data) if data.dtype.kind == "S" else data
         return datasets, dict(h5[name].attrs), dict(h5.attrs)
 

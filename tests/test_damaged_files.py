@@ -16,6 +16,7 @@ import pytest
 from ohmgraph.io.cli import main
 from ohmgraph.io.errors import EXIT_BAD_INPUT, EXIT_OK, InputError
 from ohmgraph.io.hdf5_integrity import DIGEST_ATTRIBUTE
+from ohmgraph.io.measurement_store import read_results
 from ohmgraph.io.store import LAYOUT_VERSION, read_solution
 
 # 10 V across 1 kohm + 3 kohm with a 2 mA load: V(mid) = 6 V by hand (common practice)
@@ -184,3 +185,17 @@ def test_appending_to_a_damaged_file_is_refused(stored, capsys, tmp_path):
     assert code == EXIT_BAD_INPUT and "/branches/power is damaged" in err
     assert stored.read_bytes() == before
     assert sorted(p.name for p in tmp_path.iterdir()) == ["meas.csv", "net.csv", "sol.h5"]
+
+
+def test_a_damaged_result_file_is_refused(stored, tmp_path, capsys):
+    (tmp_path / "meas.csv").write_text("kind,a,b,value,accuracy\nV,mid,,6,1%\n")
+    out = tmp_path / "cmp.h5"
+    assert main(["compare", str(tmp_path / "net.csv"), str(tmp_path / "meas.csv"),
+                 "-o", str(out)]) in (0, 1)
+    columns, _, root = read_results(out, "comparison")
+    assert columns["measured"].tolist() == [6.0] and len(root[DIGEST_ATTRIBUTE]) == 64
+    with h5py.File(out, "r") as h5:
+        offset = h5["comparison/model"].id.get_chunk_info(0).byte_offset
+    flip(out, offset)
+    with pytest.raises(InputError, match="/comparison/model is damaged"):
+        read_results(out, "comparison")
