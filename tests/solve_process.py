@@ -1,4 +1,4 @@
-"""Helper: ``ohmgraph solve`` as a separate process that reports its stages.
+"""Helper: ``ohmgraph`` commands as separate processes that report their stages.
 
 ``OHMGRAPH_TEST_STAGES`` makes the process print ``ohmgraph: stage NAME`` on standard error;
 ``OHMGRAPH_TEST_PAUSE=NAME`` makes it wait at that stage until its standard input is closed
@@ -15,15 +15,20 @@ import sys
 TIMEOUT = 180          # seconds: generous, the machine may be loaded
 
 
-def start_solve(folder, network, output="out.h5", pause=None, force=False):
-    """Start ``ohmgraph solve NETWORK -o OUTPUT`` in ``folder``."""
+def start(folder, argv, pause=None):
+    """Start ``ohmgraph ARGV...`` in ``folder``, reporting its stages."""
     env = {**os.environ, "OHMGRAPH_TEST_STAGES": "1"}
     if pause:
         env["OHMGRAPH_TEST_PAUSE"] = pause
-    command = [sys.executable, "-m", "ohmgraph.io.cli", "solve", str(network), "-o", str(output)]
-    return subprocess.Popen(command + (["--force"] if force else []), cwd=folder, env=env,
-                            stdin=subprocess.PIPE, stdout=subprocess.PIPE,
+    return subprocess.Popen([sys.executable, "-m", "ohmgraph.io.cli", *map(str, argv)],
+                            cwd=folder, env=env, stdin=subprocess.PIPE, stdout=subprocess.PIPE,
                             stderr=subprocess.PIPE, text=True)
+
+
+def start_solve(folder, network, output="out.h5", pause=None, force=False):
+    """Start ``ohmgraph solve NETWORK -o OUTPUT`` in ``folder``."""
+    return start(folder, ["solve", network, "-o", output] + (["--force"] if force else []),
+                 pause)
 
 
 def wait_for_stage(process, stage) -> list:

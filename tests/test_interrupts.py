@@ -16,7 +16,7 @@ import pytest
 from ohmgraph.datasets.generators import grid2d
 from ohmgraph.io.branch_table import write_branch_table
 
-from solve_process import TIMEOUT, finish, messages, start_solve, wait_for_stage
+from solve_process import TIMEOUT, finish, messages, start, start_solve, wait_for_stage
 
 DIVIDER = ("name,kind,from,to,value\nsupply,V,top,0,10\nr_upper,R,top,mid,1000\n"
            "r_lower,R,mid,0,3000\nload,I,mid,0,0.002\n")
@@ -69,3 +69,24 @@ def test_a_signal_during_real_work_leaves_nothing(grid, tmp_path, stage, signum)
     assert err.splitlines()[-1] == (f"ohmgraph solve: interrupted by {signum.name}; "
                                     "no output was written")
     assert sorted(p.name for p in tmp_path.iterdir()) == ["grid.csv"]
+
+
+@pytest.mark.parametrize("argv, signum", [
+    (["generate", "grid2d", "50", "50", "-o", "grid.csv.gz"], signal.SIGTERM),
+    (["compare", "net.csv", "meas.csv", "-o", "sol.h5", "--append"], signal.SIGINT),
+], ids=["generate", "compare-append"])
+def test_other_commands_leave_nothing_or_the_original(divider, argv, signum):
+    """Paused with the finished temporary file; ``--append`` must leave the original intact."""
+    (divider / "meas.csv").write_text("kind,a,b,value,accuracy\nV,mid,,6,1%\n")
+    solve = start_solve(divider, "net.csv", output="sol.h5")
+    assert finish(solve)[0] == 0
+    before = {p.name: p.read_bytes() for p in divider.iterdir()}
+    process = start(divider, argv, pause="publish")
+    lines = wait_for_stage(process, "publish")
+    process.send_signal(signum)
+    process.wait(timeout=TIMEOUT)
+    code, _, err = finish(process, lines)
+    assert code == 128 + signum, err
+    assert messages(err) == [f"ohmgraph {argv[0]}: interrupted by {signum.name}; "
+                             "no output was written"]
+    assert {p.name: p.read_bytes() for p in divider.iterdir()} == before
