@@ -15,11 +15,8 @@ import os
 import signal
 import sys
 
-import numpy as np
-
 from . import atomic, interrupts
-from .errors import EXIT_BAD_INPUT, EXIT_NO_MEMORY, EXIT_OK, UserError
-from .memory_guard import OUT_OF_MEMORY
+from .errors import EXIT_BAD_INPUT, EXIT_NO_MEMORY, EXIT_OK, OUT_OF_MEMORY, UserError
 
 COMMANDS = ["check", "solve", "show", "generate", "demo", "compare", "diagnose", "tolerance",
             "resistance", "verify"]
@@ -48,6 +45,7 @@ def main(argv=None) -> int:
     with interrupts.handling():
         try:
             try:
+                interrupts.checkpoint("start")
                 args = build_parser().parse_args(argv)
                 name = f"ohmgraph {args.command}"
                 code = _run(args)
@@ -68,6 +66,8 @@ def main(argv=None) -> int:
 
 
 def _run(args) -> int:
+    import numpy as np          # here, not at the top: signals are handled before heavy imports
+
     try:
         # Overflow in extreme values shows in the residual checks and ends as a message and an
         # exit code; NumPy's floating-point warnings would only add noise to standard error.

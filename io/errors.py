@@ -36,6 +36,10 @@ class SolverError(UserError):
     exit_code = EXIT_SOLVER_FAILED
 
 
+OUT_OF_MEMORY = ("ran out of memory (an allocation failed); close other programs, raise the "
+                 "limit, work on a smaller input or use a machine with more memory")
+
+
 class NotEnoughMemory(UserError):
     """The estimated (or an actual) allocation exceeds the memory available."""
 

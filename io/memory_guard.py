@@ -2,7 +2,7 @@
 
 The estimate comes from :mod:`ohmgraph.engine.memory_estimate`, the room from
 :mod:`ohmgraph.io.memory_available`. An allocation that fails anyway (``MemoryError``) ends the
-command line with :data:`OUT_OF_MEMORY` and the same exit code (5).
+command line with :data:`ohmgraph.io.errors.OUT_OF_MEMORY` and the same exit code (5).
 """
 
 from __future__ import annotations
@@ -11,9 +11,6 @@ from ohmgraph.engine.memory_estimate import estimate_solve_bytes, solve_method
 
 from .errors import NotEnoughMemory
 from .memory_available import available_memory
-
-OUT_OF_MEMORY = ("ran out of memory (an allocation failed); close other programs, raise the "
-                 "limit, work on a smaller input or use a machine with more memory")
 
 
 def megabytes(count: int) -> str:

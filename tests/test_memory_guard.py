@@ -14,7 +14,7 @@ from ohmgraph.datasets.generators import grid2d
 from ohmgraph.engine.memory_estimate import estimate_solve_bytes
 from ohmgraph.io.branch_table import write_branch_table
 from ohmgraph.io.cli import main
-from ohmgraph.io.errors import EXIT_NO_MEMORY, EXIT_OK
+from ohmgraph.io.errors import EXIT_NO_MEMORY, EXIT_OK, OUT_OF_MEMORY
 from ohmgraph.io.memory_available import Available, available_memory
 
 MB = 1 << 20
@@ -109,7 +109,7 @@ def test_a_failed_allocation_ends_with_a_message(tmp_path):
                               "3000", "3000", "-o", "big.csv"], cwd=tmp_path,
                              capture_output=True, text=True, timeout=180)
     assert process.returncode == EXIT_NO_MEMORY, process.stderr
-    assert process.stderr == f"ohmgraph generate: error: {memory_guard.OUT_OF_MEMORY}\n"
+    assert process.stderr == f"ohmgraph generate: error: {OUT_OF_MEMORY}\n"
     assert list(tmp_path.iterdir()) == []
 
 
