@@ -35,7 +35,7 @@ tolerance. The power balance is Tellegen's theorem with a residual: ``Σ_b v_b I
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -50,22 +50,32 @@ class EvidenceCheck:
 
     Attributes
     ----------
+    key : str
+        Short identifier (``"branch_voltage"``, ``"ohm"``, ``"kcl"``, ...).
     name : str
+        The relation, in words.
     over : {"node", "branch", "network"}
         What a row is.
     rows : ndarray of int
         Rows checked (indices of nodes or branches; ``[0]`` for a whole-network check).
-    error, tolerance : ndarray
+    stored, expected : ndarray
+        Per checked row: the stored value and the one recomputed from other stored values.
+    tolerance : ndarray
         Per checked row.
     """
 
+    key: str
     name: str
     over: str
     rows: np.ndarray
-    error: np.ndarray
+    stored: np.ndarray
+    expected: np.ndarray
     tolerance: np.ndarray
-    stored: np.ndarray = field(default=None)
-    expected: np.ndarray = field(default=None)
+
+    @property
+    def error(self) -> np.ndarray:
+        """``stored - expected`` per row."""
+        return self.stored - self.expected
 
     @property
     def failing(self) -> np.ndarray:
@@ -89,10 +99,9 @@ class EvidenceCheck:
         return float(np.nan_to_num(ratio, nan=np.inf).max())
 
 
-def _check(name, over, rows, stored, expected, tolerance) -> EvidenceCheck:
-    stored, expected = np.asarray(stored, float), np.asarray(expected, float)
-    return EvidenceCheck(name, over, np.asarray(rows), stored - expected,
-                         np.asarray(tolerance, float), stored, expected)
+def _check(key, name, over, rows, stored, expected, tolerance) -> EvidenceCheck:
+    return EvidenceCheck(key, name, over, np.asarray(rows), np.asarray(stored, float),
+                         np.asarray(expected, float), np.asarray(tolerance, float))
 
 
 def recompute(net: Network, node_voltage: np.ndarray, branch_current: np.ndarray,
@@ -111,26 +120,26 @@ def recompute(net: Network, node_voltage: np.ndarray, branch_current: np.ndarray
     v_from, v_to = node_voltage[net.from_node], node_voltage[net.to_node]
     span = np.abs(v_from) + np.abs(v_to)
     every = np.arange(net.n_branches)
-    checks = [_check("branch voltage = V(from) - V(to)", "branch", every, branch_voltage,
-                     v_from - v_to, 4 * EPS * span)]
+    checks = [_check("branch_voltage", "branch voltage = V(from) - V(to)", "branch", every,
+                     branch_voltage, v_from - v_to, 4 * EPS * span)]
 
     resistor = np.flatnonzero((net.kind == RESISTOR) & (net.value > 0))
     v, current = branch_voltage[resistor], branch_current[resistor]
-    checks.append(_check("Ohm's law I*R = v", "branch", resistor,
+    checks.append(_check("ohm", "Ohm's law I*R = v", "branch", resistor,
                          current * net.value[resistor], v, 4 * EPS * np.abs(v)))
     link = np.flatnonzero((net.kind == RESISTOR) & (net.value == 0))
-    checks.append(_check("ideal connection v = 0", "branch", link, branch_voltage[link],
-                         np.zeros(link.size), 4 * EPS * span[link]))
+    checks.append(_check("ideal_connection", "ideal connection v = 0", "branch", link,
+                         branch_voltage[link], np.zeros(link.size), 4 * EPS * span[link]))
     source = np.flatnonzero(net.kind == VOLTAGE_SOURCE)
-    checks.append(_check("voltage source v = value", "branch", source, branch_voltage[source],
-                         net.value[source],
+    checks.append(_check("voltage_source", "voltage source v = value", "branch", source,
+                         branch_voltage[source], net.value[source],
                          64 * EPS * (span[source] + np.abs(net.value[source]))))
     feed = np.flatnonzero(net.kind == CURRENT_SOURCE)
-    checks.append(_check("current source I = value", "branch", feed, branch_current[feed],
-                         net.value[feed], EPS * np.abs(net.value[feed])))
+    checks.append(_check("current_source", "current source I = value", "branch", feed,
+                         branch_current[feed], net.value[feed], EPS * np.abs(net.value[feed])))
     product = branch_voltage * branch_current
-    checks.append(_check("branch power p = v*I", "branch", every, branch_power, product,
-                         4 * EPS * np.abs(product)))
+    checks.append(_check("branch_power", "branch power p = v*I", "branch", every, branch_power,
+                         product, 4 * EPS * np.abs(product)))
 
     kcl = (np.bincount(net.from_node, branch_current, minlength=net.n_nodes)
            - np.bincount(net.to_node, branch_current, minlength=net.n_nodes))
@@ -140,7 +149,7 @@ def recompute(net: Network, node_voltage: np.ndarray, branch_current: np.ndarray
     degree = (np.bincount(net.from_node, minlength=net.n_nodes)
               + np.bincount(net.to_node, minlength=net.n_nodes))
     rho = max(float(rtol), float(relative_residual))
-    checks.append(_check("KCL: net current leaving each node = 0", "node",
+    checks.append(_check("kcl", "KCL: net current leaving each node = 0", "node",
                          np.arange(net.n_nodes), kcl, np.zeros(net.n_nodes),
                          (degree + 4) * EPS * at_node + (rho + 64 * EPS) * magnitude.sum()))
 
@@ -148,21 +157,22 @@ def recompute(net: Network, node_voltage: np.ndarray, branch_current: np.ndarray
     rounding = 2 * EPS * ((np.log2(net.n_branches + 2) + 9) * np.abs(branch_power).sum()
                           + (np.log2(net.n_nodes + 2) + 8) * np.abs(tellegen).sum()
                           + ((degree + 1) * np.abs(node_voltage) * at_node).sum())
-    checks.append(_check("power balance: sum of p = sum of V*KCL residual", "network", [0],
-                         [branch_power.sum()], [tellegen.sum()], [rounding]))
+    checks.append(_check("power_balance", "power balance: sum of p = sum of V*KCL residual",
+                         "network", [0], [branch_power.sum()], [tellegen.sum()], [rounding]))
     return checks
 
 
 def claims(checks: list[EvidenceCheck], kcl_max_residual: float,
            power_balance: float) -> list[EvidenceCheck]:
     """The file's own evidence numbers against the recomputed ones (same arithmetic: 4ε)."""
-    kcl, balance = checks[-2], checks[-1]
+    by_key = {check.key: check for check in checks}
+    kcl, balance = by_key["kcl"], by_key["power_balance"]
     largest = float(np.abs(kcl.error).max()) if kcl.error.size else 0.0
     total = float(balance.stored[0])
-    return [_check("stored KCL max residual", "network", [0], [kcl_max_residual], [largest],
-                   [4 * EPS * largest]),
-            _check("stored power balance", "network", [0], [power_balance], [total],
-                   [4 * EPS * abs(total)])]
+    return [_check("stored_kcl", "stored KCL max residual", "network", [0], [kcl_max_residual],
+                   [largest], [4 * EPS * largest]),
+            _check("stored_power_balance", "stored power balance", "network", [0],
+                   [power_balance], [total], [4 * EPS * abs(total)])]
 
 
 def network_differences(stored: Network, given: Network) -> list[str]:
