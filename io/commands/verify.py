@@ -54,7 +54,8 @@ def _evidence(stored) -> list[dict]:
     for check in checks:
         failing = check.failing
         results.append({
-            "check": check.name, "rows": int(check.rows.size), "over": check.over,
+            "check": check.name, "key": check.key, "rows": int(check.rows.size),
+            "over": check.over,
             "failed": int(failing.size), "worst_error_to_tolerance": check.worst_ratio,
             "first_failures": [{"row": _row_label(stored, check, k),
                                 "stored": float(check.stored[k]),
