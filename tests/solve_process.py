@@ -11,6 +11,7 @@ from __future__ import annotations
 import os
 import subprocess
 import sys
+import threading
 
 TIMEOUT = 180          # seconds: generous, the machine may be loaded
 
@@ -20,9 +21,14 @@ def start(folder, argv, pause=None):
     env = {**os.environ, "OHMGRAPH_TEST_STAGES": "1"}
     if pause:
         env["OHMGRAPH_TEST_PAUSE"] = pause
-    return subprocess.Popen([sys.executable, "-m", "ohmgraph.io.cli", *map(str, argv)],
-                            cwd=folder, env=env, stdin=subprocess.PIPE, stdout=subprocess.PIPE,
-                            stderr=subprocess.PIPE, text=True)
+    process = subprocess.Popen([sys.executable, "-m", "ohmgraph.io.cli", *map(str, argv)],
+                               cwd=folder, env=env, stdin=subprocess.PIPE,
+                               stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    # a run that hangs is killed, so a reading test fails instead of waiting for ever
+    process.watchdog = threading.Timer(TIMEOUT, process.kill)
+    process.watchdog.daemon = True
+    process.watchdog.start()
+    return process
 
 
 def start_solve(folder, network, output="out.h5", pause=None, force=False):
@@ -51,6 +57,7 @@ def release(process) -> None:
 def finish(process, lines=()) -> tuple[int, str, str]:
     """Release a paused process, wait for it; return (exit code, stdout, all of stderr)."""
     out, rest = process.communicate(timeout=TIMEOUT)
+    process.watchdog.cancel()
     return process.returncode, out, "".join(lines) + rest
 
 
