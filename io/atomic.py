@@ -1,15 +1,38 @@
-"""Atomic output files: written under a temporary name beside the target, renamed when complete.
+"""Atomic output files: written under a temporary name beside the target, published when complete.
 
-A reader never sees a half-written file, and a failure leaves no file at all.
+A reader never sees a half-written file, and a failure leaves no file at all:
+
+* the block of :func:`atomic_output` writes a temporary file ``.NAME.PID.tmp`` beside the target;
+  any error (a full disk, a file-size limit, a read-only folder) removes it and ends as
+  :class:`OutputRefused` naming the target and the reason;
+* the finished file is flushed to the disk (``fsync``) and then published: without ``force`` by
+  a hard link (``os.link``), which fails when the name exists, so of two runs creating the same
+  file exactly one succeeds; with ``force`` by a rename (``os.replace``), so the file is wholly
+  one run's. On a file system without hard links the name is claimed by exclusive creation
+  (``O_EXCL``) and the file renamed over that empty placeholder: still one winner, but the name
+  is an empty file for that moment;
+* this process remembers its temporary and published files: when SIGINT or SIGTERM ends the run
+  (:mod:`ohmgraph.io.interrupts`), :func:`discard_run_files` removes them all, so an interrupt at
+  any stage leaves nothing behind.
 """
 
 from __future__ import annotations
 
 import contextlib
+import errno
 import os
 from pathlib import Path
 
-from ohmgraph.io.errors import InputError, OutputRefused
+from .errors import InputError, OutputRefused
+from .interrupts import checkpoint, deferred
+
+
+NO_HARD_LINKS = {errno.EPERM, errno.EOPNOTSUPP, errno.ENOTSUP, errno.ENOSYS}
+
+
+class _RunFiles:
+    temporaries: set = set()        # temporary files being written
+    published: list = []            # (path, device, inode) of files this run published
 
 
 def refuse_existing(path, force: bool) -> Path:
@@ -23,7 +46,7 @@ def refuse_existing(path, force: bool) -> Path:
         if not path.parent.exists():
             raise OutputRefused(f"{path}: folder {path.parent} does not exist")
     except OSError as error:                    # for example a name longer than allowed
-        raise OutputRefused(f"{path}: cannot be written ({error.strerror or error})") from None
+        raise OutputRefused(f"{path}: cannot be written ({reason(error)})") from None
     return path
 
 
@@ -45,23 +68,105 @@ def refuse_input(output, inputs) -> None:
         raise InputError(f"{output}: is also the input file {same[0]}; name another output file")
 
 
+def reason(error: OSError) -> str:
+    """The operating system's words for a failed file operation (``No space left on device``)."""
+    return error.strerror or str(error)
+
+
+def _fsync(path: Path) -> None:
+    descriptor = os.open(path, os.O_RDONLY)
+    try:
+        os.fsync(descriptor)
+    finally:
+        os.close(descriptor)
+
+
+def _claim(temporary: Path, path: Path) -> None:
+    """Publish ``temporary`` as ``path`` only if ``path`` does not exist (atomically)."""
+    try:
+        os.link(temporary, path)
+    except FileExistsError:
+        raise
+    except OSError as error:
+        if error.errno not in NO_HARD_LINKS:
+            raise
+        # A file system without hard links (FAT, some network shares): claim the name by
+        # exclusive creation, then rename over the empty placeholder.
+        os.close(os.open(path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666))
+        os.replace(temporary, path)
+        return
+    os.unlink(temporary)
+
+
+def _publish(temporary: Path, path: Path, force: bool) -> None:
+    """Give the finished temporary file its name; signals wait until the name is recorded."""
+    with deferred():
+        if force:
+            os.replace(temporary, path)
+        else:
+            try:
+                _claim(temporary, path)
+            except FileExistsError:
+                raise OutputRefused(f"{path}: already exists (another run created it while this "
+                                    "one was working; use --force to overwrite)") from None
+        _RunFiles.temporaries.discard(temporary)
+        status = os.stat(path)
+        _RunFiles.published.append((path, status.st_dev, status.st_ino))
+
+
 @contextlib.contextmanager
 def atomic_output(path, force: bool = False):
-    """Yield a temporary path beside ``path``; rename it onto ``path`` only if the block succeeds.
+    """Yield a temporary path beside ``path``; publish it as ``path`` only if the block succeeds.
 
     Raises
     ------
     OutputRefused
-        If ``path`` exists and ``force`` is false, is a folder, its folder does not exist, or
-        the file cannot be written (an ``OSError`` inside the block or on the final rename).
+        If ``path`` exists and ``force`` is false (also when another run creates it meanwhile),
+        is a folder, its folder does not exist, or the file cannot be written (an ``OSError``
+        inside the block, on flushing or on publishing); the message names ``path`` and the
+        reason. Nothing is left behind.
     """
     path = refuse_existing(path, force)
     temporary = path.with_name(f".{path.name}.{os.getpid()}.tmp")
+    _RunFiles.temporaries.add(temporary)
     try:
         yield temporary
-        os.replace(temporary, path)
+        _fsync(temporary)
+        checkpoint("publish")
+        _publish(temporary, path, force)
     except OSError as error:
-        raise OutputRefused(f"{path}: cannot be written ({error.strerror or error})") from None
+        raise OutputRefused(f"{path}: cannot be written ({reason(error)})") from None
     finally:
-        if temporary.exists():
-            temporary.unlink()
+        with deferred():
+            _remove(temporary)
+            _RunFiles.temporaries.discard(temporary)
+    checkpoint("published")
+
+
+def _remove(path: Path) -> None:
+    """Remove a file if it is there (its folder may be missing or be a file: nothing to do)."""
+    with contextlib.suppress(FileNotFoundError, NotADirectoryError):
+        path.unlink()
+
+
+def start_run() -> None:
+    """Forget the files of any earlier run in this process (the command line calls this)."""
+    _RunFiles.temporaries = set()
+    _RunFiles.published = []
+
+
+def discard_run_files() -> None:
+    """Remove every temporary file of this run and every file it published (after an interrupt).
+
+    A published file is removed only while it is still the one this run wrote (same device and
+    inode), never a file another process has put there since.
+    """
+    for temporary in list(_RunFiles.temporaries):
+        with contextlib.suppress(OSError):
+            _remove(temporary)
+    for path, device, inode in _RunFiles.published:
+        with contextlib.suppress(OSError):
+            status = os.stat(path)
+            if (status.st_dev, status.st_ino) == (device, inode):
+                path.unlink()
+    start_run()

@@ -12,14 +12,14 @@ import argparse
 import importlib
 import importlib.metadata
 import os
+import signal
 import sys
 
-import numpy as np
-
-from ohmgraph.io.errors import EXIT_BAD_INPUT, EXIT_OK, UserError
+from . import atomic, interrupts
+from .errors import EXIT_BAD_INPUT, EXIT_NO_MEMORY, EXIT_OK, OUT_OF_MEMORY, UserError
 
 COMMANDS = ["check", "solve", "show", "generate", "demo", "compare", "diagnose", "tolerance",
-            "resistance", "limits", "export", "map", "report", "diff"]
+            "resistance", "limits", "export", "map", "report", "diff", "verify"]
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -35,8 +35,39 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def main(argv=None) -> int:
-    """Run the command line; return the exit code."""
-    args = build_parser().parse_args(argv)
+    """Run the command line; return the exit code.
+
+    SIGINT and SIGTERM end any command with 130 or 143, one line on standard error, and no
+    output or temporary file left (:mod:`ohmgraph.io.interrupts`).
+    """
+    atomic.start_run()
+    name = "ohmgraph"
+    with interrupts.handling():
+        try:
+            try:
+                interrupts.checkpoint("start")
+                args = build_parser().parse_args(argv)
+                name = f"ohmgraph {args.command}"
+                code = _run(args)
+            except KeyboardInterrupt:
+                code = None
+            interrupts.hold()
+        except KeyboardInterrupt:       # the one interrupt arrived between the two lines above
+            code = None
+            interrupts.hold()
+        interrupt = interrupts.received()
+        if interrupt is None and code is None:      # SIGINT from before handling() began
+            interrupt = interrupts.Interrupted(signal.SIGINT)
+        if interrupt is None:
+            return code
+        atomic.discard_run_files()
+        print(f"{name}: interrupted by {interrupt}; no output was written", file=sys.stderr)
+        return interrupt.exit_code
+
+
+def _run(args) -> int:
+    import numpy as np          # here, not at the top: signals are handled before heavy imports
+
     try:
         # Overflow in extreme values shows in the residual checks and ends as a message and an
         # exit code; NumPy's floating-point warnings would only add noise to standard error.
@@ -46,12 +77,8 @@ def main(argv=None) -> int:
         print(f"ohmgraph {args.command}: error: {error}", file=sys.stderr)
         return error.exit_code
     except MemoryError:
-        print(f"ohmgraph {args.command}: error: not enough memory for this input or size",
-              file=sys.stderr)
-        return EXIT_BAD_INPUT
-    except KeyboardInterrupt:
-        print("ohmgraph: interrupted", file=sys.stderr)
-        return EXIT_BAD_INPUT
+        print(f"ohmgraph {args.command}: error: {OUT_OF_MEMORY}", file=sys.stderr)
+        return EXIT_NO_MEMORY
     except BrokenPipeError:
         # The reader of our output (``| head``) went away: stop quietly, as other tools do.
         os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())

@@ -9,6 +9,7 @@ EXIT_FAILED = 1          # the network is not well-posed, or readings fail their
 EXIT_BAD_INPUT = 2       # an input file or a command-line argument cannot be used
 EXIT_OUTPUT_REFUSED = 3  # the output exists (no --force) or cannot be written
 EXIT_SOLVER_FAILED = 4   # no solver reached the requested accuracy
+EXIT_NO_MEMORY = 5       # the work needs more memory than the machine (or a limit) allows
 
 
 class UserError(Exception):
@@ -40,6 +41,16 @@ class SolverError(UserError):
     """The linear solve did not reach the requested accuracy."""
 
     exit_code = EXIT_SOLVER_FAILED
+
+
+OUT_OF_MEMORY = ("ran out of memory (an allocation failed); close other programs, raise the "
+                 "limit, work on a smaller input or use a machine with more memory")
+
+
+class NotEnoughMemory(UserError):
+    """The estimated (or an actual) allocation exceeds the memory available."""
+
+    exit_code = EXIT_NO_MEMORY
 
 
 MAX_REPORTED_PROBLEMS = 10

@@ -13,7 +13,8 @@ Versions
     Every result group (``/resistance``, ``/comparison``, ``/diagnosis``, ``/tolerance``) is
     written by :mod:`ohmgraph.io.result_store` with ``layout_version`` and provenance
     (``tool_version``, ``created``, input file names and SHA-256, ``command`` and
-    ``command_options``).
+    ``command_options``); every dataset is chunked with the Fletcher-32 checksum filter and
+    the root attributes are sealed by a SHA-256 digest (``attrs_sha256``).
 """
 
 from __future__ import annotations

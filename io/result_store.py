@@ -32,12 +32,15 @@ import numpy as np
 
 from ohmgraph.io.atomic import atomic_output
 from ohmgraph.io.errors import InputError, OutputRefused
+from ohmgraph.io.hdf5_integrity import (DIGEST_ATTRIBUTE, FILE_OPTIONS, check_attributes,
+                                        check_file, dataset_options, read_dataset,
+                                        seal_attributes)
+from ohmgraph.io.hdf5_output import create_hdf5
 from ohmgraph.io.jsonout import jsonable
 from ohmgraph.io.layout import LAYOUT_VERSION, check_layout_version
 from ohmgraph.io.store import (decode_strings, encode_strings, file_sha256, flatten_attrs,
                                tool_version)
 
-COMPRESS_FROM = 4096
 # Defaults the commands set for themselves, not options a user gave.
 INTERNAL_ARGUMENTS = ("command_group", "output_formats")
 
@@ -101,11 +104,12 @@ def refuse_existing_group(path, name: str, force: bool) -> None:
         if Path(path).is_dir():
             raise OutputRefused(f"{path}: is a folder, not an HDF5 file")
         with h5py.File(path, "r") as h5:
+            check_file(h5, path)
             present = name in h5
     except FileNotFoundError:
         raise OutputRefused(f"{path}: does not exist (--append adds to an existing HDF5 "
                             "file)") from None
-    except OSError as error:
+    except (OSError, RuntimeError, ValueError) as error:
         raise OutputRefused(f"{path}: not a readable HDF5 file ({error})") from None
     if present and not force:
         raise OutputRefused(f"{path}: already holds '/{name}' (use --force to replace it)")
@@ -154,19 +158,16 @@ def write_results(path, name: str, columns: dict, *, units: dict | None = None,
         with atomic_output(path, force or append) as temporary:
             if append:
                 shutil.copyfile(path, temporary)
-            with h5py.File(temporary, "a" if append else "w") as h5:
+            with create_hdf5(temporary, "a" if append else "w", **FILE_OPTIONS) as h5:
                 if not append:
                     h5.attrs.update({**stamp, "result": name})
+                    seal_attributes(h5)
                 if name in h5:
                     del h5[name]
                 group = h5.create_group(name)
                 for column, values in {**columns, **(matrices or {})}.items():
                     data = _plain_array(values)
-                    storage = {}
-                    if data.size >= COMPRESS_FROM and data.dtype.kind != "S":
-                        storage = dict(chunks=True, compression="gzip", compression_opts=1,
-                                       shuffle=True)
-                    dataset = group.create_dataset(column, data=data, **storage)
+                    dataset = group.create_dataset(column, data=data, **dataset_options(data))
                     if column in units:
                         dataset.attrs["units"] = units[column]
                 _set_attrs(group, {**stamp, **(attrs or {})})
@@ -184,7 +185,9 @@ def read_results(path, name: str) -> tuple[dict, dict, dict]:
     Raises
     ------
     InputError
-        If the file is not HDF5, has no such group, or was written with a newer layout.
+        If the file is not HDF5, has no such group, was written with a newer layout, or is
+        damaged (a failed checksum, root attributes that do not match their digest, a size the
+        stored bytes cannot hold).
     """
     try:
         h5 = h5py.File(path, "r")
@@ -194,9 +197,11 @@ def read_results(path, name: str) -> tuple[dict, dict, dict]:
         if name not in h5:
             raise InputError(f"{path}: no group '/{name}' (found {', '.join(h5.keys())})")
         check_layout_version(f"{path}: /{name}", h5[name].attrs)
+        if DIGEST_ATTRIBUTE in h5.attrs:
+            check_attributes(h5, path)
         datasets = {}
         for key, dataset in h5[name].items():
-            data = dataset[()]
+            data = read_dataset(dataset, path)
             datasets[key] = decode_strings(data) if data.dtype.kind == "S" else data
         return datasets, dict(h5[name].attrs), dict(h5.attrs)
 

@@ -18,11 +18,15 @@ reads the file):
 * root attributes: provenance (tool version, input file name and SHA-256, creation time) and
   the evidence of the solve (method, tolerance, iterations, residuals, power balance).
 
-Large arrays are chunked and compressed with gzip level 1 plus the shuffle filter. On 2M-element
-float64 arrays LZF wrote about twice as fast, but LZF is a filter bundled with h5py, not with
-the HDF5 library, so other tools could not open the file; gzip (deflate) ships with every HDF5
-build. Files are written through :func:`ohmgraph.io.atomic.atomic_output`, so a failure never
-leaves a partial file.
+Every array is chunked and carries the Fletcher-32 checksum filter, and the root attribute
+``attrs_sha256`` is the SHA-256 of the other root attributes (:mod:`ohmgraph.io.hdf5_integrity`),
+so damage after writing is found on reading. Large arrays are also compressed with gzip level 1
+plus the shuffle filter. On 2M-element float64 arrays LZF wrote about twice as fast, but LZF is
+a filter bundled with h5py, not with the HDF5 library, so other tools could not open the file;
+gzip (deflate) and Fletcher-32 ship with every HDF5 build. Files are written through
+:func:`ohmgraph.io.atomic.atomic_output`, so a failure never leaves a partial file.
+
+Layout versions: 1 (no checksums, no digest) is still read; 2 adds the checksums and the digest.
 """
 
 from __future__ import annotations
@@ -42,10 +46,11 @@ from ohmgraph.engine.network import KIND_LETTERS, Network, kind_codes
 from ohmgraph.engine.solve import Solution
 from ohmgraph.io.atomic import atomic_output
 from ohmgraph.io.errors import InputError, OutputRefused
+from ohmgraph.io.hdf5_integrity import (FILE_OPTIONS, check_attributes, dataset_options,
+                                        read_dataset, seal_attributes)
+from ohmgraph.io.hdf5_output import create_hdf5
+from ohmgraph.io.interrupts import checkpoint
 from ohmgraph.io.layout import LAYOUT_VERSION, check_layout_version
-COMPRESS_FROM = 4096          # arrays shorter than this are stored contiguous, uncompressed
-CHUNK_ELEMENTS = 1 << 18
-GZIP_LEVEL = 1
 
 REQUIRED_DATASETS = (
     "nodes/label", "nodes/voltage",
@@ -187,12 +192,7 @@ def _put(group: h5py.Group, name: str, data) -> None:
     if data.dtype.kind == "U":
         encoded = encode_strings(data)
         data = encoded.view(h5py.string_dtype("utf-8", encoded.dtype.itemsize))
-    options = {}
-    if data.size >= COMPRESS_FROM:
-        chunks = (min(data.size, CHUNK_ELEMENTS),) if data.ndim == 1 else True
-        options = dict(chunks=chunks, compression="gzip",
-                       compression_opts=GZIP_LEVEL, shuffle=True)
-    dataset = group.create_dataset(name, data=data, **options)
+    dataset = group.create_dataset(name, data=data, **dataset_options(data))
     key = f"{group.name.strip('/')}/{name}"
     if key in UNITS:
         dataset.attrs["units"] = UNITS[key]
@@ -321,8 +321,9 @@ def write_solution(path, solution: Solution, *, input_path=None, force: bool = F
     root_attrs = _root_attrs(solution, input_path)
     try:
         with (atomic_output(path, force) as temporary,
-              h5py.File(temporary, "w", track_order=True) as h5):
+              create_hdf5(temporary, track_order=True, **FILE_OPTIONS) as h5):
             h5.attrs.update(root_attrs)
+            seal_attributes(h5)
             nodes = h5.create_group("nodes")
             _put(nodes, "label", net.node_labels)
             _put(nodes, "voltage", solution.node_voltage)
@@ -348,6 +349,7 @@ def write_solution(path, solution: Solution, *, input_path=None, force: bool = F
                 timings.attrs[stage] = float(seconds)
             elapsed = time.perf_counter() - start
             timings.attrs["store"] = elapsed
+            checkpoint("store")
     except OSError as error:
         raise OutputRefused(f"{path}: cannot be written ({error})") from error
     return elapsed
@@ -364,8 +366,8 @@ def _plain(value):
     return value
 
 
-def _dataset(h5: h5py.File, name: str) -> np.ndarray:
-    data = h5[name][...]
+def _dataset(h5: h5py.File, name: str, path) -> np.ndarray:
+    data = read_dataset(h5[name], path)
     if data.dtype.kind == "S":
         return decode_strings(data)
     return data
@@ -376,10 +378,11 @@ def _read_findings(h5: h5py.File, path) -> tuple[list, dict]:
         return [], {}
     group = h5["checks"]
     try:
-        codes, severities, messages = (group[n].asstr()[...].tolist()
+        codes, severities, messages = (_dataset(group, n, path).tolist()
                                        for n in ("code", "severity", "message"))
-        nodes, node_offsets = group["nodes"][...], group["node_offsets"][...]
-        branches, branch_offsets = group["branches"][...], group["branch_offsets"][...]
+        nodes, node_offsets, branches, branch_offsets = (
+            read_dataset(group[n], path)
+            for n in ("nodes", "node_offsets", "branches", "branch_offsets"))
     except KeyError as error:
         raise InputError(f"{path}: /checks is incomplete ({error})") from error
     findings = [Finding(severity, code, message,
@@ -418,33 +421,65 @@ def _check_types(path, attrs: dict) -> None:
         raise InputError(f"{path}: root attribute 'notes' is {notes!r}, expected a list of text")
 
 
+def _check_layout(path, h5: h5py.File, attrs: dict) -> None:
+    """Refuse unknown layout versions; from version 2 on, check the attribute digest."""
+    if check_layout_version(str(path), attrs) >= 2:
+        check_attributes(h5, path)
+
+
+def _read_arrays(h5: h5py.File, path) -> tuple:
+    """Attributes, arrays, findings and timings of an open solution file, checked for damage."""
+    missing = [name for name in REQUIRED_DATASETS if name not in h5]
+    if missing:
+        raise InputError(f"{path}: not an ohmgraph solution file: missing dataset "
+                         f"/{missing[0]}" + (f" and {len(missing) - 1} more" if len(missing) > 1
+                                              else ""))
+    attrs = {key: _plain(value) for key, value in h5.attrs.items()}
+    absent = [name for name in REQUIRED_ATTRIBUTES if name not in attrs]
+    if absent:
+        raise InputError(f"{path}: not an ohmgraph solution file: missing root attribute "
+                         f"{absent[0]!r}")
+    _check_types(path, attrs)
+    _check_layout(path, h5, attrs)
+    _check_lengths(path, h5)
+    data = {name: _dataset(h5, name, path) for name in REQUIRED_DATASETS}
+    extra = {name: _dataset(h5, name, path) for name in OPTIONAL_DATASETS if name in h5}
+    findings, check_summary = _read_findings(h5, path)
+    timings = ({stage: _plain(seconds) for stage, seconds in h5["timings"].attrs.items()
+                if stage != "units"} if "timings" in h5 else {})
+    return attrs, data, extra, findings, check_summary, timings
+
+
+def _check_lengths(path, h5: h5py.File) -> None:
+    """Every ``/nodes`` and every ``/branches`` array is one-dimensional, of one length."""
+    for group in ("nodes", "branches"):
+        names = [name for name in REQUIRED_DATASETS if name.startswith(f"{group}/")]
+        shapes = {name: h5[name].shape for name in names}
+        first = names[0]
+        for name, shape in shapes.items():
+            if len(shape) != 1 or shape != shapes[first]:
+                raise InputError(f"{path}: /{name} has shape {shape}, but /{first} has "
+                                 f"{shapes[first]}: the file is damaged or not ohmgraph's")
+
+
 def read_solution(path) -> StoredSolution:
-    """Read a solution written by :func:`write_solution`.
+    """Read a solution written by :func:`write_solution` (any layout version up to
+    :data:`~ohmgraph.io.layout.LAYOUT_VERSION`).
 
     Raises
     ------
     InputError
-        If the file is missing, is not HDF5, lacks a required dataset or attribute, or its
-        arrays do not fit together; the message names the file and what is wrong.
+        If the file is missing, is not HDF5, is damaged (a failed checksum, attributes that do
+        not match their digest, sizes its stored bytes cannot hold), lacks a required dataset
+        or attribute, or its arrays do not fit together; the message names the file and what
+        is wrong.
     """
     with _open(path) as h5:
-        missing = [name for name in REQUIRED_DATASETS if name not in h5]
-        if missing:
-            raise InputError(f"{path}: not an ohmgraph solution file: missing dataset "
-                             f"/{missing[0]}" + (f" and {len(missing) - 1} more" if len(missing) > 1
-                                                  else ""))
-        attrs = {key: _plain(value) for key, value in h5.attrs.items()}
-        check_layout_version(str(path), attrs)
-        absent = [name for name in REQUIRED_ATTRIBUTES if name not in attrs]
-        if absent:
-            raise InputError(f"{path}: not an ohmgraph solution file: missing root attribute "
-                             f"{absent[0]!r}")
-        _check_types(path, attrs)
-        data = {name: _dataset(h5, name) for name in REQUIRED_DATASETS}
-        extra = {name: _dataset(h5, name) for name in OPTIONAL_DATASETS if name in h5}
-        findings, check_summary = _read_findings(h5, path)
-        timings = ({stage: _plain(seconds) for stage, seconds in h5["timings"].attrs.items()
-                    if stage != "units"} if "timings" in h5 else {})
+        try:
+            attrs, data, extra, findings, check_summary, timings = _read_arrays(h5, path)
+        except (OSError, RuntimeError, KeyError, ValueError) as error:
+            raise InputError(f"{path}: damaged: HDF5 cannot read its structure ({error})") \
+                from None
     for names, kinds, what in ((INDEX_DATASETS, "iu", "integer"),
                                (NUMBER_DATASETS, "iuf", "number")):
         for name in names:
@@ -463,12 +498,6 @@ def read_solution(path) -> StoredSolution:
                           int(reference[0]))
     except ValueError as error:
         raise InputError(f"{path}: /branches is inconsistent: {error}") from error
-    for name, expected in (("nodes/voltage", network.n_nodes),
-                           *((f"branches/{q}", network.n_branches) for q in
-                             ("current", "voltage", "power", "current_determined"))):
-        if data[name].shape != (expected,):
-            raise InputError(f"{path}: /{name} has shape {data[name].shape}, expected "
-                             f"({expected},)")
     _check_extra(path, extra, network)
     return StoredSolution(
         network=network, node_voltage=data["nodes/voltage"].astype(np.float64),

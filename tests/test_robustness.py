@@ -18,8 +18,8 @@ import pytest
 
 import ohmgraph.datasets.generators as generators
 from ohmgraph.io.cli import main
-from ohmgraph.io.errors import (EXIT_BAD_INPUT, EXIT_FAILED, EXIT_OK, EXIT_OUTPUT_REFUSED,
-                                EXIT_SOLVER_FAILED)
+from ohmgraph.io.errors import (EXIT_BAD_INPUT, EXIT_FAILED, EXIT_NO_MEMORY, EXIT_OK,
+                                EXIT_OUTPUT_REFUSED, EXIT_SOLVER_FAILED)
 
 # A loaded divider: 10 V across 1 kohm + 3 kohm, 2 mA drawn from the middle.
 NET = ("name,kind,from,to,value\nsupply,V,top,0,10\nr_upper,R,top,mid,1000\n"
@@ -225,6 +225,10 @@ REFUSED = [
     ("show notes_number.h5", EXIT_BAD_INPUT, "'notes' is 5"),
     ("show float_index.h5", EXIT_BAD_INPUT, "/branches/from holds float64"),
     ("show timing_text.h5", EXIT_BAD_INPUT, "/timings"),
+    ("verify foreign.h5", EXIT_BAD_INPUT, "not an ohmgraph solution file"),
+    ("verify truncated.h5", EXIT_BAD_INPUT, "not an HDF5 file"),
+    ("verify sol.h5 missing.csv", EXIT_BAD_INPUT, "missing.csv: no such file"),
+    ("verify sol.h5 garbage.csv", EXIT_BAD_INPUT, "garbage.csv"),
     # measurement tables
     ("compare net.csv meas_inf.csv --accuracy 1%", EXIT_BAD_INPUT,
      "meas_inf.csv:2: column 'value': 'inf' is not a finite number"),
@@ -385,5 +389,5 @@ def test_running_out_of_memory_is_a_message(workspace, capsys, monkeypatch):
     monkeypatch.setattr(generators, "grid2d", too_large)
     before = snapshot(workspace)
     code, text = run_cli(["generate", "grid2d", "100000", "100000", "-o", "big.csv"], capsys)
-    assert code == EXIT_BAD_INPUT and "not enough memory" in text
+    assert code == EXIT_NO_MEMORY and "ran out of memory (an allocation failed)" in text
     assert snapshot(workspace) == before

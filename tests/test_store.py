@@ -16,7 +16,8 @@ from ohmgraph.io import read_solution, write_solution
 from ohmgraph.io.errors import InputError, OutputRefused
 from ohmgraph.io.solution_view import (POWER_CAUTION, format_solution, solution_summary,
                                        summary_from_stored)
-from ohmgraph.io.store import COMPRESS_FROM, decode_strings, encode_strings
+from ohmgraph.io.hdf5_integrity import COMPRESS_FROM
+from ohmgraph.io.store import decode_strings, encode_strings
 
 
 @pytest.fixture

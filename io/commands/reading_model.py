@@ -10,6 +10,7 @@ from ohmgraph.io.check_view import format_report
 from ohmgraph.io.commands.reading_options import check_output
 from ohmgraph.io.errors import NotWellPosed, SolverError
 from ohmgraph.io.measurement_table import accuracy_rules, read_measurements
+from ohmgraph.io.memory_guard import refuse_if_too_big
 from ohmgraph.io.reader import read_network
 from ohmgraph.io.result_store import command_options
 from ohmgraph.io.result_table import write_result_table
@@ -20,6 +21,7 @@ def read_inputs(args):
     check_output(args)
     rules = accuracy_rules(args.accuracy)
     net = read_network(args.network, ground=args.ground)
+    refuse_if_too_big(net, args.method, args.network)
     return net, read_measurements(args.measurements, net, rules)
 
 

@@ -23,6 +23,7 @@ from ohmgraph.io.csv_table import write_csv
 from ohmgraph.io.errors import EXIT_OK, InputError, NotWellPosed, SolverError
 from ohmgraph.io.formats import require_format
 from ohmgraph.io.jsonout import dumps
+from ohmgraph.io.memory_guard import refuse_if_too_big
 from ohmgraph.io.numbers import UNCERTAINTY_DIGITS, digits_for, quantity, significant
 from ohmgraph.io.pairs import read_pairs
 from ohmgraph.io.progress import Feedback, format_seconds
@@ -119,6 +120,7 @@ def run(args) -> int:
     if ground is None and args.to_reference:
         ground = DEFAULT_REFERENCE
     net = read_network(args.network, ground=ground)
+    refuse_if_too_big(net, args.method, args.network)
     if args.between and args.ground is None:
         _nodes(args, net, args.between[0], "--between")     # an unknown label: InputError
         net = net.with_reference(args.between[0])

@@ -14,7 +14,9 @@ from ohmgraph.io.atomic import refuse_existing, refuse_input
 from ohmgraph.io.check_view import format_report, report_to_dict
 from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, SolverError
 from ohmgraph.io.formats import HDF5, require_format
+from ohmgraph.io.interrupts import checkpoint
 from ohmgraph.io.jsonout import dumps
+from ohmgraph.io.memory_guard import refuse_if_too_big
 from ohmgraph.engine.variant import apply_changes
 from ohmgraph.io.changes import CHANGES_NOTE, change_note, read_changes
 from ohmgraph.io.node_table import node_table_by_label, read_node_table
@@ -85,6 +87,7 @@ def run(args) -> int:
     refuse_input(args.output, [args.network, args.nodes, args.changes, args.start_from])
     refuse_existing(args.output, args.force)
     require_format(args.output, (HDF5,), role="-o")
+    checkpoint("read")
     start = time.perf_counter()
     base = read_solution(args.start_from) if args.start_from else None
     read, notes = read_inputs(args, base)
@@ -103,7 +106,9 @@ def run(args) -> int:
         if nodes is None:
             nodes = node_table_by_label(base, net)
     read_seconds = time.perf_counter() - start
+    refuse_if_too_big(net, args.method, args.network)
 
+    checkpoint("check")
     start = time.perf_counter()
     report = read.check(allow_floating=args.allow_floating)
     check_seconds = time.perf_counter() - start
@@ -112,6 +117,7 @@ def run(args) -> int:
               else format_report(report, net, source=args.network))
         return EXIT_FAILED
 
+    checkpoint("solve")
     try:
         solution = solve(net, method=args.method, rtol=args.rtol,
                          allow_floating=args.allow_floating, report=report,

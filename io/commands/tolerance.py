@@ -17,6 +17,7 @@ from ohmgraph.io.formats import HDF5
 from ohmgraph.io.errors import EXIT_OK, InputError
 from ohmgraph.io.jsonout import dumps
 from ohmgraph.io.measurement_table import parse_percent, read_tolerances
+from ohmgraph.io.memory_guard import refuse_if_too_big
 from ohmgraph.io.numbers import digits_beside, digits_for, significant, uncertainty
 from ohmgraph.io.reader import read_network
 
@@ -102,6 +103,7 @@ def run(args) -> int:
     if args.tolerances is None and args.default is None:
         raise InputError("give --tolerances FILE, --default PCT, or both")
     net = read_network(args.network, ground=args.ground)
+    refuse_if_too_big(net, args.method, args.network)
     tolerance = (read_tolerances(args.tolerances, net, args.default or 0.0)
                  if args.tolerances else np.full(net.n_branches, args.default))
     observed = _observations(net, args.observe)

@@ -1,0 +1,109 @@
+"""SIGINT and SIGTERM end a run cleanly: exit code 128 + signal number, no file left behind.
+
+While :func:`handling` is active the first of these signals raises :class:`Interrupted` in the
+main thread, which unwinds through every ``finally`` and
+:func:`ohmgraph.io.atomic.atomic_output` block; later signals are only recorded, so clean-up is
+never cut short. The signal is also remembered, so a run whose exception was swallowed
+somewhere (a library's ``__del__``, for example) still ends as interrupted when it finishes.
+Code that must not be cut in half — the publishing of a finished file and the final clean-up —
+runs under :func:`deferred`: a signal arriving there is held and raised when the block ends.
+
+Python runs signal handlers between bytecodes of the main thread, so a signal that arrives in
+the middle of a long compiled call (a sparse factorisation, a numba kernel) takes effect when
+that call returns.
+
+:func:`checkpoint` marks the stages of a run for tests: with ``OHMGRAPH_TEST_STAGES`` set it
+prints ``ohmgraph: stage NAME`` on standard error, and with ``OHMGRAPH_TEST_PAUSE=NAME`` it
+also waits there until its standard input is closed, so a test can send a signal at a known
+stage or release two runs together.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import os
+import signal
+import sys
+
+SIGNALS = (signal.SIGINT, signal.SIGTERM)
+
+
+class Interrupted(KeyboardInterrupt):
+    """SIGINT or SIGTERM arrived; ``exit_code`` is 128 + the signal number (130, 143)."""
+
+    def __init__(self, signum: int):
+        self.signum = signum
+        self.exit_code = 128 + signum
+        super().__init__(signal.Signals(signum).name)
+
+
+class _State:
+    received: int | None = None      # first signal of the run
+    deferring: int = 0               # depth of nested deferred() blocks
+
+
+def _raise_once() -> None:
+    """Raise the run's interrupt; later signals are only recorded, so it is raised once."""
+    _State.deferring += 1
+    raise Interrupted(_State.received)
+
+
+def _handler(signum, frame) -> None:
+    if _State.received is None:
+        _State.received = signum
+    if not _State.deferring:
+        _raise_once()
+
+
+def _quiet_unraisable(previous):
+    """An ``sys.unraisablehook`` that stays silent about our own interrupt."""
+    def hook(unraisable):
+        if not isinstance(unraisable.exc_value, KeyboardInterrupt):
+            previous(unraisable)
+    return hook
+
+
+@contextlib.contextmanager
+def handling():
+    """Turn SIGINT and SIGTERM into :class:`Interrupted` inside the block; restore afterwards."""
+    _State.received, _State.deferring = None, 0
+    previous = {signum: signal.signal(signum, _handler) for signum in SIGNALS}
+    previous_hook = sys.unraisablehook
+    sys.unraisablehook = _quiet_unraisable(previous_hook)
+    try:
+        yield
+    finally:
+        for signum, handler in previous.items():
+            signal.signal(signum, handler)
+        sys.unraisablehook = previous_hook
+
+
+def received() -> Interrupted | None:
+    """The interrupt of this run, if a signal arrived (even one whose exception was lost)."""
+    return None if _State.received is None else Interrupted(_State.received)
+
+
+@contextlib.contextmanager
+def deferred():
+    """Hold SIGINT and SIGTERM for the block; raise :class:`Interrupted` after it if one came."""
+    _State.deferring += 1
+    try:
+        yield
+    finally:
+        _State.deferring -= 1
+    if not _State.deferring and _State.received is not None:
+        _raise_once()
+
+
+def hold() -> None:
+    """Hold SIGINT and SIGTERM for the rest of the run (its final clean-up and message)."""
+    _State.deferring += 1
+
+
+def checkpoint(stage: str) -> None:
+    """Mark a stage of the run for tests (see the module notes); does nothing otherwise."""
+    if "OHMGRAPH_TEST_STAGES" not in os.environ and "OHMGRAPH_TEST_PAUSE" not in os.environ:
+        return
+    print(f"ohmgraph: stage {stage}", file=sys.stderr, flush=True)
+    if os.environ.get("OHMGRAPH_TEST_PAUSE") == stage:
+        sys.stdin.read()
