@@ -18,20 +18,61 @@ import sys
 from . import atomic, interrupts
 from .errors import EXIT_BAD_INPUT, EXIT_NO_MEMORY, EXIT_OK, OUT_OF_MEMORY, UserError
 
-COMMANDS = ["check", "solve", "show", "generate", "demo", "compare", "diagnose", "tolerance",
-            "resistance", "limits", "export", "map", "report", "diff", "verify"]
+# Every command and its one-line summary. ``ohmgraph --help`` lists them without importing any
+# command module (so it starts fast); a command's own module is imported only when it runs.
+# tests/test_cli.py checks that each summary equals the help its module registers.
+COMMANDS = {
+    "check": "check that a network is well-posed",
+    "solve": "solve a network and store every voltage, current and power in HDF5",
+    "show": "print the summary of a stored solution",
+    "generate": "write a generated network as a branch table",
+    "demo": "run the whole pipeline on an invented sensor-board supply mesh",
+    "compare": "compare readings of a built network with the model",
+    "diagnose": "rank single-resistor faults (open, short, value) that explain readings",
+    "tolerance": "spread of node voltages from resistor tolerances",
+    "resistance": "effective resistance between nodes, across resistors, Kirchhoff index",
+    "limits": "check a stored solution against drop limits and branch ratings",
+    "export": "write nodes and branches of a stored solution to CSV or Parquet",
+    "map": "draw a map of drop, voltage, current or power (or histograms)",
+    "report": "write one self-contained HTML report of a stored solution",
+    "diff": "compare two stored solutions (a base and a variant)",
+    "verify": "recompute a stored solution's evidence and check it against its network",
+}
 
 
-def build_parser() -> argparse.ArgumentParser:
+def build_parser(commands=None) -> argparse.ArgumentParser:
+    """The argument parser: full parsers for ``commands`` (all when None), one-line placeholders
+    for the others."""
     parser = argparse.ArgumentParser(
         prog="ohmgraph",
         description="Check, solve and query large linear resistive networks.")
-    parser.add_argument("--version", action="version",
-                        version=f"ohmgraph {importlib.metadata.version('ohmgraph')}")
+    parser.add_argument("--version", action=_Version, help="print the version and exit")
     subparsers = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
-    for name in COMMANDS:
-        importlib.import_module(f"ohmgraph.io.commands.{name}").register(subparsers)
+    for name, summary in COMMANDS.items():
+        if commands is None or name in commands:
+            importlib.import_module(f"ohmgraph.io.commands.{name}").register(subparsers)
+        else:
+            subparsers.add_parser(name, help=summary, add_help=False)
     return parser
+
+
+class _Version(argparse.Action):
+    """``--version``: the installed distribution's version, looked up only when asked for
+    (reading the package metadata costs about 40 ms)."""
+
+    def __init__(self, option_strings, dest, **kwargs):
+        super().__init__(option_strings, dest, nargs=0, default=argparse.SUPPRESS, **kwargs)
+
+    def __call__(self, parser, namespace, values, option_string=None):
+        print(f"ohmgraph {importlib.metadata.version('ohmgraph')}")
+        parser.exit()
+
+
+def chosen_command(argv) -> list:
+    """The command named on the command line (the first word that is not an option), as a
+    list of at most one name."""
+    words = [word for word in argv if not word.startswith("-")]
+    return [words[0]] if words and words[0] in COMMANDS else []
 
 
 def main(argv=None) -> int:
@@ -46,7 +87,8 @@ def main(argv=None) -> int:
         try:
             try:
                 interrupts.checkpoint("start")
-                args = build_parser().parse_args(argv)
+                argv = sys.argv[1:] if argv is None else list(argv)
+                args = build_parser(chosen_command(argv)).parse_args(argv)
                 name = f"ohmgraph {args.command}"
                 code = _run(args)
             except KeyboardInterrupt:

@@ -43,3 +43,26 @@ def test_closed_pipe_ends_quietly(tmp_path):
     _, err = child.communicate(timeout=120)
     assert b"Traceback" not in err and b"BrokenPipeError" not in err
     assert child.returncode == 0
+
+
+def test_command_summaries_match_their_modules():
+    # ``ohmgraph --help`` lists COMMANDS without importing the modules; each summary must be the
+    # help its module registers.
+    import argparse
+    import importlib
+
+    for name, summary in COMMANDS.items():
+        subparsers = argparse.ArgumentParser().add_subparsers()
+        importlib.import_module(f"ohmgraph.io.commands.{name}").register(subparsers)
+        registered = {action.dest: action.help for action in subparsers._choices_actions}
+        assert registered[name] == summary, name
+
+
+def test_help_and_version_import_no_command_module():
+    code = ("import sys\nfrom ohmgraph.io.cli import main\n"
+            "try:\n    main(['--help'])\nexcept SystemExit:\n    pass\n"
+            "loaded = [m for m in sys.modules if m.startswith(('ohmgraph.io.commands.', "
+            "'ohmgraph.engine', 'numpy', 'scipy'))]\nprint(loaded)")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True).stdout
+    assert out.strip().splitlines()[-1] == "[]"
