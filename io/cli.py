@@ -19,7 +19,7 @@ import numpy as np
 from ohmgraph.io.errors import EXIT_BAD_INPUT, EXIT_OK, UserError
 
 COMMANDS = ["check", "solve", "show", "generate", "demo", "compare", "diagnose", "tolerance",
-            "resistance"]
+            "resistance", "convert"]
 
 
 def build_parser() -> argparse.ArgumentParser:

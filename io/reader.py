@@ -32,6 +32,7 @@ import pyarrow.csv as pa_csv
 
 from ohmgraph.engine.network import KIND_CODE, RESISTOR, Network
 from ohmgraph.io.errors import InputError, ProblemList
+from ohmgraph.io.network_file import is_hdf5, read_network_file
 
 COLUMNS = ("name", "kind", "from", "to", "value")
 REQUIRED_COLUMNS = ("from", "to", "value")
@@ -70,7 +71,8 @@ def read_network(path, ground: str = "0") -> Network:
     ----------
     path : str or Path
         A ``.csv`` / ``.tsv`` branch table or a whitespace edge list, optionally gzip-compressed
-        (``.gz``).
+        (``.gz``), or an HDF5 network file written by ``ohmgraph convert`` (recognised by its
+        signature, :mod:`ohmgraph.io.network_file`).
     ground : str, default ``"0"``
         Label of the reference (0 V) node; it must be one of the nodes.
 
@@ -89,6 +91,8 @@ def read_network(path, ground: str = "0") -> Network:
         raise InputError(f"{path}: no such file")
     if not path.is_file():
         raise InputError(f"{path}: not a file")
+    if is_hdf5(path):
+        return read_network_file(path, ground)
     delimiter = table_delimiter(path)
     try:
         if delimiter is None:

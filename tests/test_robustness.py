@@ -100,6 +100,7 @@ SOLUTIONS = {
         p, lambda h5: _replace(h5, "branches/from", np.array([0.5, 1.0, 1.0, 1.0]))),
     "timing_text.h5": lambda p: _tampered(
         p, lambda h5: h5["timings"].attrs.__setitem__("read", "slow")),
+    "net.h5": lambda p: main(["convert", "net.csv", "-o", str(p)]),
 }
 
 
@@ -191,6 +192,15 @@ REFUSED = [
     ("show notes_number.h5", EXIT_BAD_INPUT, "'notes' is 5"),
     ("show float_index.h5", EXIT_BAD_INPUT, "/branches/from holds float64"),
     ("show timing_text.h5", EXIT_BAD_INPUT, "/timings"),
+    # HDF5 network files
+    ("convert islands.csv -o out.h5", EXIT_FAILED, "floating"),
+    ("convert net.csv -o net.h5", EXIT_OUTPUT_REFUSED, "already exists"),
+    ("convert net.csv -o net.csv --force", EXIT_BAD_INPUT, "is also the input file"),
+    ("convert truncated.csv.gz -o out.h5", EXIT_BAD_INPUT, "cannot be read"),
+    ("check sol.h5", EXIT_BAD_INPUT, "not an ohmgraph network file"),
+    ("solve foreign.h5 -o out.h5", EXIT_BAD_INPUT, "not an ohmgraph network file"),
+    ("solve truncated.h5 -o out.h5", EXIT_BAD_INPUT, "not an HDF5 file"),
+    ("solve net.h5 -o out.h5 --ground nowhere", EXIT_BAD_INPUT, "reference node 'nowhere'"),
     # measurement tables
     ("compare net.csv meas_inf.csv --accuracy 1%", EXIT_BAD_INPUT,
      "meas_inf.csv:2: column 'value': 'inf' is not a finite number"),
