@@ -4,15 +4,21 @@
 and :data:`SOLVERS` registers the back ends by name:
 
 * ``direct`` (:mod:`.direct`): sparse LU by SuperLU;
-* ``amg-cg`` (:mod:`.amg_cg`): conjugate gradient preconditioned by classical AMG (pyamg).
+* ``amg-cg`` (:mod:`.amg_cg`): conjugate gradient preconditioned by classical AMG (pyamg);
+* ``petsc`` (:mod:`.petsc`): conjugate gradient preconditioned by hypre's BoomerAMG through
+  PETSc, registered only when petsc4py is installed (``make mpi``); it is never imported before a
+  PETSc solver is set up.
 """
 
 from __future__ import annotations
+
+import importlib.util
 
 from .amg_cg import AmgCgSolver
 from .base import (DEFAULT_RTOL, DIRECT_RESIDUAL_LIMIT, SolveInfo, SolverFailed, SPDSolver,
                    relative_residual, shortfall, single_threaded_blas)
 from .direct import DirectSolver
+from .petsc import PetscSolver
 
 # ``auto`` picks direct up to this many unknowns. Set-up plus one solve (benchmarks/README.md):
 # direct wins on lattices below about 40,000 unknowns and on k-nearest-neighbour graphs up to
@@ -21,6 +27,8 @@ from .direct import DirectSolver
 AUTO_DIRECT_LIMIT = 100_000
 DIRECT_FALLBACK_LIMIT = 2_000_000
 SOLVERS = {"direct": DirectSolver, "amg-cg": AmgCgSolver}
+if importlib.util.find_spec("petsc4py") is not None:
+    SOLVERS["petsc"] = PetscSolver
 
 
 def choose_method(n_unknowns: int, method: str = "auto") -> str:

@@ -10,8 +10,9 @@ from ohmgraph.engine.solvers import DEFAULT_RTOL, SOLVERS, SolverFailed
 from ohmgraph.io.commands.argtypes import positive_float
 from ohmgraph.io.atomic import refuse_existing, refuse_input
 from ohmgraph.io.check_view import format_report, report_to_dict
-from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, SolverError
+from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, SolverError, UserError
 from ohmgraph.io.jsonout import dumps
+from ohmgraph.io.mpi_launch import launched_rank, launched_size
 from ohmgraph.io.reader import read_network
 from ohmgraph.io.solution_view import format_solution, solution_summary
 from ohmgraph.io.store import write_solution
@@ -25,11 +26,14 @@ def register(subparsers) -> None:
                     "network is not well-posed the check report is printed, nothing is written "
                     "and the exit code is 1.")
     parser.add_argument("network", metavar="NET", help="network file (.csv, .tsv, edge list; "
-                                                       "optionally .gz)")
+                                                       "optionally .gz; or an HDF5 network "
+                                                       "file from 'convert', which a run "
+                                                       "under mpiexec needs)")
     parser.add_argument("-o", "--output", required=True, metavar="OUT.h5",
                         help="HDF5 file to create")
     parser.add_argument("--method", choices=["auto", *SOLVERS], default="auto",
-                        help="linear solver (default: auto, direct for small systems)")
+                        help="linear solver (default: auto, direct for small systems; petsc "
+                             "under mpiexec with more than one process)")
     parser.add_argument("--rtol", type=positive_float, default=DEFAULT_RTOL,
                         help=f"relative residual target (default {DEFAULT_RTOL:g})")
     parser.add_argument("--ground", default="0", metavar="LABEL",
@@ -42,7 +46,22 @@ def register(subparsers) -> None:
 
 
 def run(args) -> int:
-    """Run ``solve``; return the exit code (see :mod:`ohmgraph.io.errors`)."""
+    """Run ``solve``; return the exit code (see :mod:`ohmgraph.io.errors`).
+
+    Under ``mpiexec`` with more than one process, or with ``--method petsc``, the solve is
+    distributed (:mod:`ohmgraph.io.parallel_solve`); only the first process prints an error.
+    """
+    size = launched_size()
+    if size is not None and (size > 1 or args.method == "petsc"):
+        try:
+            from ohmgraph.io.mpi_launch import mpi_world
+            from ohmgraph.io.parallel_solve import run_distributed
+
+            return run_distributed(args, mpi_world())
+        except UserError as error:
+            if launched_rank() != 0:
+                return error.exit_code
+            raise
     refuse_input(args.output, [args.network])
     refuse_existing(args.output, args.force)
     start = time.perf_counter()

@@ -1,0 +1,228 @@
+"""``ohmgraph solve NET.h5 -o OUT.h5`` under ``mpiexec``: every process reads its slice, PETSc
+solves, the processes write the solution file in turns.
+
+Process ``r`` of ``N`` reads branches ``m r / N`` to ``m (r + 1) / N`` of the HDF5 network file
+(:mod:`ohmgraph.io.network_file`) and the node-to-unknown map; the first also reads the
+contraction's spanning forest. :func:`ohmgraph.engine.distributed.solve_distributed` does the
+rest of the computation. The solution file has the layout of :mod:`ohmgraph.io.store`: the first
+process creates it under a temporary name (the columns copied from the network file, the result
+columns empty), then each process in rank order writes its rows of the branch and node results,
+and the first renames it into place; no process ever holds every branch's values. A failure on
+any process ends every process with the same exit code and leaves no file.
+"""
+
+from __future__ import annotations
+
+import os
+import time
+from datetime import datetime, timezone
+from pathlib import Path
+
+import h5py
+import numpy as np
+
+from ohmgraph.engine.distributed import BranchPart, Forest, solve_distributed
+from ohmgraph.engine.ordering import NodeUnknowns
+from ohmgraph.io.atomic import refuse_existing, refuse_input
+from ohmgraph.io.errors import InputError, OutputRefused, SolverError, UserError
+from ohmgraph.io.mpi_launch import LaunchError, agree
+from ohmgraph.io.network_file import NetworkFile, is_hdf5
+from ohmgraph.io.store import (COMPRESS_FROM, CHUNK_ELEMENTS, DESCRIPTIONS, GZIP_LEVEL,
+                               LAYOUT_VERSION, UNITS, file_sha256, tool_version)
+
+METHOD = "petsc"
+
+
+def share(total: int, rank: int, size: int) -> tuple[int, int]:
+    """Rows ``lo:hi`` of ``total`` held by process ``rank`` of ``size`` (contiguous, balanced)."""
+    return total * rank // size, total * (rank + 1) // size
+
+
+def _read(args, rank: int, size: int):
+    """This process's slice, the node map and (first process) the forest; checks the launch."""
+    if Path(args.network).is_file() and not is_hdf5(args.network):
+        raise LaunchError(f"{args.network}: a run under mpiexec reads an HDF5 network file; "
+                          f"write one with 'ohmgraph convert {args.network} -o NET.h5'")
+    with NetworkFile(args.network) as stored:
+        if str(args.ground) != stored.reference_label:
+            raise InputError(f"{args.network}: the file was converted with reference node "
+                             f"{stored.reference_label!r}; convert again with --ground "
+                             f"{args.ground}")
+        if bool(args.allow_floating) != stored.allow_floating:
+            raise InputError(f"{args.network}: the file was converted "
+                             f"{'with' if stored.allow_floating else 'without'} "
+                             "--allow-floating; convert again to change it")
+        lo, hi = share(stored.n_branches, rank, size)
+        rows = stored.branches(lo, hi)
+        part = BranchPart(lo, rows.kind, rows.from_node, rows.to_node, rows.value)
+        nodes = NodeUnknowns(*(stored.column(f"nodes/{name}")
+                               for name in ("unknown", "held", "offset")))
+        forest = _forest(stored) if rank == 0 else None
+        return stored.n_nodes, stored.unknowns, part, nodes, forest
+
+
+def _forest(stored: NetworkFile) -> Forest:
+    branches = stored.column("contraction/source_branches")[
+        stored.column("contraction/tree").astype(bool)]
+    if branches.size == 0:
+        empty = np.empty(0, np.int64)
+        return Forest(empty, empty, empty, empty)
+    frm = stored._h5["branches/from"][np.sort(branches)].astype(np.int64)
+    to = stored._h5["branches/to"][np.sort(branches)].astype(np.int64)
+    branches = np.sort(branches)
+    ends = np.unique(np.concatenate([frm, to]))
+    roots = ends[stored._h5["nodes/root"][ends] == ends]
+    return Forest(branches.astype(np.int64), frm, to, roots)
+
+
+def run_distributed(args, comm) -> int:
+    """Run a multi-process ``solve``; every process returns the same exit code.
+
+    Raises
+    ------
+    UserError
+        On every process, with the first process's message, when any process fails.
+    """
+    rank, size = comm.Get_rank(), comm.Get_size()
+    start = time.perf_counter()
+    error = None
+    try:
+        if args.method not in ("auto", METHOD):
+            raise LaunchError(f"a run under mpiexec solves with --method {METHOD}, not "
+                              f"{args.method}")
+        if rank == 0:
+            refuse_input(args.output, [args.network])
+            refuse_existing(args.output, args.force)
+        n_nodes, n_unknowns, part, nodes, forest = _read(args, rank, size)
+    except UserError as failure:
+        error = failure
+    agree(comm, error)
+    read_seconds = comm.allreduce(time.perf_counter() - start, op=_max())
+
+    node_range = share(n_nodes, rank, size)
+    result = solve_distributed(comm, part, nodes, n_unknowns, node_range, forest, args.rtol)
+    if not result.finite:
+        raise SolverError(f"{args.network}: the solution overflows double precision (IEEE 754 "
+                          "binary64): rescale the values, for example to other units")
+    if not result.converged:
+        raise SolverError(f"{args.network}: {METHOD} solve ended at relative residual "
+                          f"{result.relative_residual:.3g} (rtol {args.rtol:g})")
+    timings = {"read": read_seconds,
+               **{stage: comm.allreduce(seconds, op=_max())
+                  for stage, seconds in result.timings.items()}}
+    store_seconds = write_in_turns(comm, args, part, node_range, result, n_unknowns, timings)
+    if rank == 0:
+        print(f"{args.network} -> {args.output}")
+        print(f"{size} processes, method {METHOD} (CG + {result.preconditioner}), "
+              f"{n_unknowns} unknowns, {result.iterations} iterations, relative residual "
+              f"{result.relative_residual:.3g}")
+        print(f"KCL max residual {result.kcl_max_residual:.3g} A, power balance "
+              f"{result.power_balance:.3g} W (dissipated {result.power_dissipated:.6g} W)")
+        print("time (s)  " + "  ".join(f"{stage} {seconds:.3g}" for stage, seconds in
+                                       {**timings, "store": store_seconds}.items()))
+    return 0
+
+
+def _max():
+    from mpi4py import MPI
+
+    return MPI.MAX
+
+
+def _create(group, name: str, shape: int, dtype, source: h5py.Dataset | None = None):
+    """An empty dataset of the solution layout (chunked and compressed like the store's)."""
+    options = {}
+    if shape >= COMPRESS_FROM:
+        options = dict(chunks=(min(shape, CHUNK_ELEMENTS),), compression="gzip",
+                       compression_opts=GZIP_LEVEL, shuffle=True)
+    dataset = group.create_dataset(name, shape=(shape,), dtype=dtype, **options)
+    key = f"{group.name.strip('/')}/{name}"
+    if key in UNITS:
+        dataset.attrs["units"] = UNITS[key]
+    if key in DESCRIPTIONS:
+        dataset.attrs["description"] = DESCRIPTIONS[key]
+    return dataset
+
+
+def _start_file(temporary: Path, args, result, n_unknowns: int, size: int) -> None:
+    """First process: the file with its copied columns, empty result columns and attributes."""
+    with (h5py.File(args.network, "r") as source,
+          h5py.File(temporary, "w", track_order=True) as h5):
+        labels = source["nodes/label"]
+        worst = labels[result.kcl_worst_node].decode("utf-8")
+        h5.attrs.update({
+            "layout": "ohmgraph solution", "layout_version": LAYOUT_VERSION,
+            "tool_version": tool_version(),
+            "created": datetime.now(timezone.utc).isoformat(timespec="seconds"),
+            "reference": source.attrs["reference"], "method": METHOD, "ranks": size,
+            "preconditioner": result.preconditioner, "rtol": float(args.rtol),
+            "iterations": result.iterations, "relative_residual": result.relative_residual,
+            "kcl_max_residual": result.kcl_max_residual, "kcl_worst_node": worst,
+            "power_balance": result.power_balance, "power_delivered": result.power_delivered,
+            "power_absorbed_by_sources": result.power_absorbed_by_sources,
+            "power_dissipated": result.power_dissipated,
+            "notes": np.array([], dtype=h5py.string_dtype()), "unknowns": n_unknowns,
+            "input_file": Path(args.network).name, "input_sha256": file_sha256(args.network)})
+        nodes = h5.create_group("nodes")
+        source.copy(labels, nodes, "label")
+        _create(nodes, "voltage", labels.shape[0], np.float64)
+        branches = h5.create_group("branches")
+        for name in ("name", "kind", "from", "to", "value"):
+            source.copy(source[f"branches/{name}"], branches, name)
+        m = source["branches/from"].shape[0]
+        for name in ("current", "voltage", "power"):
+            _create(branches, name, m, np.float64)
+        determined = _create(branches, "current_determined", m, bool)
+        determined[...] = True
+        determined[np.sort(source["contraction/undetermined"][...])] = False
+        source.copy(source["checks"], h5, "checks")
+
+
+def write_in_turns(comm, args, part: BranchPart, node_range, result, n_unknowns: int,
+                   timings: dict) -> float:
+    """Write the solution file: created by the first process, filled by each in rank order.
+
+    Returns the seconds spent (the slowest process).
+    """
+    rank, size = comm.Get_rank(), comm.Get_size()
+    start = time.perf_counter()
+    temporary = comm.bcast(Path(args.output).with_name(f".{Path(args.output).name}."
+                                                       f"{os.getpid()}.tmp")
+                           if rank == 0 else None, root=0)
+    error = None
+    try:
+        if rank == 0:
+            _start_file(temporary, args, result, n_unknowns, size)
+    except (OSError, UserError) as failure:
+        error = failure if isinstance(failure, UserError) else OutputRefused(
+            f"{args.output}: cannot be written ({failure})")
+    for turn in range(size):
+        if error is None and rank == turn:
+            try:
+                with h5py.File(temporary, "r+") as h5:
+                    lo, hi = part.start, part.start + part.kind.size
+                    h5["branches/current"][lo:hi] = result.branch_current
+                    h5["branches/voltage"][lo:hi] = result.branch_voltage
+                    h5["branches/power"][lo:hi] = result.branch_power
+                    h5["nodes/voltage"][node_range[0]:node_range[1]] = result.node_voltage
+            except OSError as failure:
+                error = OutputRefused(f"{args.output}: cannot be written ({failure})")
+        failed = comm.allreduce(error is not None)
+        if failed:
+            break
+    try:
+        seconds = comm.allreduce(time.perf_counter() - start, op=_max())
+        if rank == 0 and error is None and not failed:
+            with h5py.File(temporary, "r+") as h5:
+                group = h5.create_group("timings", track_order=True)
+                group.attrs["units"] = "s"
+                for stage, value in {**timings, "store": seconds}.items():
+                    group.attrs[stage] = float(value)
+            os.replace(temporary, args.output)
+    except OSError as failure:
+        error = OutputRefused(f"{args.output}: cannot be written ({failure})")
+    finally:
+        if rank == 0 and temporary.exists():
+            temporary.unlink()
+    agree(comm, error)
+    return seconds
