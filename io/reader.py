@@ -6,6 +6,9 @@ Formats, chosen by the file extension after an optional ``.gz``:
   ``from``, ``to``, ``value`` in any order (case-insensitive). ``from``, ``to`` and ``value`` are
   required; a missing ``name`` column names each branch by its 1-based row number, a missing
   ``kind`` column makes every branch a resistor, and an empty ``kind`` field means ``R``.
+* ``.parquet``: an Apache Parquet table with the same columns (any column types: labels and
+  kinds are read as text, values as numbers); problems are reported by 1-based row number
+  (``FILE:ROW: column ...``).
 * any other extension: a plain edge list, one resistor per line as ``from to ohms`` separated by
   spaces or tabs, with ``#`` comments (whole lines or trailing) and blank lines allowed.
 
@@ -37,6 +40,7 @@ from ohmgraph.io.network_file import is_hdf5, read_network_file
 COLUMNS = ("name", "kind", "from", "to", "value")
 REQUIRED_COLUMNS = ("from", "to", "value")
 TABLE_DELIMITERS = {".csv": ",", ".tsv": "\t"}
+PARQUET_SUFFIX = ".parquet"
 EDGE_LIST_FIELDS = ("from", "to", "value")
 # Edge-list lines are read whole by splitting on a control character (ASCII unit separator) that
 # text files do not hold; a line that does hold one goes to the exact pass.
@@ -95,7 +99,9 @@ def read_network(path, ground: str = "0") -> Network:
         return read_network_file(path, ground)
     delimiter = table_delimiter(path)
     try:
-        if delimiter is None:
+        if path.suffix.lower() == PARQUET_SUFFIX:
+            columns = _read_parquet(path)
+        elif delimiter is None:
             columns = _read_edge_list(path)
         else:
             columns = _read_table(path, delimiter)
@@ -168,6 +174,36 @@ def _read_table(path: Path, delimiter: str) -> _Columns:
         return _convert(table)
     except (pa.ArrowInvalid, _Rejected):
         return _exact_table(path, delimiter, header)
+
+
+def _read_parquet(path: Path) -> _Columns:
+    """A Parquet branch table: every column cast to text, then the CSV conversions."""
+    import pyarrow.parquet as pq
+
+    try:
+        table = pq.read_table(path)
+    except pa.ArrowInvalid as error:
+        raise InputError(f"{path}: not a readable Parquet file ({error})") from None
+    header = [name.strip().lower() for name in table.column_names]
+    unknown = [name for name in header if name not in COLUMNS]
+    missing = [name for name in REQUIRED_COLUMNS if name not in header]
+    if unknown or missing or len(set(header)) != len(header):
+        raise InputError(f"{path}: columns {', '.join(map(repr, table.column_names))}; expected "
+                         f"{', '.join(COLUMNS)} ({', '.join(REQUIRED_COLUMNS)} required, each once)")
+    try:
+        table = pa.table({name: pc.cast(column, pa.string())
+                          for name, column in zip(header, table.columns)})
+    except (pa.ArrowInvalid, pa.ArrowNotImplementedError) as error:
+        raise InputError(f"{path}: a column cannot be read as text ({error})") from None
+    try:
+        return _convert(table)
+    except (pa.ArrowInvalid, _Rejected):
+        problems, rows = ProblemList(path), _ColumnsBuilder()
+        for row, record in enumerate(table.to_pylist(), start=1):
+            rows.add_row(problems, row, {name: (field or "").strip()
+                                         for name, field in record.items()})
+        problems.raise_if_any()
+        return rows.columns(named="name" in header)
 
 
 def _read_edge_list(path: Path) -> _Columns:

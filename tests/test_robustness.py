@@ -25,6 +25,17 @@ from ohmgraph.io.errors import (EXIT_BAD_INPUT, EXIT_FAILED, EXIT_OK, EXIT_OUTPU
 NET = ("name,kind,from,to,value\nsupply,V,top,0,10\nr_upper,R,top,mid,1000\n"
        "r_lower,R,mid,0,3000\nload,I,mid,0,0.002\n")
 ISLANDS = "from,to,value\na,0,1\nb,c,1\n"             # b-c has no path to the reference
+
+
+def _parquet(columns: dict) -> bytes:
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    sink = pa.BufferOutputStream()
+    pq.write_table(pa.table(columns), sink)
+    return sink.getvalue().to_pybytes()
+
+
 LONG = "x" * 300                                    # longer than a file name may be (POSIX 255)
 
 
@@ -62,6 +73,10 @@ FILES = {
     "wide_spread.csv": "name,kind,from,to,value\nV1,V,1,0,1\nR1,R,1,2,1e-300\nR2,R,2,0,1e300\n",
     "overflow.csv": "name,kind,from,to,value\nV1,V,1,0,1e300\nR1,R,1,0,1e-300\n",
     "islands.csv": ISLANDS,
+    "bad.parquet": _parquet({"from": ["1", "", "2"], "to": ["0", "2", "0"],
+                             "value": ["1", "x", "0.5"]}),
+    "no_value.parquet": _parquet({"from": ["1"], "to": ["0"]}),
+    "junk.parquet": "not parquet",
     "kvl.csv": "name,kind,from,to,value\nV1,V,1,0,5\nV2,V,1,0,3\nR1,R,1,0,1\n",
     "negative.csv": "name,kind,from,to,value\nR1,R,1,0,-1\nR2,R,1,0,1\n",
     "sources_only.csv": "name,kind,from,to,value\nV1,V,1,0,5\n",
@@ -192,6 +207,11 @@ REFUSED = [
     ("show notes_number.h5", EXIT_BAD_INPUT, "'notes' is 5"),
     ("show float_index.h5", EXIT_BAD_INPUT, "/branches/from holds float64"),
     ("show timing_text.h5", EXIT_BAD_INPUT, "/timings"),
+    # Parquet branch tables
+    ("check bad.parquet", EXIT_BAD_INPUT, "bad.parquet:2: column 'value': 'x' is not a number"),
+    ("check bad.parquet", EXIT_BAD_INPUT, "bad.parquet:2: column 'from': empty node label"),
+    ("check no_value.parquet", EXIT_BAD_INPUT, "(from, to, value required, each once)"),
+    ("solve junk.parquet -o out.h5", EXIT_BAD_INPUT, "not a readable Parquet file"),
     # HDF5 network files
     ("convert islands.csv -o out.h5", EXIT_FAILED, "floating"),
     ("convert net.csv -o net.h5", EXIT_OUTPUT_REFUSED, "already exists"),
