@@ -25,6 +25,7 @@ from ohmgraph.engine.distributed import BranchPart, Forest, solve_distributed
 from ohmgraph.engine.ordering import NodeUnknowns
 from ohmgraph.io.atomic import refuse_existing, refuse_input
 from ohmgraph.io.errors import InputError, OutputRefused, SolverError, UserError
+from ohmgraph.io.jsonout import dumps
 from ohmgraph.io.mpi_launch import LaunchError, agree
 from ohmgraph.io.network_file import NetworkFile, is_hdf5
 from ohmgraph.io.store import (COMPRESS_FROM, CHUNK_ELEMENTS, DESCRIPTIONS, GZIP_LEVEL,
@@ -112,15 +113,29 @@ def run_distributed(args, comm) -> int:
                   for stage, seconds in result.timings.items()}}
     store_seconds = write_in_turns(comm, args, part, node_range, result, n_unknowns, timings)
     if rank == 0:
-        print(f"{args.network} -> {args.output}")
-        print(f"{size} processes, method {METHOD} (CG + {result.preconditioner}), "
-              f"{n_unknowns} unknowns, {result.iterations} iterations, relative residual "
-              f"{result.relative_residual:.3g}")
-        print(f"KCL max residual {result.kcl_max_residual:.3g} A, power balance "
-              f"{result.power_balance:.3g} W (dissipated {result.power_dissipated:.6g} W)")
-        print("time (s)  " + "  ".join(f"{stage} {seconds:.3g}" for stage, seconds in
-                                       {**timings, "store": store_seconds}.items()))
+        summary = {"output": str(args.output), "ranks": size, "method": METHOD,
+                   "preconditioner": result.preconditioner, "unknowns": n_unknowns,
+                   "iterations": result.iterations, "rtol": args.rtol,
+                   "relative_residual": result.relative_residual,
+                   "kcl_max_residual_A": result.kcl_max_residual,
+                   "power_balance_W": result.power_balance,
+                   "power_dissipated_W": result.power_dissipated,
+                   "timings_s": {**timings, "store": store_seconds}}
+        print(dumps(summary) if args.json else _text(args, summary))
     return 0
+
+
+def _text(args, summary: dict) -> str:
+    """The summary as lines of text."""
+    return "\n".join([
+        f"{args.network} -> {args.output}",
+        f"{summary['ranks']} process(es), method {METHOD} (CG + {summary['preconditioner']}), "
+        f"{summary['unknowns']} unknowns, {summary['iterations']} iterations, relative residual "
+        f"{summary['relative_residual']:.3g}",
+        f"KCL max residual {summary['kcl_max_residual_A']:.3g} A, power balance "
+        f"{summary['power_balance_W']:.3g} W (dissipated {summary['power_dissipated_W']:.6g} W)",
+        "time (s)  " + "  ".join(f"{stage} {seconds:.3g}"
+                                 for stage, seconds in summary["timings_s"].items())])
 
 
 def _max():

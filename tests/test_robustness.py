@@ -49,6 +49,12 @@ def _tampered(path, change) -> None:
         change(h5)
 
 
+def _tampered_network(path) -> None:
+    main(["convert", "net.csv", "-o", str(path)])
+    with h5py.File(path, "a") as h5:
+        h5["branches/kind"][1] = b"X"
+
+
 def _replace(h5, name, data) -> None:
     del h5[name]
     h5[name] = data
@@ -116,6 +122,7 @@ SOLUTIONS = {
     "timing_text.h5": lambda p: _tampered(
         p, lambda h5: h5["timings"].attrs.__setitem__("read", "slow")),
     "net.h5": lambda p: main(["convert", "net.csv", "-o", str(p)]),
+    "bad_kind_net.h5": lambda p: _tampered_network(p),
 }
 
 
@@ -221,6 +228,7 @@ REFUSED = [
     ("solve foreign.h5 -o out.h5", EXIT_BAD_INPUT, "not an ohmgraph network file"),
     ("solve truncated.h5 -o out.h5", EXIT_BAD_INPUT, "not an HDF5 file"),
     ("solve net.h5 -o out.h5 --ground nowhere", EXIT_BAD_INPUT, "reference node 'nowhere'"),
+    ("check bad_kind_net.h5", EXIT_BAD_INPUT, "b'X' at row 1 is not a branch kind"),
     # measurement tables
     ("compare net.csv meas_inf.csv --accuracy 1%", EXIT_BAD_INPUT,
      "meas_inf.csv:2: column 'value': 'inf' is not a finite number"),
