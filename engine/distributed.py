@@ -198,12 +198,17 @@ def solve_distributed(comm, part: BranchPart, nodes: NodeUnknowns, n_unknowns: i
     start = time.perf_counter()
     lo, hi = node_range
     ends = np.concatenate([part.from_node, part.to_node, np.arange(lo, hi)])
-    needed, where = np.unique(nodes.unknown[ends], return_inverse=True)
-    free = needed >= 0
-    at_needed = np.full(needed.size, np.nan)
-    at_needed[free] = _gather(PETSc, x, needed[free])
-    potential = np.where(nodes.unknown[ends] >= 0, at_needed[where], nodes.held[ends])
+    unknown_at = nodes.unknown[ends]
+    # The distinct unknowns needed, by marking (linear time; no sort of the endpoint list).
+    marked = np.zeros(n_unknowns + 1, bool)
+    marked[unknown_at + 1] = True
+    marked[0] = False                                   # held potentials (unknown -1)
+    needed = np.flatnonzero(marked) - 1
+    position = np.cumsum(marked) - 1
+    at_needed = _gather(PETSc, x, needed)
+    potential = np.where(unknown_at >= 0, at_needed[position[unknown_at + 1]], nodes.held[ends])
     voltage_at = potential + nodes.offset[ends]
+    del unknown_at, position, marked
     m = part.kind.size
     branch_voltage = voltage_at[:m] - voltage_at[m:2 * m]
     node_voltage = voltage_at[2 * m:]
@@ -265,7 +270,9 @@ def _to_owners(comm, bounds: np.ndarray, rows: np.ndarray, *columns: np.ndarray)
     from mpi4py import MPI
 
     owner = np.searchsorted(bounds, rows, side="right") - 1
-    order = np.argsort(owner, kind="stable")
+    # A stable sort of 16-bit keys is a radix sort in NumPy: linear in the number of entries.
+    order = np.argsort(owner.astype(np.uint16) if comm.Get_size() <= 1 << 16 else owner,
+                       kind="stable")
     counts = np.bincount(owner, minlength=comm.Get_size()).astype(np.int64)
     received = np.empty_like(counts)
     comm.Alltoall(counts, received)
