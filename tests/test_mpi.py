@@ -147,6 +147,8 @@ def small(tmp_path, make_network, capsys):
      "solves with --method petsc"),
     (["solve", "net.h5", "-o", "out.h5", "--ground", "7"], EXIT_BAD_INPUT, "convert again"),
     (["solve", "net.h5", "-o", "taken.h5"], EXIT_OUTPUT_REFUSED, "already exists"),
+    (["solve", "net.h5", "-o", "nowhere/out.h5"], EXIT_OUTPUT_REFUSED, "does not exist"),
+    (["solve", "net.h5", "-o", "net.h5", "--force"], EXIT_BAD_INPUT, "is also the input file"),
 ])
 def test_bad_launches_fail_on_every_rank_with_one_message(small, argv, code, message):
     tmp_path, before = small
