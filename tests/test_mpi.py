@@ -163,3 +163,32 @@ def test_missing_stack_is_reported_not_raised(small):
     done = mpirun(2, "solve", "net.h5", "-o", "out.h5", cwd=tmp_path,
                   env={"PYTHONPATH": str(hidden)})
     _refused(done, tmp_path, before, EXIT_BAD_INPUT, "make mpi")
+
+
+def test_petsc_pair_resistances_match_networkx(make_network):
+    """Many pairs on the PETSc back end (one process) against networkx's
+    ``resistance_distance`` (an independent pseudo-inverse computation)."""
+    import networkx as nx
+
+    from ohmgraph.engine.resistance import ResistanceSolver
+
+    from ohmgraph.engine.network import RESISTOR, Network
+
+    full = make_network(6)
+    keep = (full.kind == RESISTOR) & (full.value > 0)    # the random spanning tree stays
+    net = Network(full.node_labels, full.branch_names[keep], full.kind[keep],
+                  full.from_node[keep], full.to_node[keep], full.value[keep], full.reference)
+    solver = ResistanceSolver(net, method="petsc", rtol=RTOL)
+    rng = np.random.default_rng(0)
+    a, b = rng.choice(net.n_nodes, 12, replace=False).reshape(2, 6)
+    got = solver.pairs(a, b)
+    graph = nx.Graph()
+    for f, t, ohms in zip(net.from_node, net.to_node, net.value):
+        if f != t:
+            old = graph.get_edge_data(f, t, {"g": 0.0})["g"]
+            graph.add_edge(f, t, g=old + 1.0 / ohms)
+    assert solver.stats.method == "petsc"
+    for k in range(a.size):
+        expected = nx.resistance_distance(graph, int(a[k]), int(b[k]), weight="g",
+                                          invert_weight=False)
+        assert got.ohms[k] == pytest.approx(expected, rel=1e-8)
