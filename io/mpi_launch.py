@@ -13,6 +13,7 @@ after every step that can fail on some processes only.
 from __future__ import annotations
 
 import os
+import time
 
 from ohmgraph.io.errors import EXIT_BAD_INPUT, UserError
 
@@ -64,6 +65,18 @@ def mpi_world():
     return MPI.COMM_WORLD
 
 
+def idle_barrier(comm, pause: float = 0.002) -> None:
+    """Collective: wait for every process, sleeping between polls.
+
+    A blocking MPI barrier spins on the CPU; a process that waits for another's turn (while the
+    first writes the output file) would take a core the working process needs whenever there are
+    no more cores than processes. A non-blocking barrier polled every ``pause`` seconds does not.
+    """
+    request = comm.Ibarrier()
+    while not request.Test():
+        time.sleep(pause)
+
+
 def agree(comm, error: UserError | None) -> None:
     """Collective: raise on every process the first error any process met (by rank).
 
@@ -73,6 +86,7 @@ def agree(comm, error: UserError | None) -> None:
     error : UserError or None
         This process's failure, if any.
     """
+    idle_barrier(comm)
     found = comm.allgather(None if error is None else (error.exit_code, str(error)))
     for item in found:
         if item is not None:

@@ -26,7 +26,7 @@ from ohmgraph.engine.ordering import NodeUnknowns
 from ohmgraph.io.atomic import refuse_existing, refuse_input
 from ohmgraph.io.errors import InputError, OutputRefused, SolverError, UserError
 from ohmgraph.io.jsonout import dumps
-from ohmgraph.io.mpi_launch import LaunchError, agree
+from ohmgraph.io.mpi_launch import LaunchError, agree, idle_barrier
 from ohmgraph.io.network_file import NetworkFile, is_hdf5
 from ohmgraph.io.store import (COMPRESS_FROM, CHUNK_ELEMENTS, DESCRIPTIONS, GZIP_LEVEL,
                                LAYOUT_VERSION, UNITS, file_sha256, tool_version)
@@ -201,6 +201,7 @@ def write_in_turns(comm, args, part: BranchPart, node_range, result, n_unknowns:
     """
     rank, size = comm.Get_rank(), comm.Get_size()
     start = time.perf_counter()
+    idle_barrier(comm)
     temporary = comm.bcast(Path(args.output).with_name(f".{Path(args.output).name}."
                                                        f"{os.getpid()}.tmp")
                            if rank == 0 else None, root=0)
@@ -222,10 +223,12 @@ def write_in_turns(comm, args, part: BranchPart, node_range, result, n_unknowns:
                     h5["nodes/voltage"][node_range[0]:node_range[1]] = result.node_voltage
             except OSError as failure:
                 error = OutputRefused(f"{args.output}: cannot be written ({failure})")
+        idle_barrier(comm)
         failed = comm.allreduce(error is not None)
         if failed:
             break
     try:
+        idle_barrier(comm)
         seconds = comm.allreduce(time.perf_counter() - start, op=_max())
         if rank == 0 and error is None and not failed:
             with h5py.File(temporary, "r+") as h5:
