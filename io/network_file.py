@@ -165,6 +165,11 @@ class NetworkFile:
         data = self._h5[name][start:stop]
         return decode_strings(data) if data.dtype.kind == "S" else data
 
+    def rows(self, name: str, indices: np.ndarray) -> np.ndarray:
+        """Entries of one dataset at increasing ``indices`` (an HDF5 point selection)."""
+        return self._h5[name][np.asarray(indices, np.int64)] if len(indices) else \
+            np.empty(0, self._h5[name].dtype)
+
     def branches(self, start: int, stop: int) -> BranchSlice:
         """Rows ``start:stop`` of the branch table."""
         raw = self._h5["branches/kind"][start:stop]

@@ -63,17 +63,14 @@ def _read(args, rank: int, size: int):
 
 
 def _forest(stored: NetworkFile) -> Forest:
-    branches = stored.column("contraction/source_branches")[
-        stored.column("contraction/tree").astype(bool)]
-    if branches.size == 0:
-        empty = np.empty(0, np.int64)
-        return Forest(empty, empty, empty, empty)
-    frm = stored._h5["branches/from"][np.sort(branches)].astype(np.int64)
-    to = stored._h5["branches/to"][np.sort(branches)].astype(np.int64)
-    branches = np.sort(branches)
+    """The contraction's spanning forest: its branches, their endpoints and the roots among them."""
+    tree = stored.column("contraction/tree").astype(bool)
+    branches = np.sort(stored.column("contraction/source_branches")[tree]).astype(np.int64)
+    frm = stored.rows("branches/from", branches).astype(np.int64)
+    to = stored.rows("branches/to", branches).astype(np.int64)
     ends = np.unique(np.concatenate([frm, to]))
-    roots = ends[stored._h5["nodes/root"][ends] == ends]
-    return Forest(branches.astype(np.int64), frm, to, roots)
+    roots = ends[stored.rows("nodes/root", ends) == ends]
+    return Forest(branches, frm, to, roots)
 
 
 def run_distributed(args, comm) -> int:

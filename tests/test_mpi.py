@@ -192,3 +192,19 @@ def test_petsc_pair_resistances_match_networkx(make_network):
         expected = nx.resistance_distance(graph, int(a[k]), int(b[k]), weight="g",
                                           invert_weight=False)
         assert got.ohms[k] == pytest.approx(expected, rel=1e-8)
+
+
+def test_two_ranks_without_voltage_sources(tmp_path, capsys):
+    """No contraction forest at all: a current source into a resistor ladder, against the
+    independent MNA reference (tests/reference_mna.py)."""
+    rows = ["name,kind,from,to,value", "J,I,0,1,0.25"]
+    rows += [f"s{k},R,{k},{k + 1},{1 + k % 3}" for k in range(1, 40)]
+    rows += [f"p{k},R,{k},0,{10 + k}" for k in range(1, 41)]
+    (tmp_path / "ladder.csv").write_text("\n".join(rows) + "\n")
+    assert main(["convert", str(tmp_path / "ladder.csv"), "-o", str(tmp_path / "ladder.h5")]) == 0
+    done = mpirun(2, "solve", "ladder.h5", "-o", "out.h5", "--rtol", RTOL, cwd=tmp_path)
+    assert done.returncode == 0, done.stderr
+    stored = read_solution(tmp_path / "out.h5")
+    reference = mna_solve(read_network(tmp_path / "ladder.csv"))
+    np.testing.assert_allclose(stored.node_voltage, reference.node_voltage, rtol=0,
+                               atol=1e-9 * np.abs(reference.node_voltage).max())
