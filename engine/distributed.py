@@ -1,8 +1,10 @@
 """The reduced nodal system assembled, solved and verified across MPI processes with PETSc.
 
-Every process holds a contiguous slice of the branches and the node-to-unknown map of the HDF5
-network file (:class:`~.ordering.NodeUnknowns`: unknowns in reverse Cuthill–McKee order, so
-PETSc's contiguous row blocks are compact regions of the graph). Each process
+Every process holds a contiguous slice of the branches and a contiguous slice of the nodes'
+node-to-unknown map from the HDF5 network file (:class:`~.ordering.NodeUnknowns`: unknowns in
+reverse Cuthill–McKee order, so PETSc's contiguous row blocks are compact regions of the graph);
+the map entries of its branches' endpoints come from their holders by a ``VecScatter``, so no
+process holds anything of the size of the whole network. Each process
 
 1. turns its resistors and current sources into matrix entries and right-hand-side terms with
    global indices (the same stamps as :func:`~.formulation.assemble`), sends each entry to the
@@ -135,8 +137,8 @@ def _gather(PETSc, vector, indices: np.ndarray) -> np.ndarray:
     return values
 
 
-def solve_distributed(comm, part: BranchPart, nodes: NodeUnknowns, n_unknowns: int,
-                      node_range: tuple[int, int], forest: Forest | None, rtol: float
+def solve_distributed(comm, part: BranchPart, own_nodes: NodeUnknowns, node_range: tuple[int, int],
+                      n_nodes: int, n_unknowns: int, forest: Forest | None, rtol: float
                       ) -> DistributedSolution:
     """Assemble, solve and verify the reduced system across the processes of ``comm``.
 
@@ -146,11 +148,13 @@ def solve_distributed(comm, part: BranchPart, nodes: NodeUnknowns, n_unknowns: i
         The processes taking part (PETSc's ``COMM_WORLD`` must be the same group).
     part : BranchPart
         This process's branches.
-    nodes : NodeUnknowns
-        The whole node-to-unknown map (every process holds it).
-    n_unknowns : int
+    own_nodes : NodeUnknowns
+        The node-to-unknown map of nodes ``node_range`` only; the entries for the endpoints of
+        ``part`` are fetched from their owners.
     node_range : (int, int)
-        The nodes ``lo:hi`` whose voltages this process returns.
+        The nodes ``lo:hi`` this process holds the map of and returns the voltages of
+        (contiguous, in rank order, covering all nodes).
+    n_nodes, n_unknowns : int
     forest : Forest or None
         The contraction's spanning forest on the first process; None elsewhere.
     rtol : float
@@ -161,7 +165,12 @@ def solve_distributed(comm, part: BranchPart, nodes: NodeUnknowns, n_unknowns: i
     timings = {}
 
     start = time.perf_counter()
-    (rows, cols, values), (index, terms) = local_stamps(part, nodes)
+    # The map entries of this slice's endpoints, numbered compactly.
+    m = part.kind.size
+    ends, compact = np.unique(np.concatenate([part.from_node, part.to_node]), return_inverse=True)
+    nodes = _fetch_node_map(PETSc, own_nodes, node_range, n_nodes, ends)
+    local_part = BranchPart(part.start, part.kind, compact[:m], compact[m:], part.value)
+    (rows, cols, values), (index, terms) = local_stamps(local_part, nodes)
     size, rank = comm.Get_size(), comm.Get_rank()
     bounds = np.array([n_unknowns * r // size for r in range(size + 1)], np.int64)
     lo, hi = bounds[rank], bounds[rank + 1]
@@ -196,22 +205,17 @@ def solve_distributed(comm, part: BranchPart, nodes: NodeUnknowns, n_unknowns: i
     relative = residual.norm() / b_norm if b_norm > 0 else residual.norm()
 
     start = time.perf_counter()
-    lo, hi = node_range
-    ends = np.concatenate([part.from_node, part.to_node, np.arange(lo, hi)])
-    unknown_at = nodes.unknown[ends]
-    # The distinct unknowns needed, by marking (linear time; no sort of the endpoint list).
-    marked = np.zeros(n_unknowns + 1, bool)
-    marked[unknown_at + 1] = True
-    marked[0] = False                                   # held potentials (unknown -1)
-    needed = np.flatnonzero(marked) - 1
-    position = np.cumsum(marked) - 1
-    at_needed = _gather(PETSc, x, needed)
-    potential = np.where(unknown_at >= 0, at_needed[position[unknown_at + 1]], nodes.held[ends])
-    voltage_at = potential + nodes.offset[ends]
-    del unknown_at, position, marked
-    m = part.kind.size
-    branch_voltage = voltage_at[:m] - voltage_at[m:2 * m]
-    node_voltage = voltage_at[2 * m:]
+    # Potentials of the slice's endpoints and of this process's own nodes.
+    unknown_at = np.concatenate([nodes.unknown, own_nodes.unknown])
+    needed, position = np.unique(unknown_at, return_inverse=True)
+    at_needed = np.full(needed.size, np.nan)
+    at_needed[needed >= 0] = _gather(PETSc, x, needed[needed >= 0])
+    potential = np.where(unknown_at >= 0, at_needed[position],
+                         np.concatenate([nodes.held, own_nodes.held]))
+    voltage_at = potential + np.concatenate([nodes.offset, own_nodes.offset])
+    branch_voltage = voltage_at[compact[:m]] - voltage_at[compact[m:]]
+    node_voltage = voltage_at[ends.size:]
+    del unknown_at, position, potential, voltage_at
     current = np.zeros(m)
     resistive = (part.kind == RESISTOR) & (part.value > 0)
     current[resistive] = branch_voltage[resistive] / part.value[resistive]
@@ -219,8 +223,7 @@ def solve_distributed(comm, part: BranchPart, nodes: NodeUnknowns, n_unknowns: i
     current[sources] = part.value[sources]
 
     # Node sums of the known currents; the forest accumulates them on the first process.
-    n_nodes = nodes.unknown.size
-    sums = PETSc.Vec().createMPI((PETSc.DECIDE, n_nodes), comm=world)
+    sums = PETSc.Vec().createMPI((node_range[1] - node_range[0], n_nodes), comm=world)
     sums.set(0.0)
     _add_node_sums(PETSc, sums, part.from_node, part.to_node, current)
     forest_nodes = (np.unique(np.concatenate([forest.from_node, forest.to_node]))
@@ -260,6 +263,23 @@ def solve_distributed(comm, part: BranchPart, nodes: NodeUnknowns, n_unknowns: i
         kcl_max_residual=float(kcl), kcl_worst_node=int(worst), power_balance=float(totals[0]),
         power_dissipated=float(totals[1]), power_delivered=float(totals[2]),
         power_absorbed_by_sources=float(totals[3]), finite=finite, timings=timings)
+
+
+def _fetch_node_map(PETSc, own: NodeUnknowns, node_range, n_nodes: int,
+                    wanted: np.ndarray) -> NodeUnknowns:
+    """The map entries of the ``wanted`` nodes from the processes holding them (collective).
+
+    Each process holds the map of its contiguous ``node_range``; three distributed vectors
+    (unknown indices as doubles, exact below 2^53) are scattered to the wanted nodes.
+    """
+    fetched = []
+    for values in (own.unknown.astype(np.float64), own.held, own.offset):
+        vector = PETSc.Vec().createMPI((node_range[1] - node_range[0], n_nodes),
+                                       comm=PETSc.COMM_WORLD)
+        vector.setArray(values)
+        fetched.append(_gather(PETSc, vector, wanted))
+        vector.destroy()
+    return NodeUnknowns(fetched[0].astype(np.int64), fetched[1], fetched[2])
 
 
 def _to_owners(comm, bounds: np.ndarray, rows: np.ndarray, *columns: np.ndarray):

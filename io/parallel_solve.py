@@ -1,9 +1,9 @@
 """``ohmgraph solve NET.h5 -o OUT.h5`` under ``mpiexec``: every process reads its slice, PETSc
 solves, the processes write the solution file in turns.
 
-Process ``r`` of ``N`` reads branches ``m r / N`` to ``m (r + 1) / N`` of the HDF5 network file
-(:mod:`ohmgraph.io.network_file`) and the node-to-unknown map; the first also reads the
-contraction's spanning forest. :func:`ohmgraph.engine.distributed.solve_distributed` does the
+Process ``r`` of ``N`` reads branches ``m r / N`` to ``m (r + 1) / N`` and nodes ``n r / N`` to
+``n (r + 1) / N`` of the node-to-unknown map from the HDF5 network file
+(:mod:`ohmgraph.io.network_file`); the first also reads the contraction's spanning forest. :func:`ohmgraph.engine.distributed.solve_distributed` does the
 rest of the computation. The solution file has the layout of :mod:`ohmgraph.io.store`: the first
 process creates it under a temporary name (the columns copied from the network file, the result
 columns empty), then each process in rank order writes its rows of the branch and node results,
@@ -56,10 +56,11 @@ def _read(args, rank: int, size: int):
         lo, hi = share(stored.n_branches, rank, size)
         rows = stored.branches(lo, hi)
         part = BranchPart(lo, rows.kind, rows.from_node, rows.to_node, rows.value)
-        nodes = NodeUnknowns(*(stored.column(f"nodes/{name}")
-                               for name in ("unknown", "held", "offset")))
+        node_range = share(stored.n_nodes, rank, size)
+        own_nodes = NodeUnknowns(*(stored.column(f"nodes/{name}", *node_range)
+                                   for name in ("unknown", "held", "offset")))
         forest = _forest(stored) if rank == 0 else None
-        return stored.n_nodes, stored.unknowns, part, nodes, forest
+        return stored.n_nodes, stored.unknowns, part, own_nodes, node_range, forest
 
 
 def _forest(stored: NetworkFile) -> Forest:
@@ -91,14 +92,14 @@ def run_distributed(args, comm) -> int:
         if rank == 0:
             refuse_input(args.output, [args.network])
             refuse_existing(args.output, args.force)
-        n_nodes, n_unknowns, part, nodes, forest = _read(args, rank, size)
+        n_nodes, n_unknowns, part, own_nodes, node_range, forest = _read(args, rank, size)
     except UserError as failure:
         error = failure
     agree(comm, error)
     read_seconds = comm.allreduce(time.perf_counter() - start, op=_max())
 
-    node_range = share(n_nodes, rank, size)
-    result = solve_distributed(comm, part, nodes, n_unknowns, node_range, forest, args.rtol)
+    result = solve_distributed(comm, part, own_nodes, node_range, n_nodes, n_unknowns, forest,
+                               args.rtol)
     if not result.finite:
         raise SolverError(f"{args.network}: the solution overflows double precision (IEEE 754 "
                           "binary64): rescale the values, for example to other units")
