@@ -24,7 +24,7 @@ import numpy as np
 from ohmgraph.engine.distributed import BranchPart, Forest, solve_distributed
 from ohmgraph.engine.ordering import NodeUnknowns
 from ohmgraph.io.atomic import refuse_existing, refuse_input
-from ohmgraph.io.errors import InputError, OutputRefused, SolverError, UserError
+from ohmgraph.io.errors import EXIT_OK, InputError, OutputRefused, SolverError, UserError
 from ohmgraph.io.jsonout import dumps
 from ohmgraph.io.mpi_launch import LaunchError, agree, idle_barrier
 from ohmgraph.io.network_file import NetworkFile, is_hdf5
@@ -120,7 +120,7 @@ def run_distributed(args, comm) -> int:
                    "power_dissipated_W": result.power_dissipated,
                    "timings_s": {**timings, "store": store_seconds}}
         print(dumps(summary) if args.json else _text(args, summary))
-    return 0
+    return EXIT_OK
 
 
 def _text(args, summary: dict) -> str:
