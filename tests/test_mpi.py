@@ -208,3 +208,28 @@ def test_two_ranks_without_voltage_sources(tmp_path, capsys):
     reference = mna_solve(read_network(tmp_path / "ladder.csv"))
     np.testing.assert_allclose(stored.node_voltage, reference.node_voltage, rtol=0,
                                atol=1e-9 * np.abs(reference.node_voltage).max())
+
+
+def test_gamg_takes_over_where_petsc_has_no_hypre(make_network, monkeypatch):
+    """Where PETSc was built without hypre the back end uses GAMG; checked against the
+    independent MNA reference (tests/reference_mna.py)."""
+    from petsc4py import PETSc
+
+    import ohmgraph.engine.solvers.petsc as backend
+
+    class WithoutHypre:
+        class Sys:
+            @staticmethod
+            def hasExternalPackage(name):
+                return False
+
+        def __getattr__(self, name):
+            return getattr(PETSc, name)
+
+    monkeypatch.setattr(backend, "petsc_module", WithoutHypre)
+    net = make_network(8)
+    solution = solve(net, method="petsc", rtol=1e-10)
+    assert solution.solver.preconditioner == "gamg"
+    reference = mna_solve(net)
+    np.testing.assert_allclose(solution.node_voltage, reference.node_voltage, rtol=0,
+                               atol=1e-8 * np.abs(reference.node_voltage).max())
