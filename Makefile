@@ -16,8 +16,9 @@ $(STAMP): $(BIN)/python pyproject.toml
 
 install: $(STAMP)
 
-# Optional MPI stack (issue 11): Debian's PETSc 3.18 with an MPI runtime, then petsc4py pinned to
-# that PETSc version and mpi4py, built in .venv. A fast no-op when both already import.
+# Optional MPI stack (issue 11): Debian's PETSc 3.18 (with hypre) and Open MPI from apt (root),
+# then into .venv petsc4py pinned to that PETSc version, built against it (about 2.5 min), and
+# the mpi4py wheel, which loads the system's MPI library. A fast no-op when both already import.
 PETSC_DIR    ?= /usr/lib/petscdir/petsc3.18/x86_64-linux-gnu-real
 PETSC4PY_PIN := petsc4py==3.18.5
 MPI4PY_PIN   := mpi4py==4.1.2
