@@ -88,8 +88,11 @@ def agree(comm, error: UserError | None) -> None:
     """
     idle_barrier(comm)
     found = comm.allgather(None if error is None else (error.exit_code, str(error)))
-    for item in found:
-        if item is not None:
-            failure = UserError(item[1])
-            failure.exit_code = item[0]
-            raise failure
+    failed = [rank for rank, item in enumerate(found) if item is not None]
+    if failed:
+        code, message = found[failed[0]]
+        if len(failed) < len(found):             # say where, when only some processes failed
+            message += f" (on process {failed[0]} of {len(found)})"
+        failure = UserError(message)
+        failure.exit_code = code
+        raise failure

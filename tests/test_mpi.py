@@ -233,3 +233,20 @@ def test_gamg_takes_over_where_petsc_has_no_hypre(make_network, monkeypatch):
     reference = mna_solve(net)
     np.testing.assert_allclose(solution.node_voltage, reference.node_voltage, rtol=0,
                                atol=1e-8 * np.abs(reference.node_voltage).max())
+
+
+def test_a_process_that_cannot_open_the_file_stops_every_process(small):
+    """Process 1 runs in a folder without the network file (as on a node that does not mount
+    the shared file system): one message naming it, exit 2 everywhere, no output anywhere."""
+    tmp_path, before = small
+    (tmp_path / "elsewhere").mkdir()
+    program = [sys.executable, "-m", "ohmgraph.io.cli", "solve", "net.h5", "-o", "out.h5"]
+    done = subprocess.run([MPIEXEC, "--allow-run-as-root", "--oversubscribe",
+                           "-n", "1", "-wdir", str(tmp_path), *program, ":",
+                           "-n", "1", "-wdir", str(tmp_path / "elsewhere"), *program],
+                          capture_output=True, text=True, timeout=300)
+    assert done.returncode == EXIT_BAD_INPUT, done.stderr
+    assert done.stderr.count("net.h5: no such file (on process 1 of 2)") == 1, done.stderr
+    assert "Traceback" not in done.stderr
+    assert sorted(p.name for p in tmp_path.iterdir()) == sorted([*before, "elsewhere"])
+    assert not any((tmp_path / "elsewhere").iterdir())
