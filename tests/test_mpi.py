@@ -35,7 +35,12 @@ RTOL = 1e-12
 
 
 def mpirun(ranks: int, *argv, cwd, env=None) -> subprocess.CompletedProcess:
-    """``ohmgraph ARGV`` on ``ranks`` MPI processes."""
+    """``ohmgraph ARGV`` on ``ranks`` MPI processes.
+
+    The environment is passed explicitly from ``os.environ``: once a test here has initialised
+    PETSc in this process, MPI has added its own variables to the process environment, and an
+    ``mpiexec`` that inherits them takes itself for part of that run (it exits 1, silently).
+    """
     command = [MPIEXEC, "--allow-run-as-root", "--oversubscribe", "-n", str(ranks),
                sys.executable, "-m", "ohmgraph.io.cli", *map(str, argv)]
     return subprocess.run(command, cwd=cwd, capture_output=True, text=True, timeout=300,
@@ -244,7 +249,7 @@ def test_a_process_that_cannot_open_the_file_stops_every_process(small):
     done = subprocess.run([MPIEXEC, "--allow-run-as-root", "--oversubscribe",
                            "-n", "1", "-wdir", str(tmp_path), *program, ":",
                            "-n", "1", "-wdir", str(tmp_path / "elsewhere"), *program],
-                          capture_output=True, text=True, timeout=300)
+                          capture_output=True, text=True, timeout=300, env=dict(os.environ))
     assert done.returncode == EXIT_BAD_INPUT, done.stderr
     assert done.stderr.count("net.h5: no such file (on process 1 of 2)") == 1, done.stderr
     assert "Traceback" not in done.stderr
