@@ -4,7 +4,7 @@ VENV   := .venv
 BIN    := $(VENV)/bin
 STAMP  := $(VENV)/.installed
 
-.PHONY: demo test bench install clean
+.PHONY: demo test bench install mpi clean
 
 $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
@@ -16,10 +16,33 @@ $(STAMP): $(BIN)/python pyproject.toml
 
 install: $(STAMP)
 
+# Optional MPI stack (issue 11): Debian's PETSc 3.18 (with hypre) and Open MPI from apt (root),
+# then into .venv petsc4py pinned to that PETSc version, built against it (about 2.5 min), and
+# the mpi4py wheel, which loads the system's MPI library. A fast no-op when both already import.
+PETSC_DIR    ?= /usr/lib/petscdir/petsc3.18/x86_64-linux-gnu-real
+PETSC4PY_PIN := petsc4py==3.18.5
+MPI4PY_PIN   := mpi4py==4.1.2
+HAVE_MPI     := $(BIN)/python -c "import mpi4py, petsc4py" 2>/dev/null && command -v mpiexec >/dev/null
+
+mpi: $(STAMP)
+	@if $(HAVE_MPI); then echo "make mpi: mpi4py, petsc4py and mpiexec already installed"; exit 0; fi; \
+	set -e; \
+	if [ ! -d "$(PETSC_DIR)" ] || ! command -v mpiexec >/dev/null; then \
+	    apt-get update -qq; \
+	    DEBIAN_FRONTEND=noninteractive apt-get install -y -qq --no-install-recommends petsc-dev openmpi-bin >/dev/null; \
+	fi; \
+	$(BIN)/python -m pip install --quiet "cython<3" setuptools wheel; \
+	$(BIN)/python -m pip install --quiet --only-binary=mpi4py "$(MPI4PY_PIN)"; \
+	PETSC_DIR="$(PETSC_DIR)" PETSC_ARCH= $(BIN)/python -m pip install --quiet --no-build-isolation "$(PETSC4PY_PIN)"; \
+	$(BIN)/python -c "import mpi4py, petsc4py; print('make mpi: mpi4py', mpi4py.__version__, 'petsc4py', petsc4py.__version__)"
+
 demo: $(STAMP)
 	$(BIN)/ohmgraph demo
 
+# tests/test_mpi.py launches its runs with mpiexec -n 2 when the MPI stack is installed.
 test: $(STAMP)
+	@if $(HAVE_MPI); then echo "make test: MPI stack found; tests/test_mpi.py runs its solves on 2 MPI ranks"; \
+	else echo "make test: MPI stack not installed: the MPI tests (tests/test_mpi.py) are SKIPPED; 'make mpi' installs it"; fi
 	$(BIN)/python -m pytest -q
 
 bench: $(STAMP)

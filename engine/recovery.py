@@ -121,7 +121,16 @@ def source_tree_currents(net: Network, contraction: Contraction, known_current: 
     roots = np.flatnonzero(contraction.root == np.arange(net.n_nodes))
     if reference_kernel:
         return tree_currents_reference(net.n_nodes, edge_from, edge_to, excess, roots)
-    order, parent, parent_edge = _forest_order(net.n_nodes, edge_from, edge_to, roots)
+    return forest_currents(net.n_nodes, edge_from, edge_to, roots, excess)
+
+
+def forest_currents(n_nodes, edge_from, edge_to, roots, excess) -> np.ndarray:
+    """Currents of the edges of a forest on ``0 .. n_nodes - 1`` by tree KCL (compiled).
+
+    ``excess`` is the net current leaving every node through branches outside the forest; each
+    tree in the forest has one of ``roots``, where the imbalance is left.
+    """
+    order, parent, parent_edge = _forest_order(n_nodes, edge_from, edge_to, roots)
     return accumulate_kernel(order, parent, parent_edge, edge_from, excess)
 
 

@@ -103,6 +103,11 @@ class SolveSession:
         return self.stats.method
 
     @property
+    def back_end(self) -> SPDSolver | None:
+        """The back end in use, for inspection (its settings); solve through :meth:`solve`."""
+        return self._solver
+
+    @property
     def factors(self):
         """The sparse factorisation when the back end is ``direct``, else None (for callers that
         exploit its sparsity, :mod:`ohmgraph.engine.resistance.reach`)."""

@@ -37,6 +37,7 @@ COMMANDS = {
     "report": "write one self-contained HTML report of a stored solution",
     "diff": "compare two stored solutions (a base and a variant)",
     "verify": "recompute a stored solution's evidence and check it against its network",
+    "convert": "store a network as an HDF5 network file, readable in slices",
 }
 
 

@@ -45,6 +45,7 @@ from ohmgraph.engine.checks import INFO, CheckReport, Finding, check
 from ohmgraph.engine.network import KIND_CODE, RESISTOR, Network
 from ohmgraph.io.errors import InputError, ProblemList
 from ohmgraph.io.formats import EDGE_LIST, PARQUET, network_format
+from ohmgraph.io.network_file import is_hdf5, read_stored_network
 
 COLUMNS = ("name", "kind", "from", "to", "value", "max_current", "max_power")
 # Optional ratings: amperes and watts, greater than 0; an empty field means no rating.
@@ -137,7 +138,8 @@ def read_network_file(path, ground: str | None = "0") -> NetworkFile:
     ----------
     path : str or Path
         A ``.csv`` / ``.tsv`` branch table or a whitespace edge list, optionally gzip-compressed
-        (``.gz``), or a ``.parquet`` branch table.
+        (``.gz``), a ``.parquet`` branch table, or an HDF5 network file written by
+        ``ohmgraph convert`` (recognised by its signature, :mod:`ohmgraph.io.network_file`).
     ground : str or None, default ``"0"``
         Label of the reference (0 V) node; it must be one of the nodes. ``None`` takes the first
         node, for queries that need no reference (two-point resistances, the Kirchhoff index).
@@ -157,6 +159,8 @@ def read_network_file(path, ground: str | None = "0") -> NetworkFile:
         raise InputError(f"{path}: no such file")
     if not path.is_file():
         raise InputError(f"{path}: not a file")
+    if is_hdf5(path):
+        return NetworkFile(path, read_stored_network(path, ground))
     found = network_format(path)
     try:
         if found.name == EDGE_LIST:

@@ -66,3 +66,19 @@ def test_help_and_version_import_no_command_module():
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
                          check=True).stdout
     assert out.strip().splitlines()[-1] == "[]"
+
+
+def test_single_process_start_up_does_not_load_the_mpi_stack(tmp_path):
+    """Issue 11: mpi4py and PETSc are imported only under mpiexec or the PETSc back end."""
+    import subprocess
+    import sys
+
+    net = tmp_path / "net.csv"
+    net.write_text("from,to,value\n1,0,2\n")
+    code = ("import sys; from ohmgraph.io.cli import main; "
+            f"main(['solve', {str(net)!r}, '-o', {str(tmp_path / 'out.h5')!r}]); "
+            "print(sorted(m for m in sys.modules if m.split('.')[0] in ('mpi4py', 'petsc4py')))")
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                          timeout=120)
+    assert done.returncode == 0, done.stderr
+    assert done.stdout.strip().splitlines()[-1] == "[]"

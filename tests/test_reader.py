@@ -294,3 +294,22 @@ def test_every_bad_row_is_reported_up_to_ten(tmp_path, capsys):
     assert code == 2
     assert "many.csv:2: column 'value': 'x0'" in err and "many.csv:11:" in err
     assert "many.csv:12:" not in err and "and 2 more" in err
+
+
+def test_parquet_branch_table_reads_like_the_csv(tmp_path, make_network):
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    from ohmgraph.io.branch_table import write_branch_table
+
+    write_branch_table(tmp_path / "net.csv", make_network(4))
+    expected = read_network(tmp_path / "net.csv")
+    # Typed columns (integers for labels, doubles for values), upper-case names, other order.
+    pq.write_table(pa.table({
+        "VALUE": expected.value, "From": expected.node_labels[expected.from_node].astype(int),
+        "to": expected.node_labels[expected.to_node].astype(int),
+        "kind": np.array(["R", "V", "I"])[expected.kind], "name": expected.branch_names}),
+        tmp_path / "net.parquet")
+    got = read_network(tmp_path / "net.parquet")
+    for field in ("node_labels", "branch_names", "kind", "from_node", "to_node", "value"):
+        np.testing.assert_array_equal(getattr(got, field), getattr(expected, field))

@@ -25,6 +25,17 @@ from ohmgraph.io.errors import (EXIT_BAD_INPUT, EXIT_FAILED, EXIT_NO_MEMORY, EXI
 NET = ("name,kind,from,to,value\nsupply,V,top,0,10\nr_upper,R,top,mid,1000\n"
        "r_lower,R,mid,0,3000\nload,I,mid,0,0.002\n")
 ISLANDS = "from,to,value\na,0,1\nb,c,1\n"             # b-c has no path to the reference
+
+
+def _parquet(columns: dict) -> bytes:
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    sink = pa.BufferOutputStream()
+    pq.write_table(pa.table(columns), sink)
+    return sink.getvalue().to_pybytes()
+
+
 LONG = "x" * 300                                    # longer than a file name may be (POSIX 255)
 
 
@@ -36,6 +47,12 @@ def _tampered(path, change) -> None:
     _solution(path)
     with h5py.File(path, "a") as h5:
         change(h5)
+
+
+def _tampered_network(path) -> None:
+    main(["convert", "net.csv", "-o", str(path)])
+    with h5py.File(path, "a") as h5:
+        h5["branches/kind"][1] = b"X"
 
 
 def _replace(h5, name, data) -> None:
@@ -69,6 +86,10 @@ FILES = {
     "islands.csv": ISLANDS,
     "graph.txt": "top mid\nmid 0\n",
     "mixed.txt": "top mid\nmid 0 3000\n",
+    "bad.parquet": _parquet({"from": ["1", "", "2"], "to": ["0", "2", "0"],
+                             "value": ["1", "x", "0.5"]}),
+    "no_value.parquet": _parquet({"from": ["1"], "to": ["0"]}),
+    "junk.parquet": "not parquet",
     "kvl.csv": "name,kind,from,to,value\nV1,V,1,0,5\nV2,V,1,0,3\nR1,R,1,0,1\n",
     "negative.csv": "name,kind,from,to,value\nR1,R,1,0,-1\nR2,R,1,0,1\n",
     "sources_only.csv": "name,kind,from,to,value\nV1,V,1,0,5\n",
@@ -121,6 +142,8 @@ SOLUTIONS = {
         p, lambda h5: _replace(h5, "branches/from", np.array([0.5, 1.0, 1.0, 1.0]))),
     "timing_text.h5": lambda p: _tampered(
         p, lambda h5: h5["timings"].attrs.__setitem__("read", "slow")),
+    "net.h5": lambda p: main(["convert", "net.csv", "-o", str(p)]),
+    "bad_kind_net.h5": lambda p: _tampered_network(p),
 }
 
 
@@ -194,7 +217,7 @@ REFUSED = [
     ("check mixed.txt", EXIT_BAD_INPUT,
      "mixed.txt:2: 3 field(s), expected 2 (from to) like line 1"),
     ("solve mixed.txt -o out.h5", EXIT_BAD_INPUT, "mixed.txt:2: 3 field(s)"),
-    ("check sol.h5", EXIT_BAD_INPUT, "sol.h5: an HDF5 file is not a network file"),
+    ("check sol.h5", EXIT_BAD_INPUT, "sol.h5: not an ohmgraph network file"),
     ("check broken.parquet", EXIT_BAD_INPUT, "broken.parquet: not a readable Parquet file"),
     ("resistance net.csv --pairs pairs.csv -o out.txt", EXIT_BAD_INPUT,
      "-o out.txt: unsuitable output type '.txt'"),
@@ -229,6 +252,21 @@ REFUSED = [
     ("verify truncated.h5", EXIT_BAD_INPUT, "not an HDF5 file"),
     ("verify sol.h5 missing.csv", EXIT_BAD_INPUT, "missing.csv: no such file"),
     ("verify sol.h5 garbage.csv", EXIT_BAD_INPUT, "garbage.csv"),
+    # Parquet branch tables
+    ("check bad.parquet", EXIT_BAD_INPUT, "bad.parquet:row 2: column 'value': 'x' is not a number"),
+    ("check bad.parquet", EXIT_BAD_INPUT, "bad.parquet:row 2: column 'from': empty node label"),
+    ("check no_value.parquet", EXIT_BAD_INPUT, "has no column 'value'"),
+    ("solve junk.parquet -o out.h5", EXIT_BAD_INPUT, "not a readable Parquet file"),
+    # HDF5 network files
+    ("convert islands.csv -o out.h5", EXIT_FAILED, "floating"),
+    ("convert net.csv -o net.h5", EXIT_OUTPUT_REFUSED, "already exists"),
+    ("convert net.csv -o net.csv --force", EXIT_BAD_INPUT, "is also the input file"),
+    ("convert truncated.csv.gz -o out.h5", EXIT_BAD_INPUT, "cannot be read"),
+    ("check sol.h5", EXIT_BAD_INPUT, "not an ohmgraph network file"),
+    ("solve foreign.h5 -o out.h5", EXIT_BAD_INPUT, "not an ohmgraph network file"),
+    ("solve truncated.h5 -o out.h5", EXIT_BAD_INPUT, "not an HDF5 file"),
+    ("solve net.h5 -o out.h5 --ground nowhere", EXIT_BAD_INPUT, "reference node 'nowhere'"),
+    ("check bad_kind_net.h5", EXIT_BAD_INPUT, "b'X' at row 1 is not a branch kind"),
     # measurement tables
     ("compare net.csv meas_inf.csv --accuracy 1%", EXIT_BAD_INPUT,
      "meas_inf.csv:2: column 'value': 'inf' is not a finite number"),

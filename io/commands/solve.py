@@ -12,11 +12,12 @@ from ohmgraph.io.commands.argtypes import finite_float, positive_float
 from ohmgraph.io.drop_view import drop_datasets, thresholds_type
 from ohmgraph.io.atomic import refuse_existing, refuse_input
 from ohmgraph.io.check_view import format_report, report_to_dict
-from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, SolverError
+from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, SolverError, UserError
 from ohmgraph.io.formats import HDF5, require_format
 from ohmgraph.io.interrupts import checkpoint
 from ohmgraph.io.jsonout import dumps
 from ohmgraph.io.memory_guard import refuse_if_too_big
+from ohmgraph.io.mpi_launch import launched_rank, launched_size
 from ohmgraph.engine.variant import apply_changes
 from ohmgraph.io.changes import CHANGES_NOTE, change_note, read_changes
 from ohmgraph.io.node_table import node_table_by_label, read_node_table
@@ -33,11 +34,14 @@ def register(subparsers) -> None:
                     "network is not well-posed the check report is printed, nothing is written "
                     "and the exit code is 1.")
     parser.add_argument("network", metavar="NET",
-                        help="network file (.csv, .tsv, .parquet, edge list; optionally .gz)")
+                        help="network file (.csv, .tsv, .parquet, edge list; optionally .gz; or "
+                             "an HDF5 network file from 'convert', which a run under mpiexec "
+                             "needs)")
     parser.add_argument("-o", "--output", required=True, metavar="OUT.h5",
                         help="HDF5 file to create")
     parser.add_argument("--method", choices=["auto", *SOLVERS], default="auto",
-                        help="linear solver (default: auto, direct for small systems)")
+                        help="linear solver (default: auto, direct for small systems; petsc "
+                             "under mpiexec with more than one process)")
     parser.add_argument("--rtol", type=positive_float, default=DEFAULT_RTOL,
                         help=f"relative residual target (default {DEFAULT_RTOL:g})")
     parser.add_argument("--ground", default="0", metavar="LABEL",
@@ -83,7 +87,22 @@ def read_inputs(args, base) -> tuple[NetworkFile, list]:
 
 
 def run(args) -> int:
-    """Run ``solve``; return the exit code (see :mod:`ohmgraph.io.errors`)."""
+    """Run ``solve``; return the exit code (see :mod:`ohmgraph.io.errors`).
+
+    Under ``mpiexec`` with more than one process, or with ``--method petsc``, the solve is
+    distributed (:mod:`ohmgraph.io.parallel_solve`); only the first process prints an error.
+    """
+    size = launched_size()
+    if size is not None and (size > 1 or args.method == "petsc"):
+        try:
+            from ohmgraph.io.mpi_launch import mpi_world
+            from ohmgraph.io.parallel_solve import run_distributed
+
+            return run_distributed(args, mpi_world())
+        except UserError as error:
+            if launched_rank() != 0:
+                return error.exit_code
+            raise
     refuse_input(args.output, [args.network, args.nodes, args.changes, args.start_from])
     refuse_existing(args.output, args.force)
     require_format(args.output, (HDF5,), role="-o")
