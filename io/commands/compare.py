@@ -17,6 +17,8 @@ from ohmgraph.engine.solve import NetworkNotSolvable
 from ohmgraph.engine.solvers import DEFAULT_RTOL, SOLVERS, SolverFailed
 from ohmgraph.io.atomic import atomic_output, refuse_existing, refuse_input
 from ohmgraph.io.commands.argtypes import positive_float
+from ohmgraph.io.commands.part_options import (add_band_arguments, band_rule_text, model_bands,
+                                               read_part_tolerances)
 from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, InputError, SolverError, UserError
 from ohmgraph.io.jsonout import dumps
 from ohmgraph.io.measurement_store import refuse_existing_group, write_results
@@ -121,38 +123,51 @@ def register(subparsers) -> None:
                     "passes, 1 when any fails.")
     add_network_arguments(parser)
     add_reading_arguments(parser)
+    add_band_arguments(parser)
     parser.add_argument("--failures-only", action="store_true",
                         help="list only the readings that fail")
     add_output_arguments(parser)
     parser.set_defaults(run=run, command_group="comparison")
 
 
-def reading_columns(table, model: ReadingModel, result) -> dict:
-    """One row per reading: where it is, what was measured and what the model says."""
+def reading_columns(table, model: ReadingModel, result, bands=None) -> dict:
+    """One row per reading: where it is, what was measured and what the model says.
+
+    With part tolerances (``bands``), ``band`` is the combined band and ``instrument_band``,
+    ``parts_band`` its two parts.
+    """
     readings = model.readings
     status = np.where(result.passed, "pass", np.where(result.usable, "FAIL", "undetermined"))
+    parts = {} if bands is None else {"instrument_band": bands.instrument,
+                                      "parts_band": bands.parts}
     return {
         "line": table.lines, "kind": readings.kind, "a": table.a, "b": table.b,
         "measured": readings.measured, "model": model.model_value,
-        "deviation": result.deviation, "band": readings.band, "accuracy": table.accuracy,
+        "deviation": result.deviation, "band": result.band, **parts, "accuracy": table.accuracy,
         "deviation_in_bands": result.normalized, "status": status,
     }
 
 
 def _format(columns: dict, summary: dict, failures_only: bool) -> str:
+    parts = "parts_band" in columns
     lines = [f"{'line':>5} {'kind':4} {'a':>12} {'b':>12} {'measured':>14} {'model':>14} "
-             f"{'deviation':>12} {'±band':>11} status"]
+             f"{'deviation':>12} {'±band':>11} "
+             + (f"{'instrument':>11} {'parts':>11} " if parts else "") + "status"]
     for row in range(len(columns["line"])):
         if failures_only and columns["status"][row] == "pass":
             continue
         unit = UNIT_NAME[columns["kind"][row]]
+        shares = (f"{columns['instrument_band'][row]:>11.4g} {columns['parts_band'][row]:>11.4g} "
+                  if parts else "")
         lines.append(
             f"{columns['line'][row]:>5} {columns['kind'][row]:4} {columns['a'][row]:>12} "
             f"{columns['b'][row] or '-':>12} {columns['measured'][row]:>12.6g} {unit:<1} "
             f"{columns['model'][row]:>12.6g} {unit:<1} {columns['deviation'][row]:>+12.4g} "
-            f"{columns['band'][row]:>11.4g} {columns['status'][row]}")
-    lines.append(f"{summary['passed']} of {summary['readings']} reading(s) within accuracy, "
-                 f"{summary['failed']} outside"
+            f"{columns['band'][row]:>11.4g} {shares}{columns['status'][row]}")
+    if parts:
+        lines.append(summary["band_rule"])
+    lines.append(f"{summary['passed']} of {summary['readings']} reading(s) within "
+                 + ("their band" if parts else "accuracy") + f", {summary['failed']} outside"
                  + (f" ({summary['unusable']} with no unique model value)"
                     if summary["unusable"] else ""))
     if summary["worst_line"] is not None and summary["failed"]:
@@ -172,18 +187,23 @@ def read_inputs(args):
 def run(args) -> int:
     """Run ``compare``; exit 0 when every reading passes, 1 when any fails."""
     net, table = read_inputs(args)
+    tolerance = read_part_tolerances(args, net)
     model = model_readings(args, net, table.readings)
-    result = compare(model)
-    columns = reading_columns(table, model, result)
+    bands, _ = model_bands(args, model, tolerance)
+    result = compare(model, None if bands is None else bands.band)
+    columns = reading_columns(table, model, result, bands)
     summary = result.summary()
     worst = summary.pop("worst_reading")
     summary = {**summary, "worst_line": None if worst is None else int(table.lines[worst]),
+               **({} if bands is None else {"band_rule": band_rule_text(bands),
+                                            "coverage_factor": bands.coverage}),
                "timings_s": model.timings, "notes": model.notes}
     if args.output:
-        units = {"measured": "V|ohm|A by kind", "model": "V|ohm|A by kind",
-                 "deviation": "V|ohm|A by kind", "band": "V|ohm|A by kind"}
+        units = {name: "V|ohm|A by kind" for name in ("measured", "model", "deviation", "band",
+                                                       "instrument_band", "parts_band")}
         write_table(args, columns, units=units, attrs=summary,
-                    sources={"network": args.network, "measurements": args.measurements})
+                    sources={"network": args.network, "measurements": args.measurements,
+                             **({"tolerances": args.tolerances} if args.tolerances else {})})
     if args.json:
         rows = [dict(zip(columns, values)) for values in zip(*columns.values())]
         print(dumps({"summary": summary, "readings": rows}))
