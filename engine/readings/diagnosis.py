@@ -229,7 +229,7 @@ class _Evaluator:
     """Exact evaluation of candidates (one self-resistance solve per candidate and network)."""
 
     def __init__(self, model: ReadingModel, used: np.ndarray, deviation: np.ndarray,
-                 short_ratio: float):
+                 short_ratio: float, scale: np.ndarray | None = None):
         self.model = model
         self.used = used
         self.deviation = deviation
@@ -237,8 +237,12 @@ class _Evaluator:
         system_of = model.system_of()[used]
         self.masks = {name: system_of == name for name in model.systems
                       if np.any(system_of == name)}
-        self.inverse_band = 1.0 / model.readings.band[used]
+        self.inverse_band = 1.0 / (model.readings.band[used] if scale is None else scale)
         self.self_solves = 0
+
+    def fit(self, scaled: np.ndarray) -> _Fit:
+        """The least-squares cost of the candidates whose scaled sensitivities are given."""
+        return _Fit(self.deviation, self.masks, scaled)
 
     def scaled(self, branches: np.ndarray) -> np.ndarray:
         """Sensitivities of the used readings divided by their bands, shape (k, used)."""
@@ -252,14 +256,13 @@ class _Evaluator:
         bounds = np.empty(branches.size)
         for start in range(0, branches.size, SCREEN_CHUNK):
             part = branches[start:start + SCREEN_CHUNK]
-            bounds[start:start + SCREEN_CHUNK] = _Fit(self.deviation, self.masks,
-                                                      self.scaled(part)).lower_bound()
+            bounds[start:start + SCREEN_CHUNK] = self.fit(self.scaled(part)).lower_bound()
         return bounds
 
     def evaluate(self, branches: np.ndarray) -> _Evaluated:
         net = self.model.network
         scaled = self.scaled(branches)
-        fit = _Fit(self.deviation, self.masks, scaled)
+        fit = self.fit(scaled)
         z = {}
         for name in self.masks:
             rs = self.model.systems[name]
@@ -366,6 +369,53 @@ def predicted_change(model: ReadingModel, branch: int, new_ohms: float) -> np.nd
     return change
 
 
+def rank_candidates(evaluator: _Evaluator, candidates: np.ndarray, *, top: int, screen: int,
+                    max_exact: int):
+    """Branch and bound over the candidates: screen by lower bounds, evaluate exactly in rounds.
+
+    Returns
+    -------
+    hypotheses : list of Hypothesis
+    evaluated : int
+        Candidates evaluated exactly.
+    exact : bool
+        True when no unevaluated candidate's bound beats the last hypothesis shown.
+    notes : list of str
+    timings : dict
+    """
+    timings, notes = {}, []
+    start = time.perf_counter()
+    for rs in evaluator.model.systems.values():
+        rs.solve_adjoint()
+    timings["adjoint"] = time.perf_counter() - start
+    start = time.perf_counter()
+    bounds = evaluator.lower_bounds(candidates)
+    order = np.argsort(bounds, kind="stable")
+    timings["screen"] = time.perf_counter() - start
+
+    start = time.perf_counter()
+    parts, done, exact = [], 0, True
+    target = min(max(screen, top), candidates.size)
+    while True:
+        parts.append(evaluator.evaluate(candidates[order[done:target]]))
+        done = target
+        evaluated = _merge(parts)
+        hypotheses = _group(evaluator, evaluated, top, evaluator.short_ratio)
+        threshold = hypotheses[-1].chi2 if hypotheses else np.inf
+        if done == candidates.size:
+            break
+        if bounds[order[done]] > threshold * (1 + 1e-9) + 1e-12:
+            break
+        if done >= max_exact:
+            exact = False
+            notes.append(f"stopped after evaluating {done} candidates exactly; hypotheses below "
+                         f"chi2 {bounds[order[done]]:.4g} may be missing from the ranking")
+            break
+        target = min(2 * done, candidates.size, max_exact)
+    timings["evaluate"] = time.perf_counter() - start
+    return hypotheses, done, exact, notes, timings
+
+
 def diagnose(model: ReadingModel, *, top: int = 10, short_ratio: float = SHORT_RATIO,
              screen: int = 64, max_exact: int = 8192) -> Diagnosis:
     """Rank single-resistor faults (open, short, value change) by how well they explain readings.
@@ -404,39 +454,15 @@ def diagnose(model: ReadingModel, *, top: int = 10, short_ratio: float = SHORT_R
                          solves={"adjoint": 0, "self_resistance": 0},
                          notes=notes + ["nothing to diagnose"])
 
-    start = time.perf_counter()
-    for rs in model.systems.values():
-        rs.solve_adjoint()
-    timings["adjoint"] = time.perf_counter() - start
-    start = time.perf_counter()
-    bounds = evaluator.lower_bounds(candidates)
-    order = np.argsort(bounds, kind="stable")
-    timings["screen"] = time.perf_counter() - start
-
-    start = time.perf_counter()
-    parts, done, exact = [], 0, True
-    target = min(max(screen, top), candidates.size)
-    while True:
-        parts.append(evaluator.evaluate(candidates[order[done:target]]))
-        done = target
-        evaluated = _merge(parts)
-        hypotheses = _group(evaluator, evaluated, top, short_ratio)
-        threshold = hypotheses[-1].chi2 if hypotheses else np.inf
-        if done == candidates.size:
-            break
-        if bounds[order[done]] > threshold * (1 + 1e-9) + 1e-12:
-            break
-        if done >= max_exact:
-            exact = False
-            notes.append(f"stopped after evaluating {done} candidates exactly; hypotheses below "
-                         f"chi2 {bounds[order[done]]:.4g} may be missing from the ranking")
-            break
-        target = min(2 * done, candidates.size, max_exact)
-    timings["evaluate"] = time.perf_counter() - start
+    hypotheses, done, exact, rank_notes, rank_timings = rank_candidates(
+        evaluator, candidates, top=top, screen=screen, max_exact=max_exact)
+    timings.update(rank_timings)
+    notes += rank_notes
     solves = {"adjoint": int(sum(rs.rows.size for rs in model.systems.values())),
               "self_resistance": evaluator.self_solves}
     return Diagnosis(hypotheses, baseline, used, int(candidates.size), done, exact, short_ratio,
                      solves, timings, notes)
 
 
-__all__ = ["diagnose", "predicted_change", "Diagnosis", "Hypothesis", "SHORT_RATIO", "KIND_MARGIN"]
+__all__ = ["diagnose", "rank_candidates", "predicted_change", "Diagnosis", "Hypothesis",
+           "SHORT_RATIO", "KIND_MARGIN"]
