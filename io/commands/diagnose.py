@@ -50,12 +50,12 @@ def register(subparsers) -> None:
 def hypothesis_columns(net, result, pairs=()) -> dict:
     """One row per member of every ranked group (``faults`` 1), then one per member of every
     two-fault hypothesis (``faults`` 2, ranked among themselves)."""
-    rows = {"faults": [], "rank": [], "branch": [], "kind": [], "nominal_ohms": [],
-            "estimated_ohms": [], "chi2": [], "group_size": [], "explains_all": []}
+    rows = {"rank": [], "branch": [], "kind": [], "nominal_ohms": [], "estimated_ohms": [],
+            "chi2": [], "group_size": [], "explains_all": [], "faults": []}
 
     def add(faults, rank, branch, kind, nominal, estimated, chi2, size, explains):
-        for key, value in zip(rows, (faults, rank, str(net.branch_names[branch]), kind,
-                                     float(nominal), float(estimated), chi2, size, explains)):
+        for key, value in zip(rows, (rank, str(net.branch_names[branch]), kind, float(nominal),
+                                     float(estimated), chi2, size, explains, faults)):
             rows[key].append(value)
 
     for rank, hypothesis in enumerate(result.hypotheses, start=1):
