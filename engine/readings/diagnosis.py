@@ -226,7 +226,14 @@ def _open_cost(fit: _Fit, g: np.ndarray, z: dict) -> np.ndarray:
 
 
 class _Evaluator:
-    """Exact evaluation of candidates (one self-resistance solve per candidate and network)."""
+    """Exact evaluation of candidates (one self-resistance solve per candidate and network).
+
+    ``separation`` (None here): when set, an array over the used readings, in the units of
+    ``deviation``; candidates whose predicted changes differ from a group leader's by no more
+    than it in every reading join the leader's group.
+    """
+
+    separation = None
 
     def __init__(self, model: ReadingModel, used: np.ndarray, deviation: np.ndarray,
                  short_ratio: float, scale: np.ndarray | None = None):
@@ -319,12 +326,17 @@ def _group(evaluator: _Evaluator, ev: _Evaluated, top: int, short_ratio: float) 
             break
         if taken[leader]:
             continue
-        tolerance = GROUP_TOLERANCE * max(1.0, best[leader])
         window = order[position:]
-        window = window[(best[window] <= best[leader] + tolerance) & ~taken[window]]
-        change = evaluator.predicted(ev, window, dg[window])
-        scale = max(1.0, float(np.abs(change[0]).max(initial=0.0)))
-        same = np.abs(change - change[0]).max(axis=1, initial=0.0) <= GROUP_TOLERANCE * scale
+        if evaluator.separation is None:
+            tolerance = GROUP_TOLERANCE * max(1.0, best[leader])
+            window = window[(best[window] <= best[leader] + tolerance) & ~taken[window]]
+            change = evaluator.predicted(ev, window, dg[window])
+            scale = max(1.0, float(np.abs(change[0]).max(initial=0.0)))
+            same = np.abs(change - change[0]).max(axis=1, initial=0.0) <= GROUP_TOLERANCE * scale
+        else:
+            window = window[~taken[window]]
+            change = evaluator.predicted(ev, window, dg[window])
+            same = np.all(np.abs(change - change[0]) <= evaluator.separation, axis=1)
         members = window[same]
         taken[members] = True
         residual = evaluator.deviation - change[0]

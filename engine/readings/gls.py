@@ -9,9 +9,11 @@ Soc. Edinburgh 55, 1935)::
     chi2 = (d - f q)^T Sigma^{-1} (d - f q)
 
 evaluated on the whitened system ``L^{-1} d``, ``L^{-1} q`` with ``Sigma = L L^T`` (Cholesky),
-so that the normal part spread is not read as a fault. The screening bound, the exact fit
-through Sherman–Morrison updates and the grouping are those of :mod:`.diagnosis`; only the
-cost changes (the two networks, powered and passive, now couple through ``Sigma``).
+so that the normal part spread is not read as a fault. The screening bound and the exact fit
+through Sherman–Morrison updates are those of :mod:`.diagnosis`; the cost changes (the two
+networks, powered and passive, now couple through ``Sigma``) and so does the grouping: faults
+whose predicted readings differ by no more than ``3 sigma_i`` (the combined standard
+uncertainty of each reading) in every reading cannot be told apart and form one group.
 
 *No fault indicated* when the cost of the model as it is stays within the chi-square quantile
 of ``n`` degrees of freedom at ``1 - alpha`` (``alpha``: ``significance``, default 1 %).
@@ -55,6 +57,7 @@ DEFAULT_SIGNIFICANCE = 0.01
 PAIR_POOL = 50
 MAX_FLAGGED = 3
 TINY = 1e-12
+SEPARATION = 3.0          # standard deviations: faults closer in every reading are one group
 
 
 class _CorrelatedFit:
@@ -107,6 +110,7 @@ class _GLSEvaluator(_Evaluator):
     def __init__(self, model: ReadingModel, used: np.ndarray, measured_minus_model: np.ndarray,
                  scale: np.ndarray, covariance: np.ndarray, short_ratio: float):
         super().__init__(model, used, measured_minus_model / scale, short_ratio, scale)
+        self.separation = SEPARATION * np.sqrt(np.diag(covariance)) / scale
         self.correlation = covariance / np.outer(scale, scale)
         self.factor = cholesky(self.correlation, lower=True, check_finite=False)
         self.whitened = solve_triangular(self.factor, self.deviation, lower=True)
