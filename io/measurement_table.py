@@ -248,10 +248,11 @@ def _describe(accuracy: Accuracy, kind: str) -> str:
 class _RowReader:
     """Checks one measurement row at a time against the network."""
 
-    def __init__(self, net: Network, rules: dict, problems: ProblemList):
+    def __init__(self, net: Network, rules: dict, problems: ProblemList, values: bool = True):
         self.net = net
         self.rules = rules
         self.problems = problems
+        self.values = values
         self.names = {}
         for index, name in enumerate(net.branch_names.tolist()):
             self.names.setdefault(name, []).append(index)
@@ -290,6 +291,8 @@ class _RowReader:
             b = self.net.reference if not row["b"] else self.node(line, "b", row["b"])
             if a is None or b is None:
                 return None
+        if not self.values:
+            return kind, a, b, branch, np.nan, None
         measured = self._quantity(line, "value", row["value"], kind)
         accuracy = self._accuracy(line, row.get("accuracy", ""), kind)
         if measured is None or accuracy is None:
@@ -332,7 +335,8 @@ class _RowReader:
         return accuracy
 
 
-def read_measurements(path, net: Network, rules: dict | None = None) -> MeasurementTable:
+def read_measurements(path, net: Network, rules: dict | None = None, *,
+                      values: bool = True) -> MeasurementTable:
     """Read and check a measurement table against a network.
 
     Parameters
@@ -341,6 +345,10 @@ def read_measurements(path, net: Network, rules: dict | None = None) -> Measurem
     net : Network
     rules : dict, optional
         Global accuracies from :func:`accuracy_rules`.
+    values : bool
+        False to read only which quantities are observed (``kind``, ``a``, ``b``): the
+        ``value`` and ``accuracy`` columns are then optional and ignored, and the readings'
+        measured values and bands are NaN.
 
     Raises
     ------
@@ -349,9 +357,10 @@ def read_measurements(path, net: Network, rules: dict | None = None) -> Measurem
     """
     path = Path(path)
     records = _records(path)
-    _, header = _header(path, records, TABLE_COLUMNS, REQUIRED_COLUMNS)
+    _, header = _header(path, records, TABLE_COLUMNS,
+                        REQUIRED_COLUMNS if values else REQUIRED_COLUMNS[:3])
     problems = ProblemList(path)
-    checker = _RowReader(net, rules or {}, problems)
+    checker = _RowReader(net, rules or {}, problems, values)
     rows, lines, labels_a, labels_b, texts = [], [], [], [], []
     for line, fields in records:
         if len(fields) > len(header):
@@ -365,13 +374,14 @@ def read_measurements(path, net: Network, rules: dict | None = None) -> Measurem
         lines.append(line)
         labels_a.append(row["a"])
         labels_b.append(row["b"])
-        texts.append(_describe(parsed[5], parsed[0]))
+        texts.append("" if parsed[5] is None else _describe(parsed[5], parsed[0]))
     problems.raise_if_any()
     if not rows:
         raise InputError(f"{path}: no readings")
     kind, a, b, branch, measured, accuracy = zip(*rows)
     measured = np.array(measured, np.float64)
-    band = np.array([acc.band(value) for acc, value in zip(accuracy, measured)])
+    band = np.array([np.nan if acc is None else acc.band(value)
+                     for acc, value in zip(accuracy, measured)])
     readings = Readings(np.array(kind), a, b, branch, measured, band)
     return MeasurementTable(path, readings, np.array(lines, np.int64), np.array(labels_a),
                             np.array(labels_b), texts)

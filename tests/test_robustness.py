@@ -74,6 +74,7 @@ FILES = {
     "meas_unit.csv": "kind,a,b,value\nV,mid,,6mA\n",
     "meas_duplicate.csv": "kind,a,b,value\nV,mid,,6\nV,mid,,6\n",
     "meas_open.csv": "kind,a,b,value\nR,top,0,inf\n",
+    "meas_zero_accuracy.csv": "kind,a,b,value,accuracy\nV,mid,,6,0%\n",
     "meas_open_islands.csv": "kind,a,b,value\nR,a,b,inf\nV,a,,0\n",
     "meas_sources_only.csv": "kind,a,b,value\nV,1,,5\n",
     "meas_islands.csv": "kind,a,b,value\nV,a,,0\n",
@@ -235,6 +236,33 @@ REFUSED = [
     ("diagnose islands.csv meas_islands.csv --accuracy 1%+1mV", EXIT_FAILED, "not well-posed"),
     ("tolerance kvl.csv --observe 1 --default 1%", EXIT_FAILED, "kvl-violation"),
     ("resistance negative.csv --between 1 0", EXIT_FAILED, "not well-posed"),
+    # part tolerances in compare and diagnose, readings in tolerance
+    ("compare net.csv meas.csv --default 150%", EXIT_BAD_INPUT, "must be below 100%"),
+    ("compare net.csv meas.csv --tolerances tol_negative.csv", EXIT_BAD_INPUT,
+     "tol_negative.csv:2: column 'tolerance'"),
+    ("diagnose net.csv meas.csv --tolerances tol_source.csv", EXIT_BAD_INPUT,
+     "tol_source.csv:2: column 'branch': 'supply' is not a resistor"),
+    ("compare net.csv meas.csv --default 1% --coverage 0", EXIT_BAD_INPUT,
+     "greater than 0"),
+    ("compare net.csv meas.csv --default 1% --coverage 2 --worst-case", EXIT_BAD_INPUT,
+     "not allowed with"),
+    ("diagnose net.csv meas.csv --default 1% --significance 1", EXIT_BAD_INPUT,
+     "strictly between 0 and 1"),
+    ("diagnose net.csv meas.csv --default 1% --max-flagged -1", EXIT_BAD_INPUT,
+     "must be at least 0"),
+    ("diagnose net.csv meas.csv --tolerances missing.csv", EXIT_BAD_INPUT,
+     "missing.csv: no such file"),
+    ("tolerance net.csv --readings meas_unknown.csv --default 1%", EXIT_BAD_INPUT,
+     "meas_unknown.csv:2: column 'a': unknown node 'nowhere'"),
+    ("tolerance net.csv --readings meas_truncated.csv.gz --default 1%", EXIT_BAD_INPUT,
+     "cannot be read"),
+    ("tolerance net.csv --readings meas.csv --observe mid --default 1%", EXIT_BAD_INPUT,
+     "not allowed with"),
+    ("tolerance net.csv --readings meas.csv", EXIT_BAD_INPUT, "give --tolerances"),
+    ("tolerance net.csv --readings meas.csv --default 1% -o meas.csv --force", EXIT_BAD_INPUT,
+     "is also the input file"),
+    ("tolerance net.csv --readings meas.csv --default 1% -o out.txt", EXIT_BAD_INPUT,
+     "the name must end in"),
 ]
 
 
@@ -265,6 +293,9 @@ ACCEPTED = [
     ("diagnose islands.csv meas_open_islands.csv --accuracy 1%+1mV --accuracy 1% "
      "--allow-floating", EXIT_OK,
      "left out"),
+    # a zero instrument band is usable once the parts give the reading a spread
+    ("diagnose net.csv meas_zero_accuracy.csv --default 1%", EXIT_OK, "fault indicated"),
+    ("tolerance net.csv --readings meas_open.csv --default 1%", EXIT_OK, "line 2 R top 0"),
 ]
 
 

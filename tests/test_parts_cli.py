@@ -1,0 +1,79 @@
+"""The reading commands with part tolerances: tolerance --readings, diagnose on real parts."""
+
+from __future__ import annotations
+
+import json
+import math
+from importlib import resources
+
+import pandas as pd
+import pytest
+
+from ohmgraph.io.cli import main
+from ohmgraph.io.measurement_store import read_results
+
+VIN, R1, R2 = 12.0, 1500.0, 4700.0
+
+
+@pytest.fixture()
+def divider(tmp_path):
+    (tmp_path / "net.csv").write_text(f"name,kind,from,to,value\nVS,V,in,0,{VIN}\n"
+                                      f"R1,R,in,out,{R1}\nR2,R,out,0,{R2}\n")
+    (tmp_path / "m.csv").write_text("kind,a,b\nV,out,\nR,out,0\nI,R1,\n")
+    return tmp_path
+
+
+def test_tolerance_of_every_reading_kind_to_csv_and_hdf5(divider, capsys):
+    # 1 % parts. V(out) = Vin R2/(R1+R2): dV/dR1 = -Vin R2/(R1+R2)^2, dV/dR2 = Vin R1/(R1+R2)^2;
+    # R(out, 0) = R1 R2/(R1+R2): dR/dR1 = (R2/(R1+R2))^2; I(R1) = Vin/(R1+R2):
+    # dI/dRk = -Vin/(R1+R2)^2 (closed forms; common practice). Contribution = slope x 0.01 x R.
+    s = R1 + R2
+    v = [VIN * R2 / s ** 2 * 0.01 * R1, VIN * R1 / s ** 2 * 0.01 * R2]
+    r = [(R2 / s) ** 2 * 0.01 * R1, (R1 / s) ** 2 * 0.01 * R2]
+    i = [VIN / s ** 2 * 0.01 * R1, VIN / s ** 2 * 0.01 * R2]
+    out = divider / "tol.csv"
+    code = main(["tolerance", str(divider / "net.csv"), "--readings", str(divider / "m.csv"),
+                 "--default", "1%", "-o", str(out)])
+    text = capsys.readouterr().out
+    assert code == 0 and "line 3 R out 0" in text and "ohm/ohm" in text
+    table = pd.read_csv(out, keep_default_na=False)
+    assert list(table["kind"]) == ["V", "R", "I"]
+    assert list(table["worst_case"]) == pytest.approx([sum(v), sum(r), sum(i)], rel=1e-10)
+    assert list(table["rss"]) == pytest.approx([math.hypot(*v), math.hypot(*r), math.hypot(*i)],
+                                               rel=1e-10)
+    h5 = divider / "tol.h5"
+    assert main(["tolerance", str(divider / "net.csv"), "--readings", str(divider / "m.csv"),
+                 "--default", "1%", "-o", str(h5), "--samples", "20"]) == 0
+    columns, _, root = read_results(h5, "tolerance")
+    assert columns["sensitivity"].shape == (3, 2)
+    assert columns["monte_carlo_std"].shape == (3,) and root["readings_file"] == "m.csv"
+
+
+def test_diagnose_on_real_parts_flags_a_contact_error(tmp_path, capsys):
+    # The shipped coupon readings (one planted fault, RH_2_2 at 300 ohm) with 2.2 ohm added to
+    # one resistance reading (line 16) by a bad contact.
+    examples = resources.files("ohmgraph.datasets") / "examples"
+    text = (examples / "trim_coupon_readings.csv").read_text()
+    lines = text.splitlines()
+    assert lines[15].startswith("R,TP_1_2,TP_2_2,89.62,")
+    lines[15] = lines[15].replace("89.62", "91.82")
+    readings = tmp_path / "readings.csv"
+    readings.write_text("\n".join(lines) + "\n")
+    out = tmp_path / "diag.h5"
+    code = main(["diagnose", str(examples / "trim_coupon.csv"), str(readings), "--accuracy",
+                 "0.05%+0.5mV", "--tolerances", str(examples / "trim_coupon_tolerances.csv"),
+                 "--default", "1%", "--top", "3", "-o", str(out), "--json"])
+    report = json.loads(capsys.readouterr().out)
+    assert code == 0
+    summary = report["summary"]
+    assert summary["flagged_lines"] == [16] and summary["fault_indicated"]
+    assert summary["readings_used"] == 17
+    best = report["hypotheses"][0]
+    assert best["branch"] == "RH_2_2" and best["faults"] == 1
+    assert best["estimated_ohms"] == pytest.approx(300.0, rel=0.01)
+    _, attrs, _ = read_results(out, "diagnosis")
+    assert list(attrs["flagged_lines"]) == [16]
+    assert main(["diagnose", str(examples / "trim_coupon.csv"), str(readings), "--accuracy",
+                 "0.05%+0.5mV", "--default", "1%", "--top", "2"]) == 0
+    shown = capsys.readouterr().out
+    assert "FLAGGED line 16 (R TP_1_2 TP_2_2)" in shown and "fault indicated" in shown
