@@ -19,7 +19,7 @@ import numpy as np
 from ohmgraph.io.errors import EXIT_BAD_INPUT, EXIT_OK, UserError
 
 COMMANDS = ["check", "solve", "show", "generate", "demo", "compare", "diagnose", "tolerance",
-            "resistance"]
+            "pick-readings", "resistance"]
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -30,7 +30,8 @@ def build_parser() -> argparse.ArgumentParser:
                         version=f"ohmgraph {importlib.metadata.version('ohmgraph')}")
     subparsers = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
     for name in COMMANDS:
-        importlib.import_module(f"ohmgraph.io.commands.{name}").register(subparsers)
+        module = importlib.import_module(f"ohmgraph.io.commands.{name.replace('-', '_')}")
+        module.register(subparsers)
     return parser
 
 

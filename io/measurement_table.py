@@ -41,6 +41,7 @@ from ohmgraph.io.errors import InputError, ProblemList
 TABLE_COLUMNS = ("kind", "a", "b", "value", "accuracy")
 REQUIRED_COLUMNS = ("kind", "a", "b", "value")
 TOLERANCE_COLUMNS = ("branch", "tolerance")
+TEST_POINT_COLUMNS = ("node",)
 PREFIXES = {"p": 1e-12, "n": 1e-9, "u": 1e-6, "µ": 1e-6, "μ": 1e-6, "m": 1e-3, "": 1.0,
             "k": 1e3, "M": 1e6, "G": 1e9}
 UNIT_KIND = {"v": "V", "a": "I", "ohm": "R", "ohms": "R", "Ω": "R"}
@@ -426,5 +427,38 @@ def read_tolerances(path, net: Network, default: float = 0.0) -> np.ndarray:
     return tolerance
 
 
-__all__ = ["read_measurements", "read_tolerances", "MeasurementTable", "accuracy_rules",
+def read_test_points(path, net: Network) -> tuple[np.ndarray, np.ndarray]:
+    """Node indices and labels of a test-point file (CSV with the column ``node``).
+
+    Raises
+    ------
+    InputError
+        On an unknown or repeated node, or a file without test points.
+    """
+    path = Path(path)
+    records = _records(path)
+    _, header = _header(path, records, TEST_POINT_COLUMNS, TEST_POINT_COLUMNS)
+    problems = ProblemList(path)
+    nodes, labels, seen = [], [], set()
+    for line, fields in records:
+        if len(fields) != len(header):
+            problems.add(line, f"{len(fields)} fields, the header has {len(header)}")
+            continue
+        label = fields[0]
+        index = net.label_index.get(label)
+        if index is None:
+            problems.add(line, f"column 'node': unknown node {label!r}")
+        elif label in seen:
+            problems.add(line, f"column 'node': {label!r} is listed twice")
+        else:
+            seen.add(label)
+            nodes.append(index)
+            labels.append(label)
+    problems.raise_if_any()
+    if not nodes:
+        raise InputError(f"{path}: no test points")
+    return np.array(nodes, np.int64), np.array(labels)
+
+
+__all__ = ["read_measurements", "read_tolerances", "read_test_points", "MeasurementTable", "accuracy_rules",
            "parse_accuracy", "parse_quantity", "parse_percent", "Accuracy", "Quantity"]

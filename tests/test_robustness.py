@@ -90,6 +90,11 @@ FILES = {
     "tol_hundred.csv": "branch,tolerance\nr_upper,100%\n",
     "tol_source.csv": "branch,tolerance\nsupply,1%\n",
     "notes.txt": "not hdf5\n",
+    "tp.csv": "node\ntop\nmid\n",
+    "tp_one.csv": "node\nmid\n",
+    "tp_unknown.csv": "node\ntop\nnowhere\n",
+    "tp_twice.csv": "node\nmid\nmid\n",
+    "tp_no_header.csv": "mid\n",
 }
 FOLDERS = ("folder", "folder.h5", "folder.csv", "demo/sensor_board.csv")
 SOLUTIONS = {
@@ -263,6 +268,25 @@ REFUSED = [
      "is also the input file"),
     ("tolerance net.csv --readings meas.csv --default 1% -o out.txt", EXIT_BAD_INPUT,
      "the name must end in"),
+    # choosing readings
+    ("pick-readings net.csv --test-points tp_unknown.csv --budget 2 --accuracy 1%",
+     EXIT_BAD_INPUT, "tp_unknown.csv:3: column 'node': unknown node 'nowhere'"),
+    ("pick-readings net.csv --test-points tp_twice.csv --budget 2 --accuracy 1%",
+     EXIT_BAD_INPUT, "tp_twice.csv:3: column 'node': 'mid' is listed twice"),
+    ("pick-readings net.csv --test-points tp_no_header.csv --budget 2 --accuracy 1%",
+     EXIT_BAD_INPUT, "tp_no_header.csv:1: header has unknown column(s) 'mid'"),
+    ("pick-readings net.csv --test-points tp.csv --budget 2 --accuracy 1mV", EXIT_BAD_INPUT,
+     "none applies to R readings"),
+    ("pick-readings net.csv --test-points tp.csv --budget 0 --accuracy 1%", EXIT_BAD_INPUT,
+     "must be at least 1"),
+    ("pick-readings net.csv --test-points tp_one.csv --budget 1 --kinds R --accuracy 1%",
+     EXIT_BAD_INPUT, "one test point gives no resistance reading"),
+    ("pick-readings net.csv --test-points tp.csv --budget 1 --accuracy 1% -o tp.csv --force",
+     EXIT_BAD_INPUT, "is also the input file"),
+    ("pick-readings net.csv --test-points tp.csv --budget 1 --accuracy 1% --change 100%",
+     EXIT_BAD_INPUT, "below 100%"),
+    ("pick-readings islands.csv --test-points tp.csv --budget 1 --accuracy 1%", EXIT_BAD_INPUT,
+     "unknown node 'top'"),
 ]
 
 
@@ -296,6 +320,8 @@ ACCEPTED = [
     # a zero instrument band is usable once the parts give the reading a spread
     ("diagnose net.csv meas_zero_accuracy.csv --default 1%", EXIT_OK, "fault indicated"),
     ("tolerance net.csv --readings meas_open.csv --default 1%", EXIT_OK, "line 2 R top 0"),
+    ("pick-readings net.csv --test-points tp.csv --budget 9 --accuracy 1%", EXIT_OK,
+     "separated"),
 ]
 
 
