@@ -73,7 +73,7 @@ def test_gls_cost_matches_dense_lstsq(voltages, resistances):
         covariance, rel=1e-5, abs=1e-12)
     used = np.arange(len(kinds))
     deviation = values - model.model_value
-    evaluator = _GLSEvaluator(model, used, deviation, bands.band, covariance, 1e-6)
+    evaluator = _GLSEvaluator(model, used, deviation, bands.band, covariance, 1e-6, 0.0)
     candidates = resistor_candidates(net)
     bound = evaluator.fit(evaluator.scaled(candidates)).lower_bound()
     factor = np.linalg.cholesky(covariance)

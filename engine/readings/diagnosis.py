@@ -182,13 +182,18 @@ class _Fit:
         return self.cost({name: _factor(dg, z[name]) for name in self.terms})
 
 
-def _fit_value(fit: _Fit, g: np.ndarray, z: dict, short_ratio: float):
-    """Best ``chi2`` over new resistances in ``[short_ratio, 1/short_ratio]`` times the model.
+def _fit_value(fit: _Fit, g: np.ndarray, z: dict, short_ratio: float, min_change: float = 0.0):
+    """Best ``chi2`` over new resistances in ``[short_ratio, 1/short_ratio]`` times the model,
+    leaving out ratios within ``(1 - min_change, 1 + min_change)``.
 
-    Grid over ``rho = log10(R_new / R)``, then golden-section search around the best grid point.
+    Grid over ``rho = log10(R_new / R)``, then golden-section search around the best grid point
+    (a result inside the excluded interval moves to the better of its two ends).
     """
     span = -np.log10(short_ratio)
     grid = np.arange(-span, span + GRID_STEP_DECADES / 2, GRID_STEP_DECADES)
+    gap = (np.log10(1.0 - min_change), np.log10(1.0 + min_change))
+    if min_change > 0:
+        grid = np.union1d(grid[(grid <= gap[0]) | (grid >= gap[1])], gap)
 
     def cost(rho):
         return fit.cost_at(g * (10.0 ** -rho - 1.0), z)
@@ -208,6 +213,11 @@ def _fit_value(fit: _Fit, g: np.ndarray, z: dict, short_ratio: float):
         cost_left, cost_right = cost(left), cost(right)
     rho = np.where(cost_left < cost_right, left, right)
     refined = np.minimum(cost_left, cost_right)
+    if min_change > 0:
+        inside = (rho > gap[0]) & (rho < gap[1])
+        below, above = cost(np.full(g.shape, gap[0])), cost(np.full(g.shape, gap[1]))
+        rho = np.where(inside, np.where(below <= above, gap[0], gap[1]), rho)
+        refined = np.where(inside, np.minimum(below, above), refined)
     grid_best = costs[best, np.arange(g.size)]
     use_grid = grid_best < refined
     rho = np.where(use_grid, grid[best], rho)
@@ -230,10 +240,12 @@ class _Evaluator:
 
     ``separation`` (None here): when set, an array over the used readings, in the units of
     ``deviation``; candidates whose predicted changes differ from a group leader's by no more
-    than it in every reading join the leader's group.
+    than it in every reading join the leader's group. ``min_change`` (0 here): value changes
+    smaller than this fraction are not considered faults.
     """
 
     separation = None
+    min_change = 0.0
 
     def __init__(self, model: ReadingModel, used: np.ndarray, deviation: np.ndarray,
                  short_ratio: float, scale: np.ndarray | None = None):
@@ -277,7 +289,7 @@ class _Evaluator:
             self.self_solves += int(np.count_nonzero(
                 rs.node_unknown(net.from_node[branches]) != rs.node_unknown(net.to_node[branches])))
         g = 1.0 / net.value[branches]
-        chi2_value, ratio = _fit_value(fit, g, z, self.short_ratio)
+        chi2_value, ratio = _fit_value(fit, g, z, self.short_ratio, self.min_change)
         chi2_short = fit.cost_at(g * (1.0 / self.short_ratio - 1.0), z)
         return _Evaluated(branches, scaled, z, chi2_value, ratio, _open_cost(fit, g, z),
                           chi2_short)
