@@ -77,3 +77,40 @@ def test_diagnose_on_real_parts_flags_a_contact_error(tmp_path, capsys):
                  "0.05%+0.5mV", "--default", "1%", "--top", "2"]) == 0
     shown = capsys.readouterr().out
     assert "FLAGGED line 16 (R TP_1_2 TP_2_2)" in shown and "fault indicated" in shown
+
+
+def test_show_reads_every_result_file(tmp_path, capsys):
+    # compare to HDF5 and to CSV (with its provenance sidecar), diagnose appended to a solution
+    # file, tolerance and pick-readings results: show prints each with where it came from.
+    examples = resources.files("ohmgraph.datasets") / "examples"
+    net, meas = str(examples / "trim_coupon.csv"), str(examples / "trim_coupon_readings.csv")
+    common = ["--accuracy", "0.05%+0.5mV", "--default", "1%"]
+    points = tmp_path / "tp.csv"
+    points.write_text("node\nTP_1_1\nTP_2_2\nTP_3_4\n")
+    runs = {
+        "c.h5": ["compare", net, meas, *common],
+        "c.csv": ["compare", net, meas, *common],
+        "d.csv": ["diagnose", net, meas, *common],
+        "t.h5": ["tolerance", net, "--readings", meas, "--default", "1%"],
+        "p.h5": ["pick-readings", net, "--test-points", str(points), "--budget", "2",
+                 "--accuracy", "0.05%+0.5mV", "--accuracy", "0.2%+0.05ohm"],
+    }
+    for name, argv in runs.items():
+        main(argv + ["-o", str(tmp_path / name)])
+    main(["solve", net, "-o", str(tmp_path / "sol.h5")])
+    main(["diagnose", net, meas, *common, "-o", str(tmp_path / "sol.h5"), "--append"])
+    capsys.readouterr()
+    sidecar = json.loads((tmp_path / "c.csv.provenance.json").read_text())
+    assert sidecar["result"] == "comparison" and sidecar["table"] == "c.csv"
+    assert sidecar["inputs"]["network"]["file"] == "trim_coupon.csv"
+    assert len(sidecar["inputs"]["measurements"]["sha256"]) == 64
+    expected = {"c.h5": "/comparison: written", "c.csv": "/comparison: written",
+                "d.csv": "/diagnosis: written", "t.h5": "/tolerance: written",
+                "p.h5": "/readings_plan: written", "sol.h5": "/diagnosis: written"}
+    for name, text in expected.items():
+        assert main(["show", str(tmp_path / name)]) == 0
+        shown = capsys.readouterr().out
+        assert text in shown and "trim_coupon.csv (sha256" in shown, name
+    assert main(["show", str(tmp_path / "sol.h5"), "--json"]) == 0
+    report = json.loads(capsys.readouterr().out)
+    assert report["nodes"] == 16 and "diagnosis" in report["results"]

@@ -193,6 +193,7 @@ REFUSED = [
     ("show truncated.h5", EXIT_BAD_INPUT, "not an HDF5 file"),
     ("show notes.txt", EXIT_BAD_INPUT, "not an HDF5 file"),
     ("show folder", EXIT_BAD_INPUT, "folder: not a file"),
+    ("show pairs.csv", EXIT_BAD_INPUT, "no provenance sidecar pairs.csv.provenance.json"),
     ("show rtol_text.h5", EXIT_BAD_INPUT, "'rtol' is 'abc', expected a number"),
     ("show notes_number.h5", EXIT_BAD_INPUT, "'notes' is 5"),
     ("show float_index.h5", EXIT_BAD_INPUT, "/branches/from holds float64"),

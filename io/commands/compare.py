@@ -23,6 +23,7 @@ from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, InputError, SolverError, Us
 from ohmgraph.io.jsonout import dumps
 from ohmgraph.io.measurement_store import refuse_existing_group, write_results
 from ohmgraph.io.measurement_table import UNIT_NAME, accuracy_rules, read_measurements
+from ohmgraph.io.provenance import provenance_record, sidecar_path, sidecar_text
 from ohmgraph.io.reader import read_network
 
 OUTPUT_SUFFIXES = (".csv", ".h5", ".hdf5")
@@ -77,6 +78,8 @@ def check_output(args, suffixes=OUTPUT_SUFFIXES) -> None:
         refuse_existing_group(args.output, args.command_group, args.force)
     else:
         refuse_existing(args.output, args.force)
+        if suffix == ".csv":
+            refuse_existing(sidecar_path(args.output), args.force)
 
 
 def model_readings(args, net, readings, solution=None) -> ReadingModel:
@@ -95,10 +98,14 @@ def model_readings(args, net, readings, solution=None) -> ReadingModel:
 
 def write_table(args, columns: dict, *, units=None, attrs=None, matrices=None,
                 sources=None) -> None:
-    """Write ``columns`` to ``args.output`` as CSV (pandas) or as the command's HDF5 group."""
+    """Write ``columns`` to ``args.output`` as CSV (pandas, with a provenance sidecar) or as the
+    command's HDF5 group."""
     if Path(args.output).suffix.lower() == ".csv":
-        with atomic_output(args.output, args.force) as temporary:
+        record = provenance_record(args.command_group, sources, attrs)
+        with atomic_output(sidecar_path(args.output), args.force) as side, \
+                atomic_output(args.output, args.force) as temporary:
             pd.DataFrame(columns).to_csv(temporary, index=False, float_format="%.17g")
+            side.write_text(sidecar_text(record, args.output), encoding="utf-8")
         return
     write_results(args.output, args.command_group, columns, units=units, attrs=attrs, matrices=matrices,
                   sources=sources, force=args.force, append=args.append)

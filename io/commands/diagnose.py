@@ -6,7 +6,8 @@ from __future__ import annotations
 import numpy as np
 
 from ohmgraph.engine.readings.diagnosis import SHORT_RATIO, diagnose
-from ohmgraph.engine.readings.gls import DEFAULT_SIGNIFICANCE, MAX_FLAGGED, diagnose_parts
+from ohmgraph.engine.readings.gls import (DEFAULT_MIN_CHANGE, DEFAULT_SIGNIFICANCE, MAX_FLAGGED,
+                                         diagnose_parts)
 from ohmgraph.engine.readings.model import compare
 from ohmgraph.io.commands.compare import (add_network_arguments, add_output_arguments,
                                           add_reading_arguments, model_readings, read_inputs,
@@ -15,7 +16,7 @@ from ohmgraph.io.errors import EXIT_OK, InputError
 from ohmgraph.io.jsonout import dumps
 from ohmgraph.io.commands.argtypes import fraction, whole_number
 from ohmgraph.io.commands.part_options import (add_band_arguments, band_rule_text, model_bands,
-                                               read_part_tolerances)
+                                               percent, read_part_tolerances)
 
 
 def register(subparsers) -> None:
@@ -36,6 +37,9 @@ def register(subparsers) -> None:
     parser.add_argument("--significance", type=fraction, default=DEFAULT_SIGNIFICANCE,
                         metavar="P", help="significance of the chi-square tests with part "
                                           f"tolerances (default {DEFAULT_SIGNIFICANCE:g})")
+    parser.add_argument("--min-change", type=percent, default=DEFAULT_MIN_CHANGE, metavar="PCT",
+                        help="with part tolerances: smallest value change called a fault "
+                             f"(default {DEFAULT_MIN_CHANGE:.0%})")
     parser.add_argument("--max-flagged", type=whole_number(0), default=MAX_FLAGGED,
                         metavar="N", help="most readings flagged as unexplained (default "
                                           f"{MAX_FLAGGED}; 0: none)")
@@ -201,12 +205,14 @@ def _run_parts(args, net, table, model, tolerance, sources) -> int:
     bands, spread = model_bands(args, model, tolerance, covariance=True)
     comparison = compare(model, bands.band)
     result = diagnose_parts(model, bands, spread.covariance, top=args.top,
-                            short_ratio=args.short_ratio, significance=args.significance,
+                            short_ratio=args.short_ratio, min_change=args.min_change,
+                            significance=args.significance,
                             max_flagged=args.max_flagged)
     ranking = result.ranking
     columns = hypothesis_columns(net, ranking, result.pairs)
     attrs = {"fit": "generalised least squares", "band_rule": band_rule_text(bands),
              "coverage_factor": bands.coverage, "significance": result.significance,
+             "min_change": args.min_change,
              "baseline_chi2": ranking.baseline_chi2,
              "baseline_chi2_all_readings": result.first_ranking.baseline_chi2,
              "fault_indicated": result.fault_indicated, "single_fault_fits": result.single_fits,
