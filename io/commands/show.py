@@ -57,8 +57,9 @@ def _is_solution(path) -> bool:
 def _show_csv(args) -> int:
     record = read_sidecar(args.solution)
     if record is None:
-        raise InputError(f"{args.solution}: no provenance sidecar "
-                         f"{sidecar_path(args.solution).name}; not a result table of ohmgraph")
+        raise InputError(f"{args.solution}: not an HDF5 file, and no provenance sidecar "
+                         f"{sidecar_path(args.solution).name} beside it (not a result table "
+                         "of ohmgraph)")
     try:
         frame = pd.read_csv(args.solution, keep_default_na=False)
     except (OSError, ValueError) as error:
@@ -90,8 +91,9 @@ def run(args) -> int:
         if stored is not None:
             keys = ("created", "tool_version", "input_file", "input_sha256")
             out = {"stored": {k: stored.attrs[k] for k in keys if k in stored.attrs}, **summary}
-        out["results"] = {name: {"attributes": attrs, "columns": columns}
-                          for name, columns, attrs, _ in results}
+        if results:
+            out["results"] = {name: {"attributes": attrs, "columns": columns}
+                              for name, columns, attrs, _ in results}
         print(dumps(out))
         return EXIT_OK
     if stored is not None:
