@@ -114,3 +114,19 @@ def test_show_reads_every_result_file(tmp_path, capsys):
     assert main(["show", str(tmp_path / "sol.h5"), "--json"]) == 0
     report = json.loads(capsys.readouterr().out)
     assert report["nodes"] == 16 and "diagnosis" in report["results"]
+
+
+def test_html_summary_carries_the_cautions(tmp_path, capsys):
+    examples = resources.files("ohmgraph.datasets") / "examples"
+    net, meas = str(examples / "trim_coupon.csv"), str(examples / "trim_coupon_readings.csv")
+    for command in ("compare", "diagnose"):
+        out = tmp_path / f"{command}.html"
+        main([command, net, meas, "--accuracy", "0.05%+0.5mV", "--default", "1%", "--html",
+              str(out)])
+        text = out.read_text()
+        assert "De-energise and discharge the network before resistance readings" in text
+        assert "local safety rules and licensed practice" in text
+        assert "trim_coupon_readings.csv" in text and "SHA-256" in text
+        assert text.count("<tr class='fail'>") >= 10          # the planted fault's readings
+    assert "RH_2_2" in (tmp_path / "diagnose.html").read_text()
+    capsys.readouterr()

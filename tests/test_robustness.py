@@ -269,6 +269,12 @@ REFUSED = [
      "is also the input file"),
     ("tolerance net.csv --readings meas.csv --default 1% -o out.txt", EXIT_BAD_INPUT,
      "the name must end in"),
+    ("compare net.csv meas.csv --accuracy 1% --html notes.txt", EXIT_OUTPUT_REFUSED,
+     "already exists"),
+    ("diagnose net.csv meas.csv --accuracy 1% --html meas.csv --force", EXIT_BAD_INPUT,
+     "is also the input file"),
+    ("diagnose net.csv meas.csv --accuracy 1% --html missing/x.html", EXIT_OUTPUT_REFUSED,
+     "does not exist"),
     # choosing readings
     ("pick-readings net.csv --test-points tp_unknown.csv --budget 2 --accuracy 1%",
      EXIT_BAD_INPUT, "tp_unknown.csv:3: column 'node': unknown node 'nowhere'"),

@@ -7,6 +7,7 @@ their common arguments, reading the network, building the reading model and writ
 from __future__ import annotations
 
 import argparse
+import html
 from pathlib import Path
 
 import numpy as np
@@ -20,6 +21,7 @@ from ohmgraph.io.commands.argtypes import positive_float
 from ohmgraph.io.commands.part_options import (add_band_arguments, band_rule_text, model_bands,
                                                read_part_tolerances)
 from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, InputError, SolverError, UserError
+from ohmgraph.io.html_summary import add_html_argument, check_html, page, table_html, write_page
 from ohmgraph.io.jsonout import dumps
 from ohmgraph.io.measurement_store import refuse_existing_group, write_results
 from ohmgraph.io.measurement_table import UNIT_NAME, accuracy_rules, read_measurements
@@ -134,6 +136,7 @@ def register(subparsers) -> None:
     parser.add_argument("--failures-only", action="store_true",
                         help="list only the readings that fail")
     add_output_arguments(parser)
+    add_html_argument(parser)
     parser.set_defaults(run=run, command_group="comparison")
 
 
@@ -186,6 +189,7 @@ def _format(columns: dict, summary: dict, failures_only: bool) -> str:
 def read_inputs(args):
     """Refuse a bad output first, then read the network and its measurement table."""
     check_output(args)
+    check_html(args, (args.network, args.measurements, args.tolerances))
     rules = accuracy_rules(args.accuracy)
     net = read_network(args.network, ground=args.ground)
     return net, read_measurements(args.measurements, net, rules)
@@ -199,6 +203,8 @@ def run(args) -> int:
     bands, _ = model_bands(args, model, tolerance)
     result = compare(model, None if bands is None else bands.band)
     columns = reading_columns(table, model, result, bands)
+    sources = {"network": args.network, "measurements": args.measurements,
+               **({"tolerances": args.tolerances} if args.tolerances else {})}
     summary = result.summary()
     worst = summary.pop("worst_reading")
     summary = {**summary, "worst_line": None if worst is None else int(table.lines[worst]),
@@ -208,14 +214,27 @@ def run(args) -> int:
     if args.output:
         units = {name: "V|ohm|A by kind" for name in ("measured", "model", "deviation", "band",
                                                        "instrument_band", "parts_band")}
-        write_table(args, columns, units=units, attrs=summary,
-                    sources={"network": args.network, "measurements": args.measurements,
-                             **({"tolerances": args.tolerances} if args.tolerances else {})})
+        write_table(args, columns, units=units, attrs=summary, sources=sources)
+    text = _format(columns, summary, args.failures_only)
+    if args.html:
+        write_page(args.html, args.force, page(
+            "Readings against the model", provenance_record("comparison", sources, summary),
+            [("Result", f"<pre>{html.escape(text)}</pre>"),
+             ("Every reading", reading_table_html(columns))]))
     if args.json:
         rows = [dict(zip(columns, values)) for values in zip(*columns.values())]
         print(dumps({"summary": summary, "readings": rows}))
     else:
-        print(_format(columns, summary, args.failures_only))
+        print(text)
         for note in model.notes:
             print(f"note: {note}")
     return EXIT_OK if result.all_passed else EXIT_FAILED
+
+
+def reading_table_html(columns: dict, flagged=()) -> str:
+    """The readings as an HTML table, failures (and flagged readings) highlighted."""
+    def css(row):
+        if columns["line"][row] in flagged:
+            return "flag"
+        return "" if columns["status"][row] == "pass" else "fail"
+    return table_html(columns, css)

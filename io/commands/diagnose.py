@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import html
 
 import numpy as np
 
@@ -11,7 +12,9 @@ from ohmgraph.engine.readings.gls import (DEFAULT_MIN_CHANGE, DEFAULT_SIGNIFICAN
 from ohmgraph.engine.readings.model import compare
 from ohmgraph.io.commands.compare import (add_network_arguments, add_output_arguments,
                                           add_reading_arguments, model_readings, read_inputs,
-                                          write_table)
+                                          reading_columns, reading_table_html, write_table)
+from ohmgraph.io.html_summary import add_html_argument, page, table_html, write_page
+from ohmgraph.io.provenance import provenance_record
 from ohmgraph.io.errors import EXIT_OK, InputError
 from ohmgraph.io.jsonout import dumps
 from ohmgraph.io.commands.argtypes import fraction, whole_number
@@ -48,6 +51,7 @@ def register(subparsers) -> None:
     parser.add_argument("--short-ratio", type=fraction, default=SHORT_RATIO, metavar="F",
                         help=f"a short is the resistance times F (default {SHORT_RATIO:g})")
     add_output_arguments(parser)
+    add_html_argument(parser)
     parser.set_defaults(run=run, command_group="diagnosis")
 
 
@@ -185,20 +189,28 @@ def run(args) -> int:
              "tied_with_best": result.tied_with_best(),
              "solves": result.solves, "timings_s": {**model.timings, **result.timings},
              "notes": model.notes + result.notes}
-    _emit(args, columns, attrs, sources, lambda: _format(net, result, failed, model.readings.n))
+    text = _format(net, result, failed, model.readings.n)
+    _emit(args, columns, attrs, sources, text, reading_columns(table, model, comparison))
     return EXIT_OK
 
 
-def _emit(args, columns, attrs, sources, text) -> None:
+def _emit(args, columns, attrs, sources, text, readings, flagged=()) -> None:
     if args.output:
         write_table(args, columns,
                     units={"nominal_ohms": "ohm", "estimated_ohms": "ohm"}, attrs=attrs,
                     sources=sources)
+    if args.html:
+        write_page(args.html, args.force, page(
+            "Diagnosis of readings", provenance_record("diagnosis", sources, attrs),
+            [("Result", f"<pre>{html.escape(text)}</pre>"),
+             ("Hypotheses", table_html(columns)),
+             ("Every reading" + (" (flagged readings shaded amber)" if flagged else ""),
+              reading_table_html(readings, flagged))]))
     if args.json:
         rows = [dict(zip(columns, values)) for values in zip(*columns.values())]
         print(dumps({"summary": attrs, "hypotheses": rows}))
     else:
-        print(text())
+        print(text)
 
 
 def _run_parts(args, net, table, model, tolerance, sources) -> int:
@@ -227,5 +239,7 @@ def _run_parts(args, net, table, model, tolerance, sources) -> int:
              "tied_with_best": ranking.tied_with_best(), "solves": ranking.solves,
              "timings_s": {**model.timings, **result.timings},
              "notes": model.notes + result.notes + ranking.notes}
-    _emit(args, columns, attrs, sources, lambda: _format_parts(net, table, result, bands))
+    _emit(args, columns, attrs, sources, _format_parts(net, table, result, bands),
+          reading_columns(table, model, comparison, bands),
+          [int(table.lines[r]) for r, _ in result.flagged])
     return EXIT_OK
