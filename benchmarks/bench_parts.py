@@ -15,17 +15,21 @@ uniform within tolerance, instrument errors uniform within accuracy).
 
 from __future__ import annotations
 
+import itertools
 import os
 import time
 
 import numpy as np
 import pytest
 
+from bench_diagnosis import scattered_mesh, voltage_readings
 from ohmgraph.datasets.fixture import (FAULT_MODES, Accuracy, fault_trial, fixture_readings,
-                                       probe_fixture)
+                                       probe_fixture, scattered, with_fault)
+from ohmgraph.engine.network import RESISTOR
 from ohmgraph.engine.readings.bands import part_spread, reading_bands
 from ohmgraph.engine.readings.gls import diagnose_parts
-from ohmgraph.engine.readings.model import build_model, compare
+from ohmgraph.engine.readings.model import Readings, build_model, compare
+from ohmgraph.engine.readings.probes import choose_readings, unseparated_pairs
 
 TRIALS = int(os.environ.get("OHMGRAPH_BENCH_TRIALS", "200"))
 SIDE = int(os.environ.get("OHMGRAPH_BENCH_SIZE", "316"))
@@ -94,5 +98,120 @@ def test_fixture_contact_error_trials(benchmark, fixture):
             f"another reading flagged {_share(any(r != o.contact_reading for r in o.flagged) for o in both)}, "
             f"fault in the top 3 {_share(1 <= o.rank <= 3 for o in both)}, first "
             f"{_share(o.rank == 1 for o in both)}; median trial {np.median(seconds):.2f} s")
+    print("\n" + line)
+    benchmark.extra_info["result"] = line
+
+
+def test_probe_choice_against_random(benchmark, fixture):
+    """K = 20 readings chosen from 200 candidates (20 test-point voltages and 180 of the
+    resistances between them) against 2K = 40 drawn at random (mean over 50 draws)."""
+    net, _, _ = fixture
+    rng = np.random.default_rng(21)
+    lattice = np.flatnonzero(np.char.startswith(net.node_labels.astype(str), "N"))
+    points = rng.choice(lattice, 20, replace=False)
+    pairs = np.array(list(itertools.combinations(points, 2)))
+    pairs = pairs[np.sort(rng.choice(len(pairs), 180, replace=False))]
+    kind = np.array(["V"] * 20 + ["R"] * 180)
+    a = np.concatenate([points, pairs[:, 0]])
+    b = np.concatenate([np.full(20, net.reference), pairs[:, 1]])
+    blank = Readings(kind, a, b, np.full(200, -1), np.full(200, np.nan), np.full(200, np.nan))
+    values = build_model(net, blank).model_value
+    candidates = Readings(kind, a, b, blank.branch, blank.measured,
+                          Accuracy().band(kind, values))
+    tolerance = np.full(net.n_branches, TOLERANCE)
+
+    def run():
+        model = build_model(net, candidates)
+        return choose_readings(model, tolerance, 20)
+
+    start = time.perf_counter()
+    plan = benchmark.pedantic(run, rounds=1, iterations=1)
+    seconds = time.perf_counter() - start
+    universe = np.vstack([plan.faults.scaled[plan.seen], np.zeros((1, 200))])
+    drawn = [plan.total_pairs - unseparated_pairs(universe, rng.choice(200, 40, replace=False))
+             for _ in range(50)]
+    line = (f"probe choice: {plan.faults.branch.size} faults, {plan.seen.size} seen by some "
+            f"candidate, {plan.total_pairs} pairs; the tool's 20 readings separate "
+            f"{plan.separated_pairs} ({plan.separated_pairs / plan.total_pairs:.2%}); 40 random "
+            f"readings separate {np.mean(drawn):.0f} on average (min {min(drawn)}, max "
+            f"{max(drawn)}, 50 draws); {len(plan.groups)} indistinguishable groups, largest "
+            f"{plan.groups[0].size if plan.groups else 0}; choice {seconds:.1f} s")
+    print("\n" + line)
+    benchmark.extra_info["result"] = line
+    assert plan.separated_pairs >= np.mean(drawn)
+
+
+@pytest.fixture(scope="module")
+def large():
+    net = scattered_mesh(SIDE, pads=20, loads=200, load_amps=0.5, seed=1)
+    rng = np.random.default_rng(2)
+    nodes = rng.choice(np.flatnonzero(net.node_labels != "0"), min(500, net.n_nodes - 1),
+                       replace=False)
+    return net, nodes, build_model(net, voltage_readings(net, nodes))
+
+
+def test_compare_with_part_bands_500_readings(benchmark, large):
+    net, nodes, nominal = large
+    measured = nominal.model_value * (1 + 1e-4)
+    tolerance = np.full(net.n_branches, TOLERANCE)
+
+    def run():
+        stages = {}
+        start = time.perf_counter()
+        model = build_model(net, voltage_readings(net, nodes, measured))
+        stages["model"] = time.perf_counter() - start
+        start = time.perf_counter()
+        model.systems["powered"].solve_adjoint()
+        stages["adjoint"] = time.perf_counter() - start
+        start = time.perf_counter()
+        bands = reading_bands(model.readings.band, part_spread(model, tolerance))
+        stages["spread"] = time.perf_counter() - start
+        return compare(model, bands.band), stages
+
+    result, stages = benchmark.pedantic(run, rounds=1, iterations=1)
+    line = (f"compare with part bands: {net.n_nodes} nodes, {net.n_branches} branches, "
+            f"{nodes.size} readings, {result.passed.sum()} passed; seconds "
+            + ", ".join(f"{k} {v:.1f}" for k, v in stages.items())
+            + f", total {sum(stages.values()):.1f}")
+    print("\n" + line)
+    benchmark.extra_info["result"] = line
+
+
+def test_diagnose_on_real_parts_500_readings(benchmark, large):
+    net, nodes, nominal = large
+    touching = np.flatnonzero(np.isin(net.from_node, nodes) & (net.kind == RESISTOR))
+    branch = int(touching[np.argmax(np.abs(nominal.solution.branch_current[touching]))])
+    rng = np.random.default_rng(3)
+    built = scattered(with_fault(net, branch, "value", 1.2), TOLERANCE, rng)
+    true = build_model(built, voltage_readings(net, nodes)).model_value
+    band = voltage_readings(net, nodes, true).band
+    readings = voltage_readings(net, nodes, true + band * rng.uniform(-1, 1, true.size))
+    tolerance = np.full(net.n_branches, TOLERANCE)
+
+    def run():
+        stages = {}
+        start = time.perf_counter()
+        model = build_model(net, readings, solution=nominal.solution)
+        model.systems["powered"].solve_adjoint()
+        stages["model and adjoint"] = time.perf_counter() - start
+        start = time.perf_counter()
+        spread = part_spread(model, tolerance, covariance=True)
+        bands = reading_bands(model.readings.band, spread)
+        stages["covariance"] = time.perf_counter() - start
+        start = time.perf_counter()
+        result = diagnose_parts(model, bands, spread.covariance, top=5)
+        stages["rank, flag"] = time.perf_counter() - start
+        return result, stages
+
+    result, stages = benchmark.pedantic(run, rounds=1, iterations=1)
+    best = result.ranking.hypotheses[0]
+    line = (f"diagnose on real parts: {result.ranking.candidates} candidate resistors, "
+            f"{nodes.size} readings, fault +20 % planted, parts within 1 %; fault indicated "
+            f"{result.fault_indicated}; planted resistor in the first group "
+            f"{branch in best.branches} (group of {best.branches.size}); flagged "
+            f"{len(result.flagged)}; seconds "
+            + ", ".join(f"{k} {v:.1f}" for k, v in stages.items())
+            + f" (of which {', '.join(f'{k} {v:.1f}' for k, v in result.timings.items())})"
+            + f", total {sum(stages.values()):.1f}")
     print("\n" + line)
     benchmark.extra_info["result"] = line

@@ -29,6 +29,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+from scipy.linalg.blas import dsyrk
 
 from .model import ReadingModel
 from .sensitivity import conductance_sensitivity, resistor_candidates
@@ -90,7 +91,7 @@ def part_spread(model: ReadingModel, tolerance: np.ndarray, *, covariance: bool 
     tolerance = np.asarray(tolerance, np.float64)
     resistors = resistors[tolerance[resistors] > 0]
     worst, square = np.zeros(n), np.zeros(n)
-    matrix = np.zeros((n, n)) if covariance else None
+    matrix = np.zeros((n, n), order="F") if covariance else None
     for start in range(0, resistors.size, chunk):
         part = resistors[start:start + chunk]
         # dr/dR * t R = -(dr/dg) / R^2 * t R = -(dr/dg) * t / R
@@ -100,8 +101,11 @@ def part_spread(model: ReadingModel, tolerance: np.ndarray, *, covariance: bool 
         worst += np.abs(contribution).sum(axis=0)
         square += np.einsum("ki,ki->i", contribution, contribution)
         if matrix is not None:
-            matrix += contribution.T @ contribution
+            # P^T P of the block, upper triangle only (BLAS symmetric rank-k update: half the
+            # work of a general product).
+            matrix = dsyrk(1.0, contribution.T, beta=1.0, c=matrix, overwrite_c=True)
     if matrix is not None:
+        matrix = np.triu(matrix) + np.triu(matrix, 1).T
         matrix *= UNIFORM_VARIANCE
     return PartSpread(worst, np.sqrt(square), matrix)
 
