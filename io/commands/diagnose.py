@@ -42,7 +42,7 @@ def register(subparsers) -> None:
                                           f"tolerances (default {DEFAULT_SIGNIFICANCE:g})")
     parser.add_argument("--min-change", type=percent, default=DEFAULT_MIN_CHANGE, metavar="PCT",
                         help="with part tolerances: smallest value change called a fault "
-                             f"(default {DEFAULT_MIN_CHANGE:.0%})")
+                             f"(default {100 * DEFAULT_MIN_CHANGE:g}%%)")
     parser.add_argument("--max-flagged", type=whole_number(0), default=MAX_FLAGGED,
                         metavar="N", help="most readings flagged as unexplained (default "
                                           f"{MAX_FLAGGED}; 0: none)")

@@ -55,7 +55,7 @@ def register(subparsers) -> None:
     add_tolerance_arguments(parser)
     parser.add_argument("--change", type=percent, default=DEFAULT_CHANGE, metavar="PCT",
                         help="value change of the value faults, e.g. 20%% (default "
-                             f"{DEFAULT_CHANGE:.0%})")
+                             f"{100 * DEFAULT_CHANGE:g}%%)")
     parser.add_argument("--separation", type=positive_float, default=DEFAULT_SEPARATION,
                         metavar="S", help="standard deviations that separate two faults "
                                           f"(default {DEFAULT_SEPARATION:g})")
