@@ -128,8 +128,9 @@ def register(subparsers) -> None:
         "compare", help="compare readings of a built network with the model",
         description="Compute the model value of every reading in MEAS.csv (V: node voltage, R: "
                     "two-point resistance with sources zeroed, I: branch current), its deviation "
-                    "and the band the instrument's accuracy allows. Exit 0 when every reading "
-                    "passes, 1 when any fails.")
+                    "and the band the instrument's accuracy allows, widened by the spread of the "
+                    "parts when their tolerances are given (GUM root-sum-square with a coverage "
+                    "factor, or worst case). Exit 0 when every reading passes, 1 when any fails.")
     add_network_arguments(parser)
     add_reading_arguments(parser)
     add_band_arguments(parser)
