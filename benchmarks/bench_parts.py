@@ -65,7 +65,8 @@ def test_fixture_fault_trials(benchmark, fixture):
                                            rounds=1, iterations=1)
     seen = [o for o in outcomes if o.detectable]
     sizes = [o.group_size for o in seen if o.rank == 1]
-    line = (f"fault trials: {TRIALS}, signature above 3 sigma in {_share(o.detectable for o in outcomes)}; "
+    line = (f"fault trials: {TRIALS}, signature above 3 sigma in "
+            f"{_share(o.detectable for o in outcomes)}; "
             f"among those: first {_share(o.rank == 1 for o in seen)}, top 3 "
             f"{_share(1 <= o.rank <= 3 for o in seen)}, first as a single resistor "
             f"{_share(o.rank == 1 and o.group_size == 1 for o in seen)}, median group size "
@@ -95,7 +96,8 @@ def test_fixture_contact_error_trials(benchmark, fixture):
     line = (f"contact-error trials: {TRIALS}, fault and contact error both above 3 sigma in "
             f"{_share(o.detectable and o.contact_detectable for o in outcomes)}; among those: "
             f"corrupted reading flagged {_share(o.contact_reading in o.flagged for o in both)}, "
-            f"another reading flagged {_share(any(r != o.contact_reading for r in o.flagged) for o in both)}, "
+            "another reading flagged "
+            f"{_share(any(r != o.contact_reading for r in o.flagged) for o in both)}, "
             f"fault in the top 3 {_share(1 <= o.rank <= 3 for o in both)}, first "
             f"{_share(o.rank == 1 for o in both)}; median trial {np.median(seconds):.2f} s")
     print("\n" + line)

@@ -460,5 +460,6 @@ def read_test_points(path, net: Network) -> tuple[np.ndarray, np.ndarray]:
     return np.array(nodes, np.int64), np.array(labels)
 
 
-__all__ = ["read_measurements", "read_tolerances", "read_test_points", "MeasurementTable", "accuracy_rules",
+__all__ = ["read_measurements", "read_tolerances", "read_test_points", "MeasurementTable",
+           "accuracy_rules",
            "parse_accuracy", "parse_quantity", "parse_percent", "Accuracy", "Quantity"]

@@ -7,7 +7,7 @@ import pytest
 import scipy.linalg
 
 from ohmgraph.engine.readings.bands import part_spread, reading_bands
-from ohmgraph.engine.readings.gls import _CorrelatedFit, _GLSEvaluator, diagnose_parts
+from ohmgraph.engine.readings.gls import _GLSEvaluator, diagnose_parts
 from ohmgraph.engine.readings.model import Readings, build_model
 from ohmgraph.engine.readings.sensitivity import conductance_sensitivity, resistor_candidates
 from test_diagnosis import mesh
@@ -161,3 +161,37 @@ def test_two_faults_are_offered_when_no_single_fault_fits():
     assert ratio[first] == pytest.approx(2.0, rel=1e-3) and ratio[second] == pytest.approx(
         0.4, rel=1e-3)
     assert best.chi2 < 1e-3
+
+
+def test_leave_one_out_bounds_match_dense_refits():
+    # Reference: for every reading i, the GLS fit without it (covariance sub-matrix, numpy
+    # lstsq on the whitened system, one free factor per network), minimised over candidates
+    # and "no fault". The closed form (mean-shift outlier model) must give the same values.
+    net = mesh(4, 4, seed=5)
+    kinds, a, b = readings_on(net, 5, 8, 3)
+    values = measured(net, kinds, a, b, changed(net, {9: 1.6}))
+    values[9] += 0.3
+    model, spread, bands = setup(net, kinds, a, b, values, 1e-3)
+    covariance = spread.covariance + np.diag(bands.instrument_std ** 2)
+    deviation = values - model.model_value
+    used = np.arange(len(kinds))
+    evaluator = _GLSEvaluator(model, used, deviation, bands.band, covariance, 1e-6, 0.0)
+    candidates = resistor_candidates(net)
+    bounds = evaluator.deletion_bounds(candidates)
+    sensitivity = conductance_sensitivity(model, candidates)
+    is_r = np.array(kinds) == "R"
+    for left_out in used:
+        keep = used != left_out
+        factor = np.linalg.cholesky(covariance[np.ix_(keep, keep)])
+        white_d = scipy.linalg.solve_triangular(factor, deviation[keep], lower=True)
+        best = float(white_d @ white_d)
+        for q in sensitivity:
+            design = np.stack([np.where(is_r, 0.0, q), np.where(is_r, q, 0.0)], axis=1)[keep]
+            design = design[:, np.abs(design).sum(axis=0) > 0]
+            if design.shape[1] == 0:
+                continue
+            white_q = scipy.linalg.solve_triangular(factor, design, lower=True)
+            coefficients, *_ = np.linalg.lstsq(white_q, white_d, rcond=None)
+            residual = white_d - white_q @ coefficients
+            best = min(best, float(residual @ residual))
+        assert bounds[left_out] == pytest.approx(best, rel=1e-7, abs=1e-9)

@@ -14,7 +14,8 @@ Two rules combine that spread with the instrument's accuracy limit ``a_i``:
   uncertainty ``a/sqrt(3)`` (§4.3.7); the same for every part's tolerance limit;
 * independent contributions combine by root-sum-square, ``u_c^2 = sum u^2`` (§5.1.2, the law of
   propagation of uncertainty for uncorrelated inputs, first order);
-* the band is the expanded uncertainty ``U = k u_c`` with coverage factor ``k`` (§6.2.1; default 2).
+* the band is the expanded uncertainty ``U = k u_c`` with coverage factor ``k`` (§6.2.1;
+  default 2).
 
 ``worst`` (worst case): ``a_i + sum_k |c_ik|``, every limit reached at once in the worse direction.
 

@@ -48,8 +48,7 @@ from scipy.optimize import least_squares
 from scipy.stats import chi2 as chi2_distribution
 
 from .bands import ReadingBands
-from .diagnosis import (SCREEN_CHUNK, SHORT_RATIO, Diagnosis, Hypothesis, _Evaluator,
-                        rank_candidates)
+from .diagnosis import SCREEN_CHUNK, SHORT_RATIO, Diagnosis, _Evaluator, rank_candidates
 from .model import POWERED, ReadingModel
 from .sensitivity import resistor_candidates
 
@@ -146,7 +145,8 @@ class _GLSEvaluator(_Evaluator):
                               b[:, None] - mixed[name] ** 2 / eta))
             cross = None
             if len(parts) == 2:
-                (first, second), (m1, m2) = parts.values(), mixed.values()
+                second = list(parts.values())[1]
+                m1, m2 = mixed.values()
                 cross = (np.einsum("ki,ki->k", m1, second)[:, None] - m1 * m2 / eta)
             bound = base[None, :] - _reduction(terms, cross)
             best = np.minimum(best, bound.min(axis=0))

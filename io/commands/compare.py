@@ -109,8 +109,8 @@ def write_table(args, columns: dict, *, units=None, attrs=None, matrices=None,
             pd.DataFrame(columns).to_csv(temporary, index=False, float_format="%.17g")
             side.write_text(sidecar_text(record, args.output), encoding="utf-8")
         return
-    write_results(args.output, args.command_group, columns, units=units, attrs=attrs, matrices=matrices,
-                  sources=sources, force=args.force, append=args.append)
+    write_results(args.output, args.command_group, columns, units=units, attrs=attrs,
+                  matrices=matrices, sources=sources, force=args.force, append=args.append)
 
 
 def add_reading_arguments(parser) -> None:

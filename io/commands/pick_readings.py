@@ -174,7 +174,7 @@ def _format(net, plan, columns, summary) -> str:
     if len(plan.groups) > SHOWN_GROUPS:
         lines.append(f"... and {len(plan.groups) - SHOWN_GROUPS} more group(s)")
     if summary["faults_unseen"]:
-        lines.append(f"{summary['faults_unseen']} fault(s) are within {summary['separation_sigma']:g} "
-                     "sigma of the fault-free readings at every candidate: no reading on offer "
-                     "can see them")
+        lines.append(f"{summary['faults_unseen']} fault(s) are within "
+                     f"{summary['separation_sigma']:g} sigma of the fault-free readings at every "
+                     "candidate: no reading on offer can see them")
     return "\n".join(lines)
