@@ -130,3 +130,36 @@ def test_html_summary_carries_the_cautions(tmp_path, capsys):
         assert text.count("<tr class='fail'>") >= 10          # the planted fault's readings
     assert "RH_2_2" in (tmp_path / "diagnose.html").read_text()
     capsys.readouterr()
+
+
+def test_diagnose_offers_two_faults_when_no_single_fault_fits(tmp_path, capsys):
+    # Two parts wrong on the coupon (RH_2_2 300 ohm for 180, RV_2_3 90 ohm for 180); readings
+    # from a full re-solve, written with 7 significant digits.
+    from ohmgraph.engine.readings.model import build_model
+    from ohmgraph.io.measurement_table import read_measurements
+    from ohmgraph.io.reader import read_network
+
+    examples = resources.files("ohmgraph.datasets") / "examples"
+    net = read_network(examples / "trim_coupon.csv")
+    table = read_measurements(examples / "trim_coupon_readings.csv", net, values=False)
+    ohms = net.value.copy()
+    names = list(net.branch_names)
+    ohms[names.index("RH_2_2")], ohms[names.index("RV_2_3")] = 300.0, 90.0
+    values = build_model(net.with_values(ohms), table.readings).model_value
+    rows = [f"{k},{a},{b},{v:.7g},0.01%+0.01mV" if k == "V" else f"{k},{a},{b},{v:.7g},0.01%"
+            for k, a, b, v in zip(table.readings.kind, table.a, table.b, values)]
+    readings = tmp_path / "two.csv"
+    readings.write_text("kind,a,b,value,accuracy\n" + "\n".join(rows) + "\n")
+    code = main(["diagnose", str(examples / "trim_coupon.csv"), str(readings), "--default",
+                 "0.01%", "--max-flagged", "0", "--json"])
+    report = json.loads(capsys.readouterr().out)
+    assert code == 0 and report["summary"]["fault_indicated"]
+    assert not report["summary"]["single_fault_fits"]
+    pairs = [row for row in report["hypotheses"] if row["faults"] == 2 and row["rank"] == 1]
+    assert {row["branch"] for row in pairs} == {"RH_2_2", "RV_2_3"}
+    estimate = {row["branch"]: row["estimated_ohms"] for row in pairs}
+    assert estimate["RH_2_2"] == pytest.approx(300.0, rel=1e-3)
+    assert estimate["RV_2_3"] == pytest.approx(90.0, rel=1e-3)
+    main(["diagnose", str(examples / "trim_coupon.csv"), str(readings), "--default", "0.01%",
+          "--max-flagged", "0", "--top", "2"])
+    assert "no single fault fits" in capsys.readouterr().out
