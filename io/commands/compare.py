@@ -175,8 +175,12 @@ def _format(columns: dict, summary: dict, failures_only: bool) -> str:
             f"{columns['b'][row] or '-':>12} {columns['measured'][row]:>12.6g} {unit:<1} "
             f"{columns['model'][row]:>12.6g} {unit:<1} {columns['deviation'][row]:>+12.4g} "
             f"{columns['band'][row]:>11.4g} {shares}{columns['status'][row]}")
-    if parts:
-        lines.append(summary["band_rule"])
+    return "\n".join(lines + _summary_lines(summary, parts))
+
+
+def _summary_lines(summary: dict, parts: bool) -> list:
+    """The band rule (with parts), the counts and the worst reading."""
+    lines = [summary["band_rule"]] if parts else []
     lines.append(f"{summary['passed']} of {summary['readings']} reading(s) within "
                  + ("their band" if parts else "accuracy") + f", {summary['failed']} outside"
                  + (f" ({summary['unusable']} with no unique model value)"
@@ -184,7 +188,7 @@ def _format(columns: dict, summary: dict, failures_only: bool) -> str:
     if summary["worst_line"] is not None and summary["failed"]:
         lines.append(f"worst: line {summary['worst_line']}, "
                      f"{summary['worst_normalized_deviation']:+.3g} bands")
-    return "\n".join(lines)
+    return lines
 
 
 def read_inputs(args):
@@ -220,7 +224,8 @@ def run(args) -> int:
     if args.html:
         write_page(args.html, args.force, page(
             "Readings against the model", provenance_record("comparison", sources, summary),
-            [("Result", f"<pre>{html.escape(text)}</pre>"),
+            [("Result", "<pre>" + html.escape("\n".join(
+                _summary_lines(summary, bands is not None))) + "</pre>"),
              ("Every reading", reading_table_html(columns))]))
     if args.json:
         rows = [dict(zip(columns, values)) for values in zip(*columns.values())]
