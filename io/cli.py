@@ -24,12 +24,13 @@ from .errors import EXIT_BAD_INPUT, EXIT_NO_MEMORY, EXIT_OK, OUT_OF_MEMORY, User
 COMMANDS = {
     "check": "check that a network is well-posed",
     "solve": "solve a network and store every voltage, current and power in HDF5",
-    "show": "print the summary of a stored solution",
+    "show": "print the summary of a stored solution or stored results",
     "generate": "write a generated network as a branch table",
     "demo": "run the whole pipeline on an invented sensor-board supply mesh",
     "compare": "compare readings of a built network with the model",
     "diagnose": "rank single-resistor faults (open, short, value) that explain readings",
-    "tolerance": "spread of node voltages from resistor tolerances",
+    "tolerance": "spread of readings (V, R, I) from resistor tolerances",
+    "pick-readings": "choose the K readings that best tell single faults apart",
     "resistance": "effective resistance between nodes, across resistors, Kirchhoff index",
     "limits": "check a stored solution against drop limits and branch ratings",
     "export": "write nodes and branches of a stored solution to CSV or Parquet",
@@ -51,7 +52,7 @@ def build_parser(commands=None) -> argparse.ArgumentParser:
     subparsers = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
     for name, summary in COMMANDS.items():
         if commands is None or name in commands:
-            importlib.import_module(f"ohmgraph.io.commands.{name}").register(subparsers)
+            importlib.import_module(f"ohmgraph.io.commands.{name.replace('-', '_')}").register(subparsers)
         else:
             subparsers.add_parser(name, help=summary, add_help=False)
     return parser

@@ -41,6 +41,7 @@ from ohmgraph.io.errors import InputError, ProblemList
 TABLE_COLUMNS = ("kind", "a", "b", "value", "accuracy")
 REQUIRED_COLUMNS = ("kind", "a", "b", "value")
 TOLERANCE_COLUMNS = ("branch", "tolerance")
+TEST_POINT_COLUMNS = ("node",)
 PREFIXES = {"p": 1e-12, "n": 1e-9, "u": 1e-6, "µ": 1e-6, "μ": 1e-6, "m": 1e-3, "": 1.0,
             "k": 1e3, "M": 1e6, "G": 1e9}
 UNIT_KIND = {"v": "V", "a": "I", "ohm": "R", "ohms": "R", "Ω": "R"}
@@ -248,10 +249,11 @@ def _describe(accuracy: Accuracy, kind: str) -> str:
 class _RowReader:
     """Checks one measurement row at a time against the network."""
 
-    def __init__(self, net: Network, rules: dict, problems: ProblemList):
+    def __init__(self, net: Network, rules: dict, problems: ProblemList, values: bool = True):
         self.net = net
         self.rules = rules
         self.problems = problems
+        self.values = values
         self.names = {}
         for index, name in enumerate(net.branch_names.tolist()):
             self.names.setdefault(name, []).append(index)
@@ -290,6 +292,8 @@ class _RowReader:
             b = self.net.reference if not row["b"] else self.node(line, "b", row["b"])
             if a is None or b is None:
                 return None
+        if not self.values:
+            return kind, a, b, branch, np.nan, None
         measured = self._quantity(line, "value", row["value"], kind)
         accuracy = self._accuracy(line, row.get("accuracy", ""), kind)
         if measured is None or accuracy is None:
@@ -332,7 +336,8 @@ class _RowReader:
         return accuracy
 
 
-def read_measurements(path, net: Network, rules: dict | None = None) -> MeasurementTable:
+def read_measurements(path, net: Network, rules: dict | None = None, *,
+                      values: bool = True) -> MeasurementTable:
     """Read and check a measurement table against a network.
 
     Parameters
@@ -341,6 +346,10 @@ def read_measurements(path, net: Network, rules: dict | None = None) -> Measurem
     net : Network
     rules : dict, optional
         Global accuracies from :func:`accuracy_rules`.
+    values : bool
+        False to read only which quantities are observed (``kind``, ``a``, ``b``): the
+        ``value`` and ``accuracy`` columns are then optional and ignored, and the readings'
+        measured values and bands are NaN.
 
     Raises
     ------
@@ -349,9 +358,10 @@ def read_measurements(path, net: Network, rules: dict | None = None) -> Measurem
     """
     path = Path(path)
     records = _records(path)
-    _, header = _header(path, records, TABLE_COLUMNS, REQUIRED_COLUMNS)
+    _, header = _header(path, records, TABLE_COLUMNS,
+                        REQUIRED_COLUMNS if values else REQUIRED_COLUMNS[:3])
     problems = ProblemList(path)
-    checker = _RowReader(net, rules or {}, problems)
+    checker = _RowReader(net, rules or {}, problems, values)
     rows, lines, labels_a, labels_b, texts = [], [], [], [], []
     for line, fields in records:
         if len(fields) > len(header):
@@ -365,13 +375,14 @@ def read_measurements(path, net: Network, rules: dict | None = None) -> Measurem
         lines.append(line)
         labels_a.append(row["a"])
         labels_b.append(row["b"])
-        texts.append(_describe(parsed[5], parsed[0]))
+        texts.append("" if parsed[5] is None else _describe(parsed[5], parsed[0]))
     problems.raise_if_any()
     if not rows:
         raise InputError(f"{path}: no readings")
     kind, a, b, branch, measured, accuracy = zip(*rows)
     measured = np.array(measured, np.float64)
-    band = np.array([acc.band(value) for acc, value in zip(accuracy, measured)])
+    band = np.array([np.nan if acc is None else acc.band(value)
+                     for acc, value in zip(accuracy, measured)])
     readings = Readings(np.array(kind), a, b, branch, measured, band)
     return MeasurementTable(path, readings, np.array(lines, np.int64), np.array(labels_a),
                             np.array(labels_b), texts)
@@ -416,5 +427,39 @@ def read_tolerances(path, net: Network, default: float = 0.0) -> np.ndarray:
     return tolerance
 
 
-__all__ = ["read_measurements", "read_tolerances", "MeasurementTable", "accuracy_rules",
+def read_test_points(path, net: Network) -> tuple[np.ndarray, np.ndarray]:
+    """Node indices and labels of a test-point file (CSV with the column ``node``).
+
+    Raises
+    ------
+    InputError
+        On an unknown or repeated node, or a file without test points.
+    """
+    path = Path(path)
+    records = _records(path)
+    _, header = _header(path, records, TEST_POINT_COLUMNS, TEST_POINT_COLUMNS)
+    problems = ProblemList(path)
+    nodes, labels, seen = [], [], set()
+    for line, fields in records:
+        if len(fields) != len(header):
+            problems.add(line, f"{len(fields)} fields, the header has {len(header)}")
+            continue
+        label = fields[0]
+        index = net.label_index.get(label)
+        if index is None:
+            problems.add(line, f"column 'node': unknown node {label!r}")
+        elif label in seen:
+            problems.add(line, f"column 'node': {label!r} is listed twice")
+        else:
+            seen.add(label)
+            nodes.append(index)
+            labels.append(label)
+    problems.raise_if_any()
+    if not nodes:
+        raise InputError(f"{path}: no test points")
+    return np.array(nodes, np.int64), np.array(labels)
+
+
+__all__ = ["read_measurements", "read_tolerances", "read_test_points", "MeasurementTable",
+           "accuracy_rules",
            "parse_accuracy", "parse_quantity", "parse_percent", "Accuracy", "Quantity"]

@@ -206,5 +206,18 @@ def read_results(path, name: str) -> tuple[dict, dict, dict]:
         return datasets, dict(h5[name].attrs), dict(h5.attrs)
 
 
-__all__ = ["write_results", "read_results", "refuse_existing_group", "provenance",
-           "command_options"]
+RESULT_GROUPS = ("comparison", "diagnosis", "tolerance", "readings_plan")
+
+
+def result_groups(path) -> list:
+    """Names of the result groups an HDF5 file holds (empty when it holds none or is not a
+    readable HDF5 file: the solution reader then reports what is wrong)."""
+    try:
+        with h5py.File(path, "r") as h5:
+            return [name for name in RESULT_GROUPS if isinstance(h5.get(name), h5py.Group)]
+    except (OSError, ValueError):
+        return []
+
+
+__all__ = ["write_results", "read_results", "refuse_existing_group", "result_groups",
+           "RESULT_GROUPS", "provenance", "command_options"]

@@ -53,7 +53,7 @@ def test_command_summaries_match_their_modules():
 
     for name, summary in COMMANDS.items():
         subparsers = argparse.ArgumentParser().add_subparsers()
-        importlib.import_module(f"ohmgraph.io.commands.{name}").register(subparsers)
+        importlib.import_module(f"ohmgraph.io.commands.{name.replace('-', '_')}").register(subparsers)
         registered = {action.dest: action.help for action in subparsers._choices_actions}
         assert registered[name] == summary, name
 

@@ -110,8 +110,17 @@ def test_monte_carlo_agrees_with_linear_rss_for_small_tolerances(make_network):
     assert np.all(deviation <= spread.worst_case * 1.01)
 
 
-def test_monte_carlo_refuses_non_voltage_readings():
+def test_monte_carlo_of_current_and_resistance_readings():
+    # Each sample re-builds the model of the sampled divider: I(R1) = Vin/(R1+R2) and
+    # R(out, 0) = R1 R2/(R1+R2) (closed forms; common practice) with the sampled values.
     net = divider()
-    model = build_model(net, Readings.from_labels(net, ["I"], ["R1"], [""]))
-    with pytest.raises(ValueError, match="voltage readings only"):
-        monte_carlo(model, np.full(net.n_branches, 0.01), samples=2)
+    model = build_model(net, Readings.from_labels(net, ["I", "R"], ["R1", "out"], ["", "0"]))
+    tolerance = np.full(net.n_branches, 0.01)
+    carlo = monte_carlo(model, tolerance, samples=3, seed=5)
+    rng = np.random.default_rng(5)
+    resistors = resistor_candidates(net)
+    for sample in range(3):
+        ohms = net.value[resistors] * (1 + 0.01 * rng.uniform(-1, 1, resistors.size))
+        r1, r2 = ohms
+        assert carlo.values[sample] == pytest.approx([12.0 / (r1 + r2), r1 * r2 / (r1 + r2)],
+                                                     rel=1e-10)

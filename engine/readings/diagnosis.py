@@ -182,13 +182,18 @@ class _Fit:
         return self.cost({name: _factor(dg, z[name]) for name in self.terms})
 
 
-def _fit_value(fit: _Fit, g: np.ndarray, z: dict, short_ratio: float):
-    """Best ``chi2`` over new resistances in ``[short_ratio, 1/short_ratio]`` times the model.
+def _fit_value(fit: _Fit, g: np.ndarray, z: dict, short_ratio: float, min_change: float = 0.0):
+    """Best ``chi2`` over new resistances in ``[short_ratio, 1/short_ratio]`` times the model,
+    leaving out ratios within ``(1 - min_change, 1 + min_change)``.
 
-    Grid over ``rho = log10(R_new / R)``, then golden-section search around the best grid point.
+    Grid over ``rho = log10(R_new / R)``, then golden-section search around the best grid point
+    (a result inside the excluded interval moves to the better of its two ends).
     """
     span = -np.log10(short_ratio)
     grid = np.arange(-span, span + GRID_STEP_DECADES / 2, GRID_STEP_DECADES)
+    gap = (np.log10(1.0 - min_change), np.log10(1.0 + min_change))
+    if min_change > 0:
+        grid = np.union1d(grid[(grid <= gap[0]) | (grid >= gap[1])], gap)
 
     def cost(rho):
         return fit.cost_at(g * (10.0 ** -rho - 1.0), z)
@@ -208,6 +213,11 @@ def _fit_value(fit: _Fit, g: np.ndarray, z: dict, short_ratio: float):
         cost_left, cost_right = cost(left), cost(right)
     rho = np.where(cost_left < cost_right, left, right)
     refined = np.minimum(cost_left, cost_right)
+    if min_change > 0:
+        inside = (rho > gap[0]) & (rho < gap[1])
+        below, above = cost(np.full(g.shape, gap[0])), cost(np.full(g.shape, gap[1]))
+        rho = np.where(inside, np.where(below <= above, gap[0], gap[1]), rho)
+        refined = np.where(inside, np.minimum(below, above), refined)
     grid_best = costs[best, np.arange(g.size)]
     use_grid = grid_best < refined
     rho = np.where(use_grid, grid[best], rho)
@@ -226,10 +236,19 @@ def _open_cost(fit: _Fit, g: np.ndarray, z: dict) -> np.ndarray:
 
 
 class _Evaluator:
-    """Exact evaluation of candidates (one self-resistance solve per candidate and network)."""
+    """Exact evaluation of candidates (one self-resistance solve per candidate and network).
+
+    ``separation`` (None here): when set, an array over the used readings, in the units of
+    ``deviation``; candidates whose predicted changes differ from a group leader's by no more
+    than it in every reading join the leader's group. ``min_change`` (0 here): value changes
+    smaller than this fraction are not considered faults.
+    """
+
+    separation = None
+    min_change = 0.0
 
     def __init__(self, model: ReadingModel, used: np.ndarray, deviation: np.ndarray,
-                 short_ratio: float):
+                 short_ratio: float, scale: np.ndarray | None = None):
         self.model = model
         self.used = used
         self.deviation = deviation
@@ -237,8 +256,12 @@ class _Evaluator:
         system_of = model.system_of()[used]
         self.masks = {name: system_of == name for name in model.systems
                       if np.any(system_of == name)}
-        self.inverse_band = 1.0 / model.readings.band[used]
+        self.inverse_band = 1.0 / (model.readings.band[used] if scale is None else scale)
         self.self_solves = 0
+
+    def fit(self, scaled: np.ndarray) -> _Fit:
+        """The least-squares cost of the candidates whose scaled sensitivities are given."""
+        return _Fit(self.deviation, self.masks, scaled)
 
     def scaled(self, branches: np.ndarray) -> np.ndarray:
         """Sensitivities of the used readings divided by their bands, shape (k, used)."""
@@ -252,14 +275,13 @@ class _Evaluator:
         bounds = np.empty(branches.size)
         for start in range(0, branches.size, SCREEN_CHUNK):
             part = branches[start:start + SCREEN_CHUNK]
-            bounds[start:start + SCREEN_CHUNK] = _Fit(self.deviation, self.masks,
-                                                      self.scaled(part)).lower_bound()
+            bounds[start:start + SCREEN_CHUNK] = self.fit(self.scaled(part)).lower_bound()
         return bounds
 
     def evaluate(self, branches: np.ndarray) -> _Evaluated:
         net = self.model.network
         scaled = self.scaled(branches)
-        fit = _Fit(self.deviation, self.masks, scaled)
+        fit = self.fit(scaled)
         z = {}
         for name in self.masks:
             rs = self.model.systems[name]
@@ -267,7 +289,7 @@ class _Evaluator:
             self.self_solves += int(np.count_nonzero(
                 rs.node_unknown(net.from_node[branches]) != rs.node_unknown(net.to_node[branches])))
         g = 1.0 / net.value[branches]
-        chi2_value, ratio = _fit_value(fit, g, z, self.short_ratio)
+        chi2_value, ratio = _fit_value(fit, g, z, self.short_ratio, self.min_change)
         chi2_short = fit.cost_at(g * (1.0 / self.short_ratio - 1.0), z)
         return _Evaluated(branches, scaled, z, chi2_value, ratio, _open_cost(fit, g, z),
                           chi2_short)
@@ -316,12 +338,17 @@ def _group(evaluator: _Evaluator, ev: _Evaluated, top: int, short_ratio: float) 
             break
         if taken[leader]:
             continue
-        tolerance = GROUP_TOLERANCE * max(1.0, best[leader])
         window = order[position:]
-        window = window[(best[window] <= best[leader] + tolerance) & ~taken[window]]
-        change = evaluator.predicted(ev, window, dg[window])
-        scale = max(1.0, float(np.abs(change[0]).max(initial=0.0)))
-        same = np.abs(change - change[0]).max(axis=1, initial=0.0) <= GROUP_TOLERANCE * scale
+        if evaluator.separation is None:
+            tolerance = GROUP_TOLERANCE * max(1.0, best[leader])
+            window = window[(best[window] <= best[leader] + tolerance) & ~taken[window]]
+            change = evaluator.predicted(ev, window, dg[window])
+            scale = max(1.0, float(np.abs(change[0]).max(initial=0.0)))
+            same = np.abs(change - change[0]).max(axis=1, initial=0.0) <= GROUP_TOLERANCE * scale
+        else:
+            window = window[~taken[window]]
+            change = evaluator.predicted(ev, window, dg[window])
+            same = np.all(np.abs(change - change[0]) <= evaluator.separation, axis=1)
         members = window[same]
         taken[members] = True
         residual = evaluator.deviation - change[0]
@@ -366,6 +393,53 @@ def predicted_change(model: ReadingModel, branch: int, new_ohms: float) -> np.nd
     return change
 
 
+def rank_candidates(evaluator: _Evaluator, candidates: np.ndarray, *, top: int, screen: int,
+                    max_exact: int):
+    """Branch and bound over the candidates: screen by lower bounds, evaluate exactly in rounds.
+
+    Returns
+    -------
+    hypotheses : list of Hypothesis
+    evaluated : int
+        Candidates evaluated exactly.
+    exact : bool
+        True when no unevaluated candidate's bound beats the last hypothesis shown.
+    notes : list of str
+    timings : dict
+    """
+    timings, notes = {}, []
+    start = time.perf_counter()
+    for rs in evaluator.model.systems.values():
+        rs.solve_adjoint()
+    timings["adjoint"] = time.perf_counter() - start
+    start = time.perf_counter()
+    bounds = evaluator.lower_bounds(candidates)
+    order = np.argsort(bounds, kind="stable")
+    timings["screen"] = time.perf_counter() - start
+
+    start = time.perf_counter()
+    parts, done, exact = [], 0, True
+    target = min(max(screen, top), candidates.size)
+    while True:
+        parts.append(evaluator.evaluate(candidates[order[done:target]]))
+        done = target
+        evaluated = _merge(parts)
+        hypotheses = _group(evaluator, evaluated, top, evaluator.short_ratio)
+        threshold = hypotheses[-1].chi2 if hypotheses else np.inf
+        if done == candidates.size:
+            break
+        if bounds[order[done]] > threshold * (1 + 1e-9) + 1e-12:
+            break
+        if done >= max_exact:
+            exact = False
+            notes.append(f"stopped after evaluating {done} candidates exactly; hypotheses below "
+                         f"chi2 {bounds[order[done]]:.4g} may be missing from the ranking")
+            break
+        target = min(2 * done, candidates.size, max_exact)
+    timings["evaluate"] = time.perf_counter() - start
+    return hypotheses, done, exact, notes, timings
+
+
 def diagnose(model: ReadingModel, *, top: int = 10, short_ratio: float = SHORT_RATIO,
              screen: int = 64, max_exact: int = 8192) -> Diagnosis:
     """Rank single-resistor faults (open, short, value change) by how well they explain readings.
@@ -404,39 +478,15 @@ def diagnose(model: ReadingModel, *, top: int = 10, short_ratio: float = SHORT_R
                          solves={"adjoint": 0, "self_resistance": 0},
                          notes=notes + ["nothing to diagnose"])
 
-    start = time.perf_counter()
-    for rs in model.systems.values():
-        rs.solve_adjoint()
-    timings["adjoint"] = time.perf_counter() - start
-    start = time.perf_counter()
-    bounds = evaluator.lower_bounds(candidates)
-    order = np.argsort(bounds, kind="stable")
-    timings["screen"] = time.perf_counter() - start
-
-    start = time.perf_counter()
-    parts, done, exact = [], 0, True
-    target = min(max(screen, top), candidates.size)
-    while True:
-        parts.append(evaluator.evaluate(candidates[order[done:target]]))
-        done = target
-        evaluated = _merge(parts)
-        hypotheses = _group(evaluator, evaluated, top, short_ratio)
-        threshold = hypotheses[-1].chi2 if hypotheses else np.inf
-        if done == candidates.size:
-            break
-        if bounds[order[done]] > threshold * (1 + 1e-9) + 1e-12:
-            break
-        if done >= max_exact:
-            exact = False
-            notes.append(f"stopped after evaluating {done} candidates exactly; hypotheses below "
-                         f"chi2 {bounds[order[done]]:.4g} may be missing from the ranking")
-            break
-        target = min(2 * done, candidates.size, max_exact)
-    timings["evaluate"] = time.perf_counter() - start
+    hypotheses, done, exact, rank_notes, rank_timings = rank_candidates(
+        evaluator, candidates, top=top, screen=screen, max_exact=max_exact)
+    timings.update(rank_timings)
+    notes += rank_notes
     solves = {"adjoint": int(sum(rs.rows.size for rs in model.systems.values())),
               "self_resistance": evaluator.self_solves}
     return Diagnosis(hypotheses, baseline, used, int(candidates.size), done, exact, short_ratio,
                      solves, timings, notes)
 
 
-__all__ = ["diagnose", "predicted_change", "Diagnosis", "Hypothesis", "SHORT_RATIO", "KIND_MARGIN"]
+__all__ = ["diagnose", "rank_candidates", "predicted_change", "Diagnosis", "Hypothesis",
+           "SHORT_RATIO", "KIND_MARGIN"]

@@ -465,14 +465,22 @@ class Comparison:
         }
 
 
-def compare(model: ReadingModel) -> Comparison:
+def compare(model: ReadingModel, band: np.ndarray | None = None) -> Comparison:
     """Compare every reading with its model value: pass when ``|measured - model| <= band``.
 
     A resistance reading of ``inf`` (open circuit) matches an infinite model value and fails
     against a finite one, even though a percentage accuracy makes its band infinite too.
+
+    Parameters
+    ----------
+    model : ReadingModel
+    band : ndarray, optional
+        Allowed deviation of every reading; default the instrument's (``readings.band``), for
+        example the bands with part tolerances of :func:`.bands.reading_bands`.
     """
     readings = model.readings
-    measured, value, band = readings.measured, model.model_value, readings.band
+    measured, value = readings.measured, model.model_value
+    band = readings.band if band is None else np.asarray(band, np.float64)
     both_infinite = np.isinf(measured) & np.isinf(value) & (np.sign(measured) == np.sign(value))
     with np.errstate(invalid="ignore"):
         deviation = np.where(both_infinite, 0.0, measured - value)

@@ -28,7 +28,8 @@ import numpy as np
 from ..formulation import assemble
 from ..network import RESISTOR, Network
 from ..session import SolveSession
-from .model import POWERED, ReadingModel, ReadingSystem
+from ..solvers import DEFAULT_RTOL
+from .model import POWERED, ReadingModel, ReadingSystem, build_model
 
 SELF_RESISTANCE_BATCH = 64
 
@@ -189,17 +190,18 @@ class MonteCarloSpread:
 
 
 def monte_carlo(model: ReadingModel, tolerance: np.ndarray, samples: int, seed: int = 0,
-                on_sample=None) -> MonteCarloSpread:
-    """Re-solve the powered network ``samples`` times with values uniform within tolerance.
+                on_sample=None, *, method: str = "auto",
+                rtol: float = DEFAULT_RTOL) -> MonteCarloSpread:
+    """Re-solve the network ``samples`` times with values uniform within tolerance.
 
-    The structure is reused: ideal connections and sources are unchanged, so the contraction
-    and pinned nodes of the nominal solve stay valid and only the reduced system is
-    re-assembled and solved.
+    For voltage readings the structure is reused: ideal connections and sources are unchanged,
+    so the contraction and pinned nodes of the nominal solve stay valid and only the reduced
+    system is re-assembled and solved. With resistance or current readings every sample builds
+    the reading model of the sampled network afresh (:func:`.model.build_model`).
 
     Parameters
     ----------
     model : ReadingModel
-        With voltage readings only (node voltages relative to another node).
     tolerance : ndarray, shape (n_branches,)
         Relative tolerance of every branch; only resistors with positive resistance vary.
     samples : int
@@ -207,16 +209,13 @@ def monte_carlo(model: ReadingModel, tolerance: np.ndarray, samples: int, seed: 
         Seed of the NumPy random generator.
     on_sample : callable, optional
         Called with no argument after every sample (progress display).
-
-    Raises
-    ------
-    ValueError
-        When a reading is not a voltage reading.
+    method, rtol
+        Solver of the fresh models (resistance or current readings).
     """
     readings = model.readings
-    if np.any(readings.kind != "V"):
-        raise ValueError("Monte Carlo spread is implemented for voltage readings only")
-    net, report = model.network, model.solution.report
+    net = model.network
+    voltages_only = bool(np.all(readings.kind == "V"))
+    report = model.solution.report if voltages_only else None
     resistors = resistor_candidates(net)
     spread = np.asarray(tolerance, np.float64)[resistors]
     generator = np.random.default_rng(seed)
@@ -224,6 +223,12 @@ def monte_carlo(model: ReadingModel, tolerance: np.ndarray, samples: int, seed: 
     for sample in range(samples):
         ohms = net.value.copy()
         ohms[resistors] *= 1.0 + spread * generator.uniform(-1.0, 1.0, resistors.size)
+        if not voltages_only:
+            values[sample] = build_model(net.with_values(ohms), readings, method=method,
+                                         rtol=rtol).model_value
+            if on_sample is not None:
+                on_sample()
+            continue
         system = assemble(net.with_values(ohms), report.contraction, report.pinned_nodes)
         x = SolveSession(system.matrix, model.solution.method,
                          model.solution.rtol).solve(system.rhs)

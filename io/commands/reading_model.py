@@ -3,12 +3,15 @@ network and its measurement table, build the reading model, write the result tab
 
 from __future__ import annotations
 
+import numpy as np
+
 from ohmgraph.engine.readings.model import ReadingModel, build_model
 from ohmgraph.engine.solve import NetworkNotSolvable
 from ohmgraph.engine.solvers import SolverFailed
 from ohmgraph.io.check_view import format_report
 from ohmgraph.io.commands.reading_options import check_output
 from ohmgraph.io.errors import NotWellPosed, SolverError
+from ohmgraph.io.html_summary import check_html
 from ohmgraph.io.measurement_table import accuracy_rules, read_measurements
 from ohmgraph.io.memory_guard import refuse_if_too_big
 from ohmgraph.io.reader import read_network
@@ -19,6 +22,7 @@ from ohmgraph.io.result_table import write_result_table
 def read_inputs(args):
     """Refuse a bad output first, then read the network and its measurement table."""
     check_output(args)
+    check_html(args, (args.network, args.measurements, getattr(args, "tolerances", None)))
     rules = accuracy_rules(args.accuracy)
     net = read_network(args.network, ground=args.ground)
     refuse_if_too_big(net, args.method, args.network)
@@ -44,3 +48,21 @@ def write_table(args, columns: dict, *, units=None, attrs=None, matrices=None,
                        full_precision=getattr(args, "full_precision", False), force=args.force,
                        append=args.append, units=units, attrs=attrs, matrices=matrices,
                        sources=sources, command=args.command, options=command_options(args))
+
+
+def reading_columns(table, model: ReadingModel, result, bands=None) -> dict:
+    """One row per reading: where it is, what was measured and what the model says.
+
+    With part tolerances (``bands``), ``band`` is the combined band and ``instrument_band``,
+    ``parts_band`` its two parts.
+    """
+    readings = model.readings
+    status = np.where(result.passed, "pass", np.where(result.usable, "FAIL", "undetermined"))
+    parts = {} if bands is None else {"instrument_band": bands.instrument,
+                                      "parts_band": bands.parts}
+    return {
+        "line": table.lines, "kind": readings.kind, "a": table.a, "b": table.b,
+        "measured": readings.measured, "model": model.model_value,
+        "deviation": result.deviation, "band": result.band, **parts, "accuracy": table.accuracy,
+        "deviation_in_bands": result.normalized, "status": status,
+    }

@@ -11,6 +11,7 @@ from ohmgraph.io.atomic import refuse_existing, refuse_input
 from ohmgraph.io.commands.argtypes import positive_float
 from ohmgraph.io.errors import InputError
 from ohmgraph.io.formats import CSV, HDF5, require_format, suffixes_of
+from ohmgraph.io.provenance import sidecar_path
 from ohmgraph.io.result_store import refuse_existing_group
 
 OUTPUT_FORMATS = (CSV, HDF5)
@@ -75,3 +76,5 @@ def check_output(args) -> None:
         refuse_existing_group(args.output, args.command_group, args.force)
     else:
         refuse_existing(args.output, args.force)
+        if found.name == CSV:
+            refuse_existing(sidecar_path(args.output), args.force)
