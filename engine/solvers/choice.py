@@ -13,9 +13,10 @@ those that fit the memory budget.
 The analysis itself costs about as much as a fifth of one ``amg-cg`` solve of a lattice. When it
 would be a noticeable part of the expected work (few right-hand sides on a large matrix), a
 screen estimates the factor first from two nested breadth-first balls of ``n/64`` and ``n/16``
-unknowns (their counts, extrapolated along the growth exponent they show); if even that
-estimate makes ``direct`` twice as expensive as ``amg-cg``, or too large for the budget, the
-analysis is skipped and ``amg-cg`` chosen.
+unknowns (their counts, extrapolated along the growth exponent they show); if that estimate,
+the analysis included, makes ``direct`` clearly dearer than ``amg-cg``, or clearly too large for
+the budget, the analysis is skipped and ``amg-cg`` chosen. When neither back end is predicted to
+fit the budget, :class:`~.base.SolverFailed` says so rather than exceed it.
 
 The choice is a :class:`Choice`: the method, the reason in words and the numbers behind it, so a
 caller can show and store why a method was used.
@@ -39,10 +40,11 @@ import numpy as np
 from scipy.sparse.csgraph import breadth_first_order
 
 from ..memory import default_memory_budget
+from .base import SolverFailed
 from .symbolic import FactorAnalysis, column_counts
 
 # direct (SuperLU in the analysed order), seconds and bytes
-ANALYSIS_SECONDS_PER_ENTRY = 2.0e-7     # AMD order + column counts, per entry of A (70-400 ns)
+ANALYSIS_SECONDS_PER_ENTRY = 3.0e-7     # AMD order + column counts, per entry of A (70-460 ns)
 FACTOR_SECONDS_PER_FLOP = 1.8e-10       # numeric factorisation per multiply-add Σ colcount²
 FACTOR_SECONDS_PER_ENTRY = 2.5e-7       # per entry of A: permutation, SuperLU's own set-up
 SOLVE_SECONDS_PER_FACTOR_ENTRY = 8e-10  # per right-hand side: forward and back substitution
@@ -50,9 +52,13 @@ SOLVE_SECONDS_PER_UNKNOWN = 2.4e-8      # per right-hand side and unknown (permu
 DIRECT_BYTES_PER_FACTOR_ENTRY = 32.0    # peak resident bytes per entry of L: measured 23-32
 DIRECT_BYTES_PER_ENTRY = 24.0           # the permuted copy of A and its pattern
 
-# amg-cg (pyamg Ruge–Stüben + CG), per entry of A times the operator complexity
-AMG_SETUP_SECONDS = 6.5e-8              # measured 32-75 ns (170 on the k-NN graph)
-AMG_ITERATION_SECONDS = 5e-9            # per CG iteration: measured 3-6 ns (18 on the k-NN graph)
+# amg-cg (pyamg Ruge–Stüben + CG), per entry of A times the operator complexity. Measured:
+# set-up 32-75 ns on lattices, meshes and the random graphs, 170 ns on the k-NN graph (whose
+# conductances vary); per CG iteration 3-6 ns, 18 on the k-NN graph. The constants sit between,
+# nearer the fast end, so that the uniform lattices still go to amg-cg and the k-NN graphs, whose
+# factor hardly fills, to direct.
+AMG_SETUP_SECONDS = 1.0e-7
+AMG_ITERATION_SECONDS = 8e-9
 AMG_ITERATIONS = 12                     # measured 9 to 15 at rtol 1e-10 on all of the above
 AMG_BYTES_PER_ENTRY = 20.0              # peak bytes: measured 14-20
 # Operator complexity: at least COMPLEXITY_FLOOR (lattices, meshes, k-NN: 2.0-3.2); it grows
@@ -65,10 +71,11 @@ COMPLEXITY_SLOPE = 1.7
 
 # The screen: used when the analysis would cost more than SCREEN_SHARE of amg-cg's cheapest
 # prediction, on at least SCREEN_MIN_UNKNOWNS unknowns; skips the analysis when the sampled
-# estimate makes direct SCREEN_MARGIN times dearer than amg-cg (or larger than the budget).
+# estimate of direct (its analysis included) is SCREEN_MARGIN times dearer than amg-cg, or
+# SCREEN_MARGIN times larger than the budget.
 SCREEN_SHARE = 0.1
 SCREEN_MIN_UNKNOWNS = 64_000
-SCREEN_MARGIN = 2.0
+SCREEN_MARGIN = 1.5
 SCREEN_BALLS = (64, 16)
 
 
@@ -164,6 +171,15 @@ def _budget(memory_budget: float | None) -> float:
     return math.inf if budget is None else float(budget)
 
 
+def _refuse_over_budget(predicted: dict, budget: float) -> None:
+    """Raise :class:`~.base.SolverFailed` when amg-cg, the only candidate left, is predicted
+    over the budget too."""
+    if predicted["amg_bytes"] > budget:
+        raise SolverFailed(f"neither back end fits the memory budget of {_gb(budget)}: direct "
+                           f"would need about {_gb(predicted['direct_bytes'])}, amg-cg about "
+                           f"{_gb(predicted['amg_bytes'])}; raise the budget (--memory-budget)")
+
+
 def choose(matrix, solves: int = 1, memory_budget: float | None = None) -> Choice:
     """Pick ``direct`` or ``amg-cg`` for ``matrix`` and ``solves`` right-hand sides.
 
@@ -176,6 +192,11 @@ def choose(matrix, solves: int = 1, memory_budget: float | None = None) -> Choic
     memory_budget : float, optional
         Bytes the set-up may use; None for the default (half the available memory,
         :func:`ohmgraph.engine.memory.default_memory_budget`).
+
+    Raises
+    ------
+    SolverFailed
+        When neither back end is predicted to fit the memory budget.
     """
     n, entries = matrix.shape[0], matrix.nnz
     solves = max(int(solves), 1)
@@ -191,12 +212,15 @@ def choose(matrix, solves: int = 1, memory_budget: float | None = None) -> Choic
         if sample is not None:
             factor_nonzeros, flops = sample
             direct_s, direct_b = direct_prediction(matrix, factor_nonzeros, flops, solves)
-            amg_s, amg_b = amg_prediction(matrix, solves,
-                                          operator_complexity(matrix, factor_nonzeros, flops))
+            direct_s += ANALYSIS_SECONDS_PER_ENTRY * entries
+            complexity = operator_complexity(matrix, factor_nonzeros, flops)
+            amg_s, amg_b = amg_prediction(matrix, solves, complexity)
             if direct_s > SCREEN_MARGIN * amg_s or direct_b > SCREEN_MARGIN * budget:
                 predicted.update(sampled=True, factor_nonzeros=factor_nonzeros,
                                  factor_flops=flops, direct_seconds=direct_s,
-                                 direct_bytes=direct_b, amg_seconds=amg_s, amg_bytes=amg_b)
+                                 direct_bytes=direct_b, amg_seconds=amg_s, amg_bytes=amg_b,
+                                 amg_complexity=complexity)
+                _refuse_over_budget(predicted, budget)
                 return Choice("amg-cg", f"sampled factor estimate: direct about {direct_s:.3g} s "
                               f"and {_gb(direct_b)}, amg-cg {amg_s:.3g} s for {solves} "
                               "right-hand side(s)", predicted)
@@ -209,6 +233,7 @@ def choose(matrix, solves: int = 1, memory_budget: float | None = None) -> Choic
                      factor_flops=analysis.flops, direct_seconds=direct_s, direct_bytes=direct_b,
                      amg_seconds=amg_s, amg_bytes=amg_b, amg_complexity=complexity)
     if direct_b > budget:
+        _refuse_over_budget(predicted, budget)
         return Choice("amg-cg", f"the factor ({analysis.factor_nonzeros} entries) would need "
                       f"{_gb(direct_b)}, over the memory budget of {_gb(budget)}", predicted,
                       analysis)
