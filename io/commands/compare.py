@@ -16,7 +16,7 @@ from ohmgraph.engine.readings.model import ReadingModel, build_model, compare
 from ohmgraph.engine.solve import NetworkNotSolvable
 from ohmgraph.engine.solvers import DEFAULT_RTOL, SOLVERS, SolverFailed
 from ohmgraph.io.atomic import atomic_output, refuse_existing, refuse_input
-from ohmgraph.io.commands.argtypes import positive_float
+from ohmgraph.io.commands.argtypes import add_memory_budget, positive_float
 from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, InputError, SolverError, UserError
 from ohmgraph.io.jsonout import dumps
 from ohmgraph.io.measurement_store import refuse_existing_group, write_results
@@ -41,6 +41,7 @@ def add_network_arguments(parser: argparse.ArgumentParser) -> None:
                         help="reference (0 V) node label (default 0)")
     parser.add_argument("--method", choices=["auto", *SOLVERS], default="auto",
                         help="linear solver (default: auto)")
+    add_memory_budget(parser)
     parser.add_argument("--rtol", type=positive_float, default=DEFAULT_RTOL,
                         help=f"relative residual target (default {DEFAULT_RTOL:g})")
     parser.add_argument("--allow-floating", action="store_true",
@@ -81,7 +82,8 @@ def model_readings(args, net, readings, solution=None) -> ReadingModel:
     """Build the reading model; a network without a unique solution exits with code 1."""
     try:
         return build_model(net, readings, method=args.method, rtol=args.rtol,
-                           allow_floating=args.allow_floating, solution=solution)
+                           allow_floating=args.allow_floating, solution=solution,
+                           memory_budget=args.memory_budget)
     except NetworkNotSolvable as error:
         from ohmgraph.io.check_view import format_report
 

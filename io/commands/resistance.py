@@ -16,7 +16,7 @@ from tqdm import tqdm
 from ohmgraph.engine.resistance import ResistanceSolver
 from ohmgraph.engine.solvers import DEFAULT_RTOL, SOLVERS, SolverFailed
 from ohmgraph.io.atomic import refuse_existing, refuse_input
-from ohmgraph.io.commands.argtypes import positive_float, whole_number
+from ohmgraph.io.commands.argtypes import add_memory_budget, positive_float, whole_number
 from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, InputError, SolverError
 from ohmgraph.io.jsonout import dumps
 from ohmgraph.io.pairs import check_table_path, read_pairs, write_table
@@ -50,6 +50,7 @@ def register(subparsers) -> None:
     parser.add_argument("--method", choices=["auto", *SOLVERS], default="auto",
                         help="linear solver (default auto: chosen for the network and the "
                              "number of solves)")
+    add_memory_budget(parser)
     parser.add_argument("--rtol", type=positive_float, default=DEFAULT_RTOL,
                         help=f"relative residual target of iterative solves "
                              f"(default {DEFAULT_RTOL:g})")
@@ -84,7 +85,8 @@ def run(args) -> int:
         refuse_existing(args.output, args.force)
     net = read_network(args.network, ground=args.ground)
     try:
-        solver = ResistanceSolver(net, method=args.method, rtol=args.rtol)
+        solver = ResistanceSolver(net, method=args.method, rtol=args.rtol,
+                                  memory_budget=args.memory_budget)
     except ValueError as error:
         print(f"ohmgraph resistance: {args.network}: not well-posed: {error}", file=sys.stderr)
         return EXIT_FAILED

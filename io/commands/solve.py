@@ -7,7 +7,7 @@ import time
 from ohmgraph.engine.checks import check
 from ohmgraph.engine.solve import solve
 from ohmgraph.engine.solvers import DEFAULT_RTOL, SOLVERS, SolverFailed
-from ohmgraph.io.commands.argtypes import positive_float
+from ohmgraph.io.commands.argtypes import add_memory_budget, positive_float
 from ohmgraph.io.atomic import refuse_existing, refuse_input
 from ohmgraph.io.check_view import format_report, report_to_dict
 from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, SolverError
@@ -29,7 +29,8 @@ def register(subparsers) -> None:
     parser.add_argument("-o", "--output", required=True, metavar="OUT.h5",
                         help="HDF5 file to create")
     parser.add_argument("--method", choices=["auto", *SOLVERS], default="auto",
-                        help="linear solver (default: auto, direct for small systems)")
+                        help="linear solver (default: auto, the cheaper by predicted cost)")
+    add_memory_budget(parser)
     parser.add_argument("--rtol", type=positive_float, default=DEFAULT_RTOL,
                         help=f"relative residual target (default {DEFAULT_RTOL:g})")
     parser.add_argument("--ground", default="0", metavar="LABEL",
@@ -59,7 +60,8 @@ def run(args) -> int:
 
     try:
         solution = solve(net, method=args.method, rtol=args.rtol,
-                         allow_floating=args.allow_floating, report=report)
+                         allow_floating=args.allow_floating, report=report,
+                         memory_budget=args.memory_budget)
     except SolverFailed as error:
         raise SolverError(f"{args.network}: {error}") from error
     solution.timings = {"read": read_seconds, **solution.timings, "check": check_seconds}
