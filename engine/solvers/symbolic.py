@@ -51,17 +51,18 @@ class FactorAnalysis:
     flops: float
 
 
-def _pattern(matrix) -> sp.csc_matrix:
-    """The symmetric pattern of ``matrix`` as CSC with sorted indices (values irrelevant)."""
-    pattern = sp.csc_matrix(matrix, dtype=np.float64, copy=True)
-    pattern.data[:] = 1.0
-    pattern = (pattern + pattern.T).tocsc()
-    pattern.sort_indices()
-    return pattern
+def _permuted_pattern(matrix, order: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """``indptr, indices`` of the pattern of ``P A Pᵀ`` (``A[order][:, order]``) for a matrix
+    with a symmetric pattern: its rows are also its columns, so the result serves as CSC."""
+    rows = sp.csr_matrix(matrix)[order]
+    inverse = np.empty_like(order)
+    inverse[order] = np.arange(order.size)
+    return rows.indptr.astype(np.int64), inverse[rows.indices]
 
 
 def fill_reducing_order(matrix) -> np.ndarray:
-    """Approximate minimum degree ordering of the pattern of ``matrix + matrixᵀ``.
+    """Approximate minimum degree ordering of the symmetric pattern of ``matrix`` (its lower
+    triangle is read).
 
     SuiteSparse AMD through :func:`cvxopt.amd.order` (Amestoy, Davis & Duff 1996).
 
@@ -75,7 +76,7 @@ def fill_reducing_order(matrix) -> np.ndarray:
         return np.zeros(0, np.int64)
     from cvxopt import amd, matrix as cvx_matrix, spmatrix
 
-    lower = sp.tril(_pattern(matrix), format="coo")
+    lower = sp.tril(matrix, format="coo")
     pattern = spmatrix(1.0, cvx_matrix(lower.row.astype(np.int64)),
                        cvx_matrix(lower.col.astype(np.int64)), (n, n))
     return np.asarray(amd.order(pattern, "L"), np.int64).reshape(-1)
@@ -84,7 +85,8 @@ def fill_reducing_order(matrix) -> np.ndarray:
 @numba.njit(cache=True)
 def elimination_tree(indptr, indices):
     """Parent of each column in the elimination tree of a symmetric pattern (CSC, both
-    triangles); -1 for a root. Liu's algorithm with path compression (Davis 2006, §4.1)."""
+    triangles, indices in any order within a column); -1 for a root. Liu's algorithm with path
+    compression (Davis 2006, §4.1)."""
     n = indptr.size - 1
     parent = np.full(n, -1, np.int64)
     ancestor = np.full(n, -1, np.int64)
@@ -184,17 +186,14 @@ def column_counts(matrix, order: np.ndarray | None = None) -> FactorAnalysis:
     Parameters
     ----------
     matrix : sparse matrix, shape (n, n)
-        Only the pattern of ``matrix + matrixᵀ`` counts.
+        With a symmetric pattern (only the pattern counts).
     order : ndarray of int, optional
         Elimination order; by default :func:`fill_reducing_order`.
     """
     if order is None:
         order = fill_reducing_order(matrix)
     order = np.asarray(order, np.int64)
-    pattern = _pattern(matrix)[order][:, order].tocsc()
-    pattern.sort_indices()
-    indptr = pattern.indptr.astype(np.int64)
-    indices = pattern.indices.astype(np.int64)
+    indptr, indices = _permuted_pattern(matrix, order)
     parent = elimination_tree(indptr, indices)
     counts = _counts_from_tree(indptr, indices, parent, postorder(parent))
     return FactorAnalysis(order, counts, int(counts.sum()),
@@ -213,7 +212,7 @@ def column_counts_reference(matrix, order: np.ndarray) -> tuple[np.ndarray, np.n
     -------
     parent, counts : ndarray of int64
     """
-    pattern = _pattern(matrix)[order][:, order].tocsc()
+    pattern = sp.csc_matrix(matrix)[order][:, order]
     n = pattern.shape[0]
     columns = [set(int(i) for i in pattern.indices[pattern.indptr[j]:pattern.indptr[j + 1]]
                    if i > j) for j in range(n)]
