@@ -204,7 +204,7 @@ def choose(matrix, solves: int = 1, memory_budget: float | None = None) -> Choic
     if n == 0:
         return Choice("direct", "an empty system", {"unknowns": 0})
     predicted = {"unknowns": n, "matrix_nonzeros": entries, "solves": solves,
-                 "memory_budget_bytes": budget}
+                 "memory_budget_bytes": budget if math.isfinite(budget) else None}
     cheapest_amg, _ = amg_prediction(matrix, solves, COMPLEXITY_FLOOR)
     if (ANALYSIS_SECONDS_PER_ENTRY * entries > SCREEN_SHARE * cheapest_amg
             and n >= SCREEN_MIN_UNKNOWNS):
