@@ -128,7 +128,7 @@ class SolveSession:
         if self._solver is not None and self._solver.method == "direct":
             return
         start = time.perf_counter()
-        choice = choose(self.matrix, solves, self.memory_budget)
+        choice = choose(self.matrix, solves, self.memory_budget, self._analysis)
         self.stats.setup_seconds += time.perf_counter() - start
         self._analysis = choice.analysis or self._analysis
         if self._solver is None or choice.method != self._solver.method:

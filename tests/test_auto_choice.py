@@ -164,3 +164,18 @@ def test_bad_memory_sizes_are_refused(text):
     with pytest.raises(argparse.ArgumentTypeError):
         memory_size(text)
 
+
+
+def test_a_later_query_reuses_the_analysis(monkeypatch):
+    import ohmgraph.engine.solvers.choice as choice
+
+    matrix = grounded(grid2d(50, 50, pads=4, loads=10, seed=1)).matrix
+    session = SolveSession(matrix, memory_budget=8e9)
+    monkeypatch.setattr(choice, "FACTOR_SECONDS_PER_ENTRY", 1.0)    # direct looks dear
+    session.expect(1)
+    assert session.method == "amg-cg" and session._analysis is not None
+    calls = []
+    monkeypatch.setattr(choice, "column_counts", lambda *a: calls.append(a))
+    session.expect(1)
+    session.expect(3)
+    assert not calls

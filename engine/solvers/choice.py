@@ -180,7 +180,8 @@ def _refuse_over_budget(predicted: dict, budget: float) -> None:
                            f"{_gb(predicted['amg_bytes'])}; raise the budget (--memory-budget)")
 
 
-def choose(matrix, solves: int = 1, memory_budget: float | None = None) -> Choice:
+def choose(matrix, solves: int = 1, memory_budget: float | None = None,
+           analysis: FactorAnalysis | None = None) -> Choice:
     """Pick ``direct`` or ``amg-cg`` for ``matrix`` and ``solves`` right-hand sides.
 
     Parameters
@@ -192,6 +193,8 @@ def choose(matrix, solves: int = 1, memory_budget: float | None = None) -> Choic
     memory_budget : float, optional
         Bytes the set-up may use; None for the default (half the available memory,
         :func:`ohmgraph.engine.memory.default_memory_budget`).
+    analysis : FactorAnalysis, optional
+        The symbolic analysis of ``matrix`` from an earlier choice, reused.
 
     Raises
     ------
@@ -206,7 +209,7 @@ def choose(matrix, solves: int = 1, memory_budget: float | None = None) -> Choic
     predicted = {"unknowns": n, "matrix_nonzeros": entries, "solves": solves,
                  "memory_budget_bytes": budget if math.isfinite(budget) else None}
     cheapest_amg, _ = amg_prediction(matrix, solves, COMPLEXITY_FLOOR)
-    if (ANALYSIS_SECONDS_PER_ENTRY * entries > SCREEN_SHARE * cheapest_amg
+    if (analysis is None and ANALYSIS_SECONDS_PER_ENTRY * entries > SCREEN_SHARE * cheapest_amg
             and n >= SCREEN_MIN_UNKNOWNS):
         sample = sampled_factor(matrix)
         if sample is not None:
@@ -224,7 +227,8 @@ def choose(matrix, solves: int = 1, memory_budget: float | None = None) -> Choic
                 return Choice("amg-cg", f"sampled factor estimate: direct about {direct_s:.3g} s "
                               f"and {_gb(direct_b)}, amg-cg {amg_s:.3g} s for {solves} "
                               "right-hand side(s)", predicted)
-    analysis = column_counts(matrix)
+    if analysis is None:
+        analysis = column_counts(matrix)
     direct_s, direct_b = direct_prediction(matrix, analysis.factor_nonzeros, analysis.flops,
                                            solves)
     complexity = operator_complexity(matrix, analysis.factor_nonzeros, analysis.flops)
