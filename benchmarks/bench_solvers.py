@@ -4,7 +4,8 @@
   aggregation with CG (``smoothed_aggregation_solver(A).solve(b, tol, accel="cg")``, set-up
   included, as shipped and with the BLAS held to one thread) and by
   ``scipy.sparse.linalg.spsolve``, printed as ratios to ``solve_spd``;
-* ``direct`` against ``amg-cg`` over lattice sizes (where ``AUTO_DIRECT_LIMIT`` comes from);
+* ``direct`` against ``amg-cg`` over lattice sizes (``auto``'s choice over graph families and
+  sizes is ``bench_auto_choice.py``);
 * a block of right-hand sides against the same columns one by one;
 * both methods on the IBM power-grid benchmark pg1 (skipped when absent).
 """
@@ -19,7 +20,6 @@ from conftest import RTOL, SIZE, Stopwatch, reduced_system, relative_residual, s
 
 from ohmgraph.engine import solve_spd
 from ohmgraph.engine.solvers import SOLVERS, single_threaded_blas
-from ohmgraph.engine.solvers.choice import AUTO_DIRECT_LIMIT
 
 SAME_MATRIX_SECONDS: dict[str, float] = {}
 
@@ -87,7 +87,7 @@ def test_direct_against_amg(benchmark, side, method):
                                 relative_residual=info.relative_residual)
     print(f"\n{method} on {system.n_unknowns} unknowns: {run.best:.2f} s (set-up "
           f"{info.setup_seconds:.2f}, solve {info.solve_seconds:.2f}, {info.iterations} "
-          f"iterations); auto picks direct up to {AUTO_DIRECT_LIMIT} unknowns")
+          f"iterations)")
 
 
 BLOCK_SIDE = min(SIZE, 300)

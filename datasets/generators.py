@@ -476,3 +476,86 @@ def site_coordinates(labels) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     y = pd.to_numeric(ys, errors="coerce").to_numpy(np.float64)
     x[np.isnan(y)] = np.nan
     return x, y, layer.fillna("").to_numpy(dtype=str)
+
+
+def _graph_network(graph, ohms, pads, loads, load_amps, supply_volts, seed,
+                   reference) -> Network:
+    """A network of ``ohms`` resistors on the edges of a networkx graph over nodes ``0..n-1``
+    (labels ``"p{i}"``; resistors ``R{i}_{j}``, ``i < j``), with pads and loads as
+    :func:`grid2d`."""
+    _require_positive(ohms=ohms)
+    n = graph.number_of_nodes()
+    edges = np.array(list(graph.edges()), dtype=np.int64).reshape(-1, 2)
+    low, high = edges.min(axis=1), edges.max(axis=1)
+    digits = _digits(n)
+    labels = np.char.add("p", digits)
+    names = _join([np.char.add("R", digits[low]), digits[high]])
+    rng = np.random.default_rng(seed)
+    every = np.arange(n)
+    pad_nodes = _pick(rng, every, pads, "pads")
+    load_nodes = _pick(rng, every, loads, "loads")
+    return _network(labels, names, low, high, np.full(low.size, float(ohms)),
+                    pad_nodes=pad_nodes, supply_volts=supply_volts, load_nodes=load_nodes,
+                    load_amps=load_amps, reference=reference)
+
+
+def small_world(n: int, k: int = 4, p: float = 0.1, seed: int = 0, *, ohms: float = 1.0,
+                pads: int = 0, loads: int = 0, load_amps: float = 1e-3,
+                supply_volts: float = 1.0, reference: str | None = None) -> Network:
+    """A Watts–Strogatz small world (D. J. Watts & S. H. Strogatz, Nature 393, 440, 1998) of
+    ``ohms`` resistors: a ring of ``n`` nodes, each joined to its ``k`` nearest, every edge
+    rewired with probability ``p`` (:func:`networkx.watts_strogatz_graph`).
+
+    Parameters
+    ----------
+    n, k : int
+        Nodes (more than ``k``) and ring neighbours per node (even, at least 2).
+    p : float
+        Rewiring probability, 0 to 1.
+    seed : int
+        Seed of the rewiring and of the pad and load choice.
+    ohms, pads, loads, load_amps, supply_volts, reference
+        As in :func:`grid2d`; the default reference of a bare network is ``"p0"``.
+
+    Returns
+    -------
+    Network
+        Nodes ``"p0" .. "p{n-1}"``, ``n k / 2`` resistors named ``R{i}_{j}`` with ``i < j``.
+    """
+    import networkx as nx
+
+    _require_count(minimum=2, k=k)
+    _require_count(minimum=k + 1, n=n)
+    if k % 2 or not 0 <= p <= 1:
+        raise ValueError(f"k must be even and p between 0 and 1, got k={k!r}, p={p!r}")
+    graph = nx.watts_strogatz_graph(n, k, p, seed=seed)
+    return _graph_network(graph, ohms, pads, loads, load_amps, supply_volts, seed, reference)
+
+
+def scale_free(n: int, m: int = 2, seed: int = 0, *, ohms: float = 1.0, pads: int = 0,
+               loads: int = 0, load_amps: float = 1e-3, supply_volts: float = 1.0,
+               reference: str | None = None) -> Network:
+    """A Barabási–Albert scale-free graph (A.-L. Barabási & R. Albert, Science 286, 509, 1999)
+    of ``ohms`` resistors: nodes join one by one, each with ``m`` edges to existing nodes
+    chosen with probability proportional to their degree (:func:`networkx.barabasi_albert_graph`).
+
+    Parameters
+    ----------
+    n, m : int
+        Nodes (more than ``m``) and edges per joining node (at least 1).
+    seed : int
+        Seed of the attachment and of the pad and load choice.
+    ohms, pads, loads, load_amps, supply_volts, reference
+        As in :func:`grid2d`; the default reference of a bare network is ``"p0"``.
+
+    Returns
+    -------
+    Network
+        Nodes ``"p0" .. "p{n-1}"``, ``(n - m) m`` resistors named ``R{i}_{j}`` with ``i < j``.
+    """
+    import networkx as nx
+
+    _require_count(m=m)
+    _require_count(minimum=m + 1, n=n)
+    graph = nx.barabasi_albert_graph(n, m, seed=seed)
+    return _graph_network(graph, ohms, pads, loads, load_amps, supply_volts, seed, reference)

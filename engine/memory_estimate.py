@@ -29,7 +29,6 @@ from __future__ import annotations
 
 import math
 
-from .solvers.choice import AUTO_DIRECT_LIMIT
 
 MB = 1 << 20
 FIXED = {"direct": 109 * MB, "amg-cg": 120 * MB}
@@ -39,11 +38,11 @@ FILL_FROM = 500_000            # nodes beyond which the direct factor's fill is 
 
 
 def solve_method(n_nodes: int, method: str = "auto") -> str:
-    """The solver ``solve`` is expected to use: ``auto`` resolved by size, with the node count
-    standing in for the unknowns (the guard runs before the system is assembled)."""
-    if method != "auto":
-        return method
-    return "direct" if n_nodes <= AUTO_DIRECT_LIMIT else "amg-cg"
+    """The back end whose estimate the guard uses: the one asked for, or for ``auto`` the
+    leaner ``amg-cg`` (``auto`` itself never sets a factorisation up beyond its memory budget,
+    :mod:`ohmgraph.engine.solvers.choice`, so the multigrid need is what ``auto`` cannot go
+    below)."""
+    return "amg-cg" if method == "auto" else method
 
 
 def estimate_solve_bytes(n_nodes: int, n_branches: int, method: str = "auto") -> int:

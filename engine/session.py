@@ -26,6 +26,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import scipy.sparse as sp
 
+from .memory import default_memory_budget
 from .solvers import DEFAULT_RTOL, SOLVERS, SolveInfo, SolverFailed, SPDSolver, shortfall
 from .solvers.choice import choose, direct_fallback_allowed
 
@@ -48,6 +49,9 @@ class SessionStats:
     max_iterations : int
     max_relative_residual : float
         The largest measured ``||A x - b|| / ||b||`` over every returned solution.
+    predicted : dict
+        The numbers behind ``auto``'s choice (:class:`~ohmgraph.engine.solvers.choice.Choice`):
+        predicted seconds and bytes of each back end, factor entries and flops, the budget.
     notes : list of str
         Switches and fallbacks, in words.
     """
@@ -60,6 +64,7 @@ class SessionStats:
     solves: int = 0
     max_iterations: int = 0
     max_relative_residual: float = 0.0
+    predicted: dict = field(default_factory=dict)
     notes: list = field(default_factory=list)
 
 
@@ -75,7 +80,8 @@ class SolveSession:
     rtol : float
         Relative residual every returned solution must reach.
     memory_budget : float, optional
-        Bytes a set-up may use (``auto`` chooses within it); None for no limit.
+        Bytes a set-up may use (``auto`` and the direct fallback keep within it); None for the
+        default, half the available memory (:func:`ohmgraph.engine.memory.default_memory_budget`).
 
     Raises
     ------
@@ -92,10 +98,11 @@ class SolveSession:
             raise ValueError(f"the matrix is not square: {self.matrix.shape}")
         self.requested = method
         self.rtol = float(rtol)
-        self.memory_budget = memory_budget
+        self.memory_budget = default_memory_budget() if memory_budget is None else memory_budget
         self.stats = SessionStats("not set up", int(self.matrix.shape[0]))
         self.last: SolveInfo | None = None
         self._solver: SPDSolver | None = None
+        self._analysis = None     # the symbolic analysis of the factor, once made
 
     @property
     def method(self) -> str:
@@ -125,16 +132,23 @@ class SolveSession:
             return
         if self._solver is not None and self._solver.method == "direct":
             return
-        choice = choose(self.matrix, solves, self.memory_budget)
+        start = time.perf_counter()
+        choice = choose(self.matrix, solves, self.memory_budget, self._analysis)
+        self.stats.setup_seconds += time.perf_counter() - start
+        self._analysis = choice.analysis or self._analysis
         if self._solver is None or choice.method != self._solver.method:
             if self._solver is not None:
                 self.stats.notes.append(f"switched to {choice.method} for a query of {solves} "
                                         f"right-hand sides: {choice.reason}")
             self._set_up(choice.method, choice.reason)
+            self.stats.predicted = dict(choice.predicted)
 
     def _set_up(self, method: str, reason: str) -> None:
         start = time.perf_counter()
-        self._solver = SOLVERS[method](self.matrix, self.rtol)
+        if method == "direct" and self._analysis is not None:
+            self._solver = SOLVERS[method](self.matrix, self.rtol, order=self._analysis.order)
+        else:
+            self._solver = SOLVERS[method](self.matrix, self.rtol)
         self.stats.setup_seconds += time.perf_counter() - start
         self.stats.method, self.stats.reason = method, reason
 
@@ -158,7 +172,8 @@ class SolveSession:
             self.expect(1 if b.ndim == 1 else b.shape[1])
         x, info = self._solver.solve(b, x0)
         if not info.converged and self._solver.method != "direct":
-            allowed, why = direct_fallback_allowed(self.matrix, self.memory_budget)
+            allowed, why, self._analysis = direct_fallback_allowed(
+                self.matrix, self.memory_budget, self._analysis)
             if not allowed:
                 raise SolverFailed(f"{shortfall(info, self.rtol)} after {info.iterations} "
                                    f"iterations; {why}", info)

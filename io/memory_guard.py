@@ -1,7 +1,7 @@
 """Refuse a solve that will not fit in memory before it starts, with what to do instead.
 
 The estimate comes from :mod:`ohmgraph.engine.memory_estimate`, the room from
-:mod:`ohmgraph.io.memory_available`. An allocation that fails anyway (``MemoryError``) ends the
+:mod:`ohmgraph.engine.memory`. An allocation that fails anyway (``MemoryError``) ends the
 command line with :data:`ohmgraph.io.errors.OUT_OF_MEMORY` and the same exit code (5).
 """
 
@@ -10,7 +10,7 @@ from __future__ import annotations
 from ohmgraph.engine.memory_estimate import estimate_solve_bytes, solve_method
 
 from .errors import NotEnoughMemory
-from .memory_available import available_memory
+from ohmgraph.engine.memory import available_memory
 
 
 def megabytes(count: int) -> str:
@@ -25,7 +25,8 @@ def refuse_if_too_big(net, method: str, source) -> None:
     ----------
     net : Network
     method : str
-        The ``--method`` asked for (``auto`` is resolved as the solve will resolve it).
+        The ``--method`` asked for (``auto`` is held to its leanest back end,
+        :func:`ohmgraph.engine.memory_estimate.solve_method`).
     source : str or Path
         The network file, for the message.
     """

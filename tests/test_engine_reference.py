@@ -11,7 +11,6 @@ import scipy.sparse.linalg as spla
 
 from ohmgraph.engine import Network, SolverFailed, SolveSession, solve, solve_spd
 from ohmgraph.engine import solvers
-from ohmgraph.engine.solvers import choice
 from ohmgraph.engine.network import RESISTOR
 from conftest import BACK_ENDS
 from reference_mna import mna_solve
@@ -171,6 +170,6 @@ def test_amg_cg_falls_back_to_direct_and_says_so(make_network, monkeypatch):
 
 def test_solver_failed_when_no_fallback_applies(make_network, monkeypatch):
     monkeypatch.setattr(solvers.AmgCgSolver, "max_iterations", 1)
-    monkeypatch.setattr(choice, "DIRECT_FALLBACK_LIMIT", 0)
-    with pytest.raises(SolverFailed, match="too large for the direct fallback"):
-        solve(make_network(3, n_nodes=1000, extra_resistors=1000), method="amg-cg")
+    with pytest.raises(SolverFailed, match="over the memory budget of 1e-06 GB"):
+        solve(make_network(3, n_nodes=1000, extra_resistors=1000), method="amg-cg",
+              memory_budget=1000)

@@ -10,7 +10,8 @@ import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 from scipy.spatial.distance import cdist
 
-from ohmgraph.datasets import grid2d, grid3d, knn_network, knn_points, ladder, layered_mesh
+from ohmgraph.datasets import (grid2d, grid3d, knn_network, knn_points, ladder, layered_mesh,
+                               scale_free, small_world)
 from ohmgraph.engine import CURRENT_SOURCE, RESISTOR, Network, check, solve
 from ohmgraph.io.branch_table import write_branch_table
 from ohmgraph.io.errors import InputError, OutputRefused
@@ -53,6 +54,26 @@ def test_grid2d_counts(nx, ny):
     assert net.n_nodes == nx * ny
     assert net.n_branches == nx * (ny - 1) + ny * (nx - 1)
     assert net.reference_label == "0_0"
+    assert len(set(net.branch_names.tolist())) == net.n_branches
+
+
+@pytest.mark.parametrize("n, k, p", [(5, 2, 0.0), (100, 4, 0.1), (1000, 6, 0.5)])
+def test_small_world_counts(n, k, p):
+    net = small_world(n, k, p, seed=2)
+    # Watts & Strogatz (Nature 393, 440, 1998): rewiring keeps the ring's n k / 2 edges
+    assert net.n_nodes == n and net.n_branches == n * k // 2
+    assert net.reference_label == "p0"
+    assert np.all(net.from_node < net.to_node)                  # no self-loop, R{i}_{j}, i < j
+    assert len(set(net.branch_names.tolist())) == net.n_branches
+
+
+@pytest.mark.parametrize("n, m", [(3, 2), (100, 1), (1000, 3)])
+def test_scale_free_counts(n, m):
+    net = scale_free(n, m, seed=2, pads=1, loads=2)
+    # Barabási & Albert (Science 286, 509, 1999), as networkx builds it: a star of m + 1 nodes,
+    # then m edges per node added: (n - m) m edges; plus one pad and two loads
+    assert net.n_nodes == n + 1 and net.n_branches == (n - m) * m + 3
+    assert net.reference_label == "0"
     assert len(set(net.branch_names.tolist())) == net.n_branches
 
 
@@ -145,6 +166,8 @@ def test_knn_edges_are_the_k_nearest():
     lambda seed: grid3d(4, 3, 5, pads=2, loads=6, seed=seed),
     lambda seed: layered_mesh(16, 12, pads=3, loads=20, load_clusters=2, seed=seed),
     lambda seed: knn_network(150, 5, seed, pads=2, loads=4),
+    lambda seed: small_world(200, 4, 0.2, seed, pads=2, loads=4),
+    lambda seed: scale_free(200, 2, seed, pads=2, loads=4),
 ])
 def test_same_seed_gives_identical_arrays(make):
     first, again, other = make(3), make(3), make(4)

@@ -15,7 +15,7 @@ from ohmgraph.engine.memory_estimate import estimate_solve_bytes
 from ohmgraph.io.branch_table import write_branch_table
 from ohmgraph.io.cli import main
 from ohmgraph.io.errors import EXIT_NO_MEMORY, EXIT_OK, OUT_OF_MEMORY
-from ohmgraph.io.memory_available import Available, available_memory
+from ohmgraph.engine.memory import Available, available_memory
 
 MB = 1 << 20
 
@@ -128,4 +128,4 @@ def test_every_solving_command_is_guarded(lattice, capsys, monkeypatch, command)
     err = capsys.readouterr().err
     assert code == EXIT_NO_MEMORY
     assert err.startswith(f"ohmgraph {command[0]}: error: net.csv: solving 79,658 branches with "
-                          "direct needs about ") and "only 10 MB are available (free memory)" in err
+                          "amg-cg needs about ") and "only 10 MB are available (free memory)" in err

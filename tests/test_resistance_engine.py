@@ -309,7 +309,10 @@ def test_exact_across_resistors_on_a_small_torus_is_uniform():
 def test_auto_sets_the_solver_up_for_the_query(monkeypatch):
     import ohmgraph.engine.solvers.choice as choice
 
-    monkeypatch.setattr(choice, "AUTO_DIRECT_LIMIT", 100)        # pretend the lattice is large
+    # Pretend a factorisation is dear and amg-cg needs no set-up: one right-hand side then goes
+    # to amg-cg, fifty to one factorisation.
+    monkeypatch.setattr(choice, "FACTOR_SECONDS_PER_ENTRY", 3e-6)
+    monkeypatch.setattr(choice, "AMG_SETUP_SECONDS", 0.0)
     net = grid2d(20, 20, 1.0)
     solver = ResistanceSolver(net)
     assert solver.session.method == "not set up"

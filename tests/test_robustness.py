@@ -236,6 +236,14 @@ REFUSED = [
     ("solve net.csv -o out.h5 --ground nowhere", EXIT_BAD_INPUT, "reference node 'nowhere'"),
     ("resistance net.csv --between top mid --ground nowhere", EXIT_BAD_INPUT,
      "reference node 'nowhere'"),
+    # memory budgets
+    ("solve net.csv -o out.h5 --memory-budget 4XB", EXIT_BAD_INPUT, "unknown unit 'XB'"),
+    ("resistance net.csv --between top mid --memory-budget=-1GB", EXIT_BAD_INPUT,
+     "greater than 0"),
+    ("solve net.csv -o out.h5 --memory-budget 10B", EXIT_SOLVER_FAILED,
+     "neither back end fits the memory budget"),
+    ("compare net.csv meas.csv --accuracy 1% --memory-budget 10B", EXIT_SOLVER_FAILED,
+     "neither back end fits the memory budget"),
     # values beyond double precision
     ("check tiny_ohms.csv", EXIT_FAILED, "conductance-overflow"),
     ("solve tiny_ohms.csv -o out.h5", EXIT_FAILED, "conductance-overflow"),
@@ -453,6 +461,8 @@ ACCEPTED = [
     ("compare net.csv meas_open.csv --accuracy 1%", EXIT_FAILED, "FAIL"),
     ("resistance net.csv --pairs pairs_same_node.csv", EXIT_OK, "mid,mid,0"),
     ("resistance net.csv --pairs pairs.csv --full-precision", EXIT_OK, "top,mid,"),
+    ("resistance net.csv --between top mid --memory-budget 512MB", EXIT_OK, "top"),
+    ("tolerance net.csv --observe mid --default 1 --memory-budget 1GiB", EXIT_OK, "mid"),
     ("resistance islands.csv --pairs pairs_islands.csv", EXIT_OK, "a,b,inf"),
     ("diagnose sources_only.csv meas_sources_only.csv --accuracy 1%", EXIT_OK,
      "nothing to diagnose"),

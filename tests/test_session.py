@@ -188,7 +188,8 @@ class NeverConverges(SPDSolver):
 def failing_back_end(monkeypatch):
     monkeypatch.setitem(SOLVERS, "never", NeverConverges)
     monkeypatch.setattr(session_module, "direct_fallback_allowed",
-                        lambda matrix, budget=None: (False, "the fallback is forbidden here"))
+                        lambda matrix, budget=None, analysis=None:
+                        (False, "the fallback is forbidden here", analysis))
     return "never"
 
 

@@ -336,13 +336,14 @@ def _powered_system(net: Network, readings: Readings, rows: np.ndarray,
 
 
 def _passive_system(net: Network, readings: Readings, rows: np.ndarray, method: str,
-                    rtol: float) -> tuple[ReadingSystem, np.ndarray]:
+                    rtol: float, memory_budget: float | None = None
+                    ) -> tuple[ReadingSystem, np.ndarray]:
     passive = net.passive()
     report = check(passive, allow_floating=True)
     if not report.solvable:
         raise NetworkNotSolvable(report)
     system = assemble(passive, report.contraction, report.pinned_nodes)
-    session = SolveSession(system.matrix, method, rtol)
+    session = SolveSession(system.matrix, method, rtol, memory_budget=memory_budget)
     session.expect(rows.size)
     a, b = readings.node_a[rows], readings.node_b[rows]
     rs = ReadingSystem(PASSIVE, system, session, rows,
@@ -360,7 +361,8 @@ def _passive_system(net: Network, readings: Readings, rows: np.ndarray, method: 
 
 def build_model(net: Network, readings: Readings, *, method: str = "auto",
                 rtol: float = DEFAULT_RTOL, solution: Solution | None = None,
-                allow_floating: bool = False) -> ReadingModel:
+                allow_floating: bool = False,
+                memory_budget: float | None = None) -> ReadingModel:
     """Model value of every reading, with the systems set up for adjoint solves.
 
     ``V`` and ``I`` readings come from one solve of the powered network (reused when
@@ -377,6 +379,8 @@ def build_model(net: Network, readings: Readings, *, method: str = "auto",
         An existing powered solution of ``net``.
     allow_floating : bool
         Pin floating islands of the powered network at 0 V.
+    memory_budget : float, optional
+        Bytes a solver set-up may use (None: the default, :mod:`ohmgraph.engine.memory`).
 
     Raises
     ------
@@ -392,7 +396,8 @@ def build_model(net: Network, readings: Readings, *, method: str = "auto",
     if powered_rows.size:
         start = time.perf_counter()
         if solution is None:
-            solution = solve(net, method=method, rtol=rtol, allow_floating=allow_floating)
+            solution = solve(net, method=method, rtol=rtol, allow_floating=allow_floating,
+                             memory_budget=memory_budget)
         timings["solve"] = time.perf_counter() - start
         start = time.perf_counter()
         kinds = readings.kind[powered_rows]
@@ -411,7 +416,8 @@ def build_model(net: Network, readings: Readings, *, method: str = "auto",
         timings["model_powered"] = time.perf_counter() - start
     if passive_rows.size:
         start = time.perf_counter()
-        systems[PASSIVE], resistance = _passive_system(net, readings, passive_rows, method, rtol)
+        systems[PASSIVE], resistance = _passive_system(net, readings, passive_rows, method, rtol,
+                                                        memory_budget)
         model[passive_rows] = resistance
         infinite = ~np.isfinite(resistance)
         usable[passive_rows[infinite]] = False

@@ -121,6 +121,8 @@ class ResistanceSolver:
         (:func:`ohmgraph.engine.solvers.choice.choose`).
     rtol : float
         Relative residual every solve must reach.
+    memory_budget : float, optional
+        Bytes the solver's set-up may use (None: the default, :mod:`ohmgraph.engine.memory`).
 
     Raises
     ------
@@ -128,7 +130,8 @@ class ResistanceSolver:
         On a negative or non-finite resistance, or one too small for a finite conductance.
     """
 
-    def __init__(self, net: Network, method: str = "auto", rtol: float = DEFAULT_RTOL):
+    def __init__(self, net: Network, method: str = "auto", rtol: float = DEFAULT_RTOL, *,
+                 memory_budget: float | None = None):
         start = time.perf_counter()
         passive = net.passive()
         resistors = passive.kind == RESISTOR
@@ -162,7 +165,8 @@ class ResistanceSolver:
         self.ground_distance = self._ground_distance(conductance)
         self.rtol = float(rtol)
         self.method = method
-        self.session = SolveSession(self.matrix, method, rtol)   # set up at the first query
+        self.session = SolveSession(self.matrix, method, rtol,   # set up at the first query
+                                    memory_budget=memory_budget)
         self.preparation_seconds = time.perf_counter() - start
         self._factor_pairs = None          # built on first use (see factor_pairs)
         self._factor_checked = False

@@ -1,21 +1,82 @@
-"""How ``auto`` picks a back end for a matrix and a number of right-hand sides.
+"""How ``auto`` picks a back end for a matrix and a number of right-hand sides: by predicted
+cost, within a memory budget.
+
+``direct`` is predicted from the symbolic analysis of its own factor
+(:func:`.symbolic.column_counts`: the approximate-minimum-degree order the factorisation will
+use, the elimination tree and the column counts), so its size ``nnz(L)`` and its work
+``Σ colcount²`` are exact; only the seconds per unit of work are calibrated. ``amg-cg`` is
+predicted from ``nnz(A)``, a typical iteration count and an estimate of the multigrid operator
+complexity (the total entries of every level over ``nnz(A)``). Each prediction is seconds for the
+set-up plus every right-hand side, and peak bytes; ``auto`` takes the cheaper in seconds among
+those that fit the memory budget.
+
+The analysis itself costs about as much as a fifth of one ``amg-cg`` solve of a lattice. When it
+would be a noticeable part of the expected work (few right-hand sides on a large matrix), a
+screen estimates the factor first from two nested breadth-first balls of ``n/64`` and ``n/16``
+unknowns (their counts, extrapolated along the growth exponent they show); if that estimate,
+the analysis included, makes ``direct`` clearly dearer than ``amg-cg``, or clearly too large for
+the budget, the analysis is skipped and ``amg-cg`` chosen. When neither back end is predicted to
+fit the budget, :class:`~.base.SolverFailed` says so rather than exceed it.
 
 The choice is a :class:`Choice`: the method, the reason in words and the numbers behind it, so a
 caller can show and store why a method was used.
+
+Calibration
+-----------
+Every constant below was measured on the development machine (2 cores shared with other work,
+BLAS on one thread, 2026-12-03) on reduced systems of ``ohmgraph.datasets.generators``: lattices
+of 10^4 to 2.5 x 10^5 unknowns, two-layer meshes of 5 x 10^4 and 2 x 10^5, 4-nearest-neighbour
+graphs of 2 x 10^4 and 10^5, Watts–Strogatz (k = 4, p = 0.1) and Barabási–Albert (m = 2) graphs
+of 5 x 10^3 to 10^5 (least squares on relative error; single timings varied by up to 30 %).
+``benchmarks/bench_auto_choice.py`` checks the resulting choices against measured times.
 """
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 
-# ``auto`` picks direct up to this many unknowns for a query of FEW_SOLVES right-hand sides or
-# fewer. Set-up plus one solve (benchmarks/README.md): direct wins on lattices below about 40,000
-# unknowns and on k-nearest-neighbour graphs up to about 200,000.
-AUTO_DIRECT_LIMIT = 100_000
-# For more right-hand sides one factorisation pays off up to this many unknowns; it is also the
-# largest system the direct fallback takes on.
-DIRECT_FALLBACK_LIMIT = 2_000_000
-FEW_SOLVES = 2
+import numpy as np
+from scipy.sparse.csgraph import breadth_first_order
+
+from ..memory import default_memory_budget
+from .base import SolverFailed
+from .symbolic import FactorAnalysis, column_counts
+
+# direct (SuperLU in the analysed order), seconds and bytes
+ANALYSIS_SECONDS_PER_ENTRY = 3.0e-7     # AMD order + column counts, per entry of A (70-460 ns)
+FACTOR_SECONDS_PER_FLOP = 1.8e-10       # numeric factorisation per multiply-add Σ colcount²
+FACTOR_SECONDS_PER_ENTRY = 2.5e-7       # per entry of A: permutation, SuperLU's own set-up
+SOLVE_SECONDS_PER_FACTOR_ENTRY = 8e-10  # per right-hand side: forward and back substitution
+SOLVE_SECONDS_PER_UNKNOWN = 2.4e-8      # per right-hand side and unknown (permuting, blocks)
+DIRECT_BYTES_PER_FACTOR_ENTRY = 32.0    # peak resident bytes per entry of L: measured 23-32
+DIRECT_BYTES_PER_ENTRY = 24.0           # the permuted copy of A and its pattern
+
+# amg-cg (pyamg Ruge–Stüben + CG), per entry of A times the operator complexity. Measured:
+# set-up 32-75 ns on lattices, meshes and the random graphs, 170 ns on the k-NN graph (whose
+# conductances vary); per CG iteration 3-6 ns, 18 on the k-NN graph. The constants sit between,
+# nearer the fast end, so that the uniform lattices still go to amg-cg and the k-NN graphs, whose
+# factor hardly fills, to direct.
+AMG_SETUP_SECONDS = 1.0e-7
+AMG_ITERATION_SECONDS = 8e-9
+AMG_ITERATIONS = 12                     # measured 9 to 15 at rtol 1e-10 on all of the above
+AMG_BYTES_PER_ENTRY = 20.0              # peak bytes: measured 14-20
+# Operator complexity: at least COMPLEXITY_FLOOR (lattices, meshes, k-NN: 2.0-3.2); it grows
+# with the factor's mean front F = flops / nnz(L) beyond the planar sqrt(n) and with the spread
+# of the row degrees d (delta = n Σd² / nnz(A)²: 1 on a lattice, 3 on a Barabási–Albert graph):
+# COMPLEXITY_SLOPE (F / sqrt(n)) delta², which fits the Watts–Strogatz complexities 6-40 and the
+# Barabási–Albert ones 38-348 above within a factor of 2.
+COMPLEXITY_FLOOR = 2.2
+COMPLEXITY_SLOPE = 1.7
+
+# The screen: used when the analysis would cost more than SCREEN_SHARE of amg-cg's cheapest
+# prediction, on at least SCREEN_MIN_UNKNOWNS unknowns; skips the analysis when the sampled
+# estimate of direct (its analysis included) is SCREEN_MARGIN times dearer than amg-cg, or
+# SCREEN_MARGIN times larger than the budget.
+SCREEN_SHARE = 0.1
+SCREEN_MIN_UNKNOWNS = 64_000
+SCREEN_MARGIN = 1.5
+SCREEN_BALLS = (64, 16)
 
 
 @dataclass(frozen=True)
@@ -29,39 +90,183 @@ class Choice:
     reason : str
         Why, in words.
     predicted : dict
-        The numbers behind the reason (for example a predicted factor size), for the record.
+        The numbers behind the reason (predicted seconds and bytes of each back end, factor
+        entries and flops, the budget), for the record.
+    analysis : FactorAnalysis or None
+        The symbolic analysis when one was made (its order serves the factorisation).
     """
 
     method: str
     reason: str
     predicted: dict = field(default_factory=dict)
+    analysis: FactorAnalysis | None = field(default=None, repr=False, compare=False)
 
 
-def choose(matrix, solves: int = 1, memory_budget: float | None = None) -> Choice:
+def _gb(value: float) -> str:
+    return f"{value / 1e9:.3g} GB"
+
+
+def direct_prediction(matrix, factor_nonzeros: float, flops: float, solves: int) -> tuple:
+    """``(seconds, bytes)`` of factorising ``matrix`` with a factor of the given size and work,
+    then solving ``solves`` right-hand sides (the analysis not included)."""
+    n, entries = matrix.shape[0], matrix.nnz
+    seconds = (FACTOR_SECONDS_PER_FLOP * flops + FACTOR_SECONDS_PER_ENTRY * entries
+               + solves * (SOLVE_SECONDS_PER_FACTOR_ENTRY * factor_nonzeros
+                           + SOLVE_SECONDS_PER_UNKNOWN * n))
+    return seconds, DIRECT_BYTES_PER_FACTOR_ENTRY * factor_nonzeros + DIRECT_BYTES_PER_ENTRY * entries
+
+
+def operator_complexity(matrix, factor_nonzeros: float | None = None,
+                        flops: float | None = None) -> float:
+    """Predicted multigrid operator complexity (see the constants above); the floor when the
+    factor is not known."""
+    n, entries = matrix.shape[0], matrix.nnz
+    if not factor_nonzeros or not flops or n == 0:
+        return COMPLEXITY_FLOOR
+    degree = np.diff(matrix.indptr).astype(np.float64)
+    spread = n * float(degree @ degree) / float(entries) ** 2
+    front = flops / factor_nonzeros
+    return max(COMPLEXITY_FLOOR, COMPLEXITY_SLOPE * front / math.sqrt(n) * spread ** 2)
+
+
+def amg_prediction(matrix, solves: int, complexity: float) -> tuple:
+    """``(seconds, bytes)`` of the amg-cg set-up and ``solves`` right-hand sides."""
+    work = matrix.nnz * complexity
+    seconds = work * (AMG_SETUP_SECONDS + solves * AMG_ITERATIONS * AMG_ITERATION_SECONDS)
+    return seconds, AMG_BYTES_PER_ENTRY * work
+
+
+def sampled_factor(matrix) -> tuple[float, float] | None:
+    """Estimated ``(nnz(L), flops)`` of the whole factor from two nested breadth-first balls.
+
+    The balls' unknowns are the first ``n/64`` and ``n/16`` of a breadth-first order from the
+    middle unknown; each ball's induced matrix is analysed (:func:`.symbolic.column_counts`) and
+    the counts are extrapolated to ``n`` with the exponent the two balls show (between 1 and 2
+    for ``nnz(L)``, 1 and 3 for flops). The factor of a ball is part of the factor of the whole
+    for the same relative order (fill paths inside the ball are fill paths in the whole; Rose,
+    Tarjan & Lueker, SIAM J. Comput. 5(2), 1976), so the counts grow at least linearly. None
+    when the start's connected component is too small to sample.
+    """
+    n = matrix.shape[0]
+    reached = breadth_first_order(matrix, n // 2, directed=False, return_predecessors=False)
+    sizes = [n // parts for parts in SCREEN_BALLS]
+    if reached.size < sizes[-1]:
+        return None
+    counts = []
+    for size in sizes:
+        ball = reached[:size]
+        analysis = column_counts(matrix[ball][:, ball])
+        counts.append((analysis.factor_nonzeros, analysis.flops))
+    growth = math.log(sizes[1] / sizes[0])
+    scale = n / sizes[1]
+    (small_l, small_f), (large_l, large_f) = counts
+    beta_l = min(max(math.log(large_l / small_l) / growth, 1.0), 2.0)
+    beta_f = min(max(math.log(large_f / small_f) / growth, 1.0), 3.0)
+    return large_l * scale ** beta_l, large_f * scale ** beta_f
+
+
+def _budget(memory_budget: float | None) -> float:
+    """The budget in bytes: the default when None, infinite when that cannot be read."""
+    budget = default_memory_budget() if memory_budget is None else memory_budget
+    return math.inf if budget is None else float(budget)
+
+
+def _refuse_over_budget(predicted: dict, budget: float) -> None:
+    """Raise :class:`~.base.SolverFailed` when amg-cg, the only candidate left, is predicted
+    over the budget too."""
+    if predicted["amg_bytes"] > budget:
+        raise SolverFailed(f"neither back end fits the memory budget of {_gb(budget)}: direct "
+                           f"would need about {_gb(predicted['direct_bytes'])}, amg-cg about "
+                           f"{_gb(predicted['amg_bytes'])}; raise the budget (--memory-budget)")
+
+
+def choose(matrix, solves: int = 1, memory_budget: float | None = None,
+           analysis: FactorAnalysis | None = None) -> Choice:
     """Pick ``direct`` or ``amg-cg`` for ``matrix`` and ``solves`` right-hand sides.
 
     Parameters
     ----------
     matrix : sparse matrix, shape (n, n)
-        Symmetric positive definite.
+        Symmetric positive definite (CSR).
     solves : int
         Right-hand sides the caller expects to solve with one set-up.
     memory_budget : float, optional
-        Bytes the set-up may use; None for no limit.
+        Bytes the set-up may use; None for the default (half the available memory,
+        :func:`ohmgraph.engine.memory.default_memory_budget`).
+    analysis : FactorAnalysis, optional
+        The symbolic analysis of ``matrix`` from an earlier choice, reused.
+
+    Raises
+    ------
+    SolverFailed
+        When neither back end is predicted to fit the memory budget.
     """
-    n = matrix.shape[0]
-    if n <= AUTO_DIRECT_LIMIT:
-        return Choice("direct", f"{n} unknowns, at most {AUTO_DIRECT_LIMIT}", {"unknowns": n})
-    if solves > FEW_SOLVES and n <= DIRECT_FALLBACK_LIMIT:
-        return Choice("direct", f"{solves} right-hand sides on {n} unknowns: one factorisation "
-                      "pays off", {"unknowns": n})
-    return Choice("amg-cg", f"{n} unknowns, over {AUTO_DIRECT_LIMIT}", {"unknowns": n})
+    n, entries = matrix.shape[0], matrix.nnz
+    solves = max(int(solves), 1)
+    budget = _budget(memory_budget)
+    if n == 0:
+        return Choice("direct", "an empty system", {"unknowns": 0})
+    predicted = {"unknowns": n, "matrix_nonzeros": entries, "solves": solves,
+                 "memory_budget_bytes": budget if math.isfinite(budget) else None}
+    cheapest_amg, _ = amg_prediction(matrix, solves, COMPLEXITY_FLOOR)
+    if (analysis is None and ANALYSIS_SECONDS_PER_ENTRY * entries > SCREEN_SHARE * cheapest_amg
+            and n >= SCREEN_MIN_UNKNOWNS):
+        sample = sampled_factor(matrix)
+        if sample is not None:
+            factor_nonzeros, flops = sample
+            direct_s, direct_b = direct_prediction(matrix, factor_nonzeros, flops, solves)
+            direct_s += ANALYSIS_SECONDS_PER_ENTRY * entries
+            complexity = operator_complexity(matrix, factor_nonzeros, flops)
+            amg_s, amg_b = amg_prediction(matrix, solves, complexity)
+            if direct_s > SCREEN_MARGIN * amg_s or direct_b > SCREEN_MARGIN * budget:
+                predicted.update(sampled=True, factor_nonzeros=factor_nonzeros,
+                                 factor_flops=flops, direct_seconds=direct_s,
+                                 direct_bytes=direct_b, amg_seconds=amg_s, amg_bytes=amg_b,
+                                 amg_complexity=complexity)
+                _refuse_over_budget(predicted, budget)
+                return Choice("amg-cg", f"sampled factor estimate: direct about {direct_s:.3g} s "
+                              f"and {_gb(direct_b)}, amg-cg {amg_s:.3g} s for {solves} "
+                              "right-hand side(s)", predicted)
+    if analysis is None:
+        analysis = column_counts(matrix)
+    direct_s, direct_b = direct_prediction(matrix, analysis.factor_nonzeros, analysis.flops,
+                                           solves)
+    complexity = operator_complexity(matrix, analysis.factor_nonzeros, analysis.flops)
+    amg_s, amg_b = amg_prediction(matrix, solves, complexity)
+    predicted.update(sampled=False, factor_nonzeros=analysis.factor_nonzeros,
+                     factor_flops=analysis.flops, direct_seconds=direct_s, direct_bytes=direct_b,
+                     amg_seconds=amg_s, amg_bytes=amg_b, amg_complexity=complexity)
+    if direct_b > budget:
+        _refuse_over_budget(predicted, budget)
+        return Choice("amg-cg", f"the factor ({analysis.factor_nonzeros} entries) would need "
+                      f"{_gb(direct_b)}, over the memory budget of {_gb(budget)}", predicted,
+                      analysis)
+    if direct_s <= amg_s:
+        return Choice("direct", f"predicted {direct_s:.3g} s against {amg_s:.3g} s for amg-cg "
+                      f"({solves} right-hand side(s), factor of {analysis.factor_nonzeros} "
+                      f"entries, {_gb(direct_b)})", predicted, analysis)
+    return Choice("amg-cg", f"predicted {amg_s:.3g} s against {direct_s:.3g} s for direct "
+                  f"({solves} right-hand side(s), factor of {analysis.factor_nonzeros} entries)",
+                  predicted, analysis)
 
 
-def direct_fallback_allowed(matrix, memory_budget: float | None = None) -> tuple[bool, str]:
-    """Whether a factorisation may replace an iterative solve that missed its target, and if
-    not, why."""
-    n = matrix.shape[0]
-    if n > DIRECT_FALLBACK_LIMIT:
-        return False, f"the system ({n} unknowns) is too large for the direct fallback"
-    return True, ""
+def direct_fallback_allowed(matrix, memory_budget: float | None = None,
+                            analysis: FactorAnalysis | None = None) -> tuple:
+    """Whether a factorisation may replace an iterative solve that missed its target.
+
+    Returns
+    -------
+    allowed : bool
+    why : str
+        When not allowed: the predicted factor size against the memory budget.
+    analysis : FactorAnalysis
+        The symbolic analysis (given or computed), whose order the factorisation uses.
+    """
+    budget = _budget(memory_budget)
+    if analysis is None:
+        analysis = column_counts(matrix)
+    _, needed = direct_prediction(matrix, analysis.factor_nonzeros, analysis.flops, 1)
+    if needed > budget:
+        return (False, f"the direct fallback's factor ({analysis.factor_nonzeros} entries) would "
+                f"need {_gb(needed)}, over the memory budget of {_gb(budget)}", analysis)
+    return True, "", analysis

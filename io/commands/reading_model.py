@@ -33,7 +33,8 @@ def model_readings(args, net, readings, solution=None) -> ReadingModel:
     """Build the reading model; a network without a unique solution is :class:`NotWellPosed`."""
     try:
         return build_model(net, readings, method=args.method, rtol=args.rtol,
-                           allow_floating=args.allow_floating, solution=solution)
+                           allow_floating=args.allow_floating, solution=solution,
+                           memory_budget=args.memory_budget)
     except NetworkNotSolvable as error:
         raise NotWellPosed(f"{args.network}: the network is not well-posed\n"
                            + format_report(error.report, net, source=args.network)) from None

@@ -8,7 +8,7 @@ import argparse
 
 from ohmgraph.engine.solvers import DEFAULT_RTOL, SOLVERS
 from ohmgraph.io.atomic import refuse_existing, refuse_input
-from ohmgraph.io.commands.argtypes import positive_float
+from ohmgraph.io.commands.argtypes import add_memory_budget, positive_float
 from ohmgraph.io.errors import InputError
 from ohmgraph.io.formats import CSV, HDF5, require_format, suffixes_of
 from ohmgraph.io.provenance import sidecar_path
@@ -29,6 +29,7 @@ def add_network_arguments(parser: argparse.ArgumentParser) -> None:
                         help=f"relative residual target (default {DEFAULT_RTOL:g})")
     parser.add_argument("--allow-floating", action="store_true",
                         help="pin one node of every island without a path to the reference")
+    add_memory_budget(parser)
 
 
 def add_reading_arguments(parser: argparse.ArgumentParser) -> None:

@@ -18,7 +18,7 @@ from ohmgraph.engine.resistance import ResistanceSolver
 from ohmgraph.engine.resistance.sketch import DEFAULT_EPSILON, sketch_size
 from ohmgraph.engine.solvers import DEFAULT_RTOL, SOLVERS, SolverFailed
 from ohmgraph.io.atomic import refuse_existing, refuse_input
-from ohmgraph.io.commands.argtypes import positive_float, whole_number
+from ohmgraph.io.commands.argtypes import add_memory_budget, positive_float, whole_number
 from ohmgraph.io.csv_table import write_csv
 from ohmgraph.io.errors import EXIT_OK, InputError, NotWellPosed, SolverError
 from ohmgraph.io.formats import require_format
@@ -73,6 +73,7 @@ def register(subparsers) -> None:
     parser.add_argument("--method", choices=["auto", *SOLVERS], default="auto",
                         help="linear solver (default auto: chosen for the network and the "
                              "number of solves)")
+    add_memory_budget(parser)
     parser.add_argument("--rtol", type=positive_float, default=DEFAULT_RTOL,
                         help=f"relative residual target of iterative solves "
                              f"(default {DEFAULT_RTOL:g})")
@@ -125,7 +126,8 @@ def run(args) -> int:
         _nodes(args, net, args.between[0], "--between")     # an unknown label: InputError
         net = net.with_reference(args.between[0])
     try:
-        solver = ResistanceSolver(net, method=args.method, rtol=args.rtol)
+        solver = ResistanceSolver(net, method=args.method, rtol=args.rtol,
+                                  memory_budget=args.memory_budget)
     except ValueError as error:
         raise NotWellPosed(f"{args.network}: not well-posed: {error}") from None
     feedback = Feedback("ohmgraph resistance", args.quiet)

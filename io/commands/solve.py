@@ -8,7 +8,7 @@ from dataclasses import replace
 from ohmgraph.engine.drop import DEFAULT_THRESHOLDS, supply_drop
 from ohmgraph.engine.solve import solve
 from ohmgraph.engine.solvers import DEFAULT_RTOL, SOLVERS, SolverFailed
-from ohmgraph.io.commands.argtypes import finite_float, positive_float
+from ohmgraph.io.commands.argtypes import add_memory_budget, finite_float, positive_float
 from ohmgraph.io.drop_view import drop_datasets, thresholds_type
 from ohmgraph.io.atomic import refuse_existing, refuse_input
 from ohmgraph.io.check_view import format_report, report_to_dict
@@ -40,8 +40,9 @@ def register(subparsers) -> None:
     parser.add_argument("-o", "--output", required=True, metavar="OUT.h5",
                         help="HDF5 file to create")
     parser.add_argument("--method", choices=["auto", *SOLVERS], default="auto",
-                        help="linear solver (default: auto, direct for small systems; petsc "
-                             "under mpiexec with more than one process)")
+                        help="linear solver (default: auto, the cheaper by predicted cost; "
+                             "petsc under mpiexec with more than one process)")
+    add_memory_budget(parser)
     parser.add_argument("--rtol", type=positive_float, default=DEFAULT_RTOL,
                         help=f"relative residual target (default {DEFAULT_RTOL:g})")
     parser.add_argument("--ground", default="0", metavar="LABEL",
@@ -140,7 +141,7 @@ def run(args) -> int:
     try:
         solution = solve(net, method=args.method, rtol=args.rtol,
                          allow_floating=args.allow_floating, report=report,
-                         start_voltage=start_voltage)
+                         start_voltage=start_voltage, memory_budget=args.memory_budget)
     except SolverFailed as error:
         raise SolverError(f"{args.network}: {error}") from error
     solution.timings = {"read": read_seconds, **solution.timings, "check": check_seconds}

@@ -1,4 +1,6 @@
-"""How much more memory this process may use: the least of three limits.
+"""How much more memory this process may use, read from the machine's state (no allocation).
+
+The least of three limits, each skipped when it cannot be read or is unlimited:
 
 * free memory: ``MemAvailable`` of ``/proc/meminfo`` (Linux ``proc(5)``: memory available for
   starting new applications without swapping);
@@ -7,7 +9,10 @@
 * ``RLIMIT_AS`` (``ulimit -v``): the soft limit less the address space in use (``VmSize`` of
   ``/proc/self/status``).
 
-Anything that cannot be read counts as no limit.
+:func:`default_memory_budget` is half of it: what a solver set-up may use by default
+(:class:`ohmgraph.engine.session.SolveSession`), leaving the rest for the caller's own arrays.
+The memory guard of the command line (:mod:`ohmgraph.io.memory_guard`) compares its estimate
+with :func:`available_memory` too.
 """
 
 from __future__ import annotations
@@ -85,3 +90,12 @@ def available_memory(proc="/proc", cgroup_root="/sys/fs/cgroup") -> Available:
     if soft != resource.RLIM_INFINITY and in_use is not None:
         candidates.append((max(0, soft - in_use), "address-space limit (ulimit -v)"))
     return Available(*min(candidates))
+
+
+DEFAULT_SHARE = 0.5
+
+
+def default_memory_budget() -> float | None:
+    """Half of :func:`available_memory` (None when no limit can be read: no budget)."""
+    room = available_memory()
+    return None if room.bytes >= UNLIMITED else DEFAULT_SHARE * room.bytes
