@@ -143,3 +143,23 @@ def test_quiet_and_non_terminals_print_nothing(lattice_file, tmp_path, capsys, m
     monkeypatch.setattr(progress_module, "QUIET_BELOW_SECONDS", 0.0)
     code, _, err = run(capsys, *argv, "--quiet", "-o", tmp_path / "b.csv")
     assert code == 0 and err == ""
+
+
+def test_solve_names_its_stages_on_a_large_network_only(tmp_path, monkeypatch, capsys):
+    """`solve` says what it is doing before each long stage (read, check, solve, store) when
+    standard error is a terminal and the network has at least STAGE_UNKNOWNS nodes."""
+    from ohmgraph.io.branch_table import write_branch_table
+
+    monkeypatch.setattr(progress_module, "stderr_is_terminal", lambda: True)
+    monkeypatch.setattr(progress_module, "STAGE_UNKNOWNS", 400)
+    write_branch_table(tmp_path / "big.csv", grid2d(30, 30, pads=2, loads=5, seed=1))
+    write_branch_table(tmp_path / "small.csv", grid2d(10, 10, pads=2, loads=5, seed=1))
+    assert main(["solve", str(tmp_path / "big.csv"), "-o", str(tmp_path / "big.h5")]) == 0
+    stages = [line for line in capsys.readouterr().err.splitlines()
+              if line.startswith("ohmgraph solve: ")]
+    assert [line.split(": ")[1].split()[0] for line in stages] == ["read", "checked", "solved"]
+    assert stages[2].endswith(f"writing {tmp_path / 'big.h5'}")
+    assert main(["solve", str(tmp_path / "small.csv"), "-o", str(tmp_path / "small.h5")]) == 0
+    assert "ohmgraph solve:" not in capsys.readouterr().err
+    assert main(["solve", str(tmp_path / "big.csv"), "-o", str(tmp_path / "q.h5"), "-q"]) == 0
+    assert "ohmgraph solve:" not in capsys.readouterr().err

@@ -21,6 +21,7 @@ from ohmgraph.io.mpi_launch import launched_rank, launched_size
 from ohmgraph.engine.variant import apply_changes
 from ohmgraph.io.changes import CHANGES_NOTE, change_note, read_changes
 from ohmgraph.io.node_table import node_table_by_label, read_node_table
+from ohmgraph.io.progress import Feedback, format_seconds
 from ohmgraph.io.reader import RATING_COLUMNS, NetworkFile, read_network_file
 from ohmgraph.io.solution_view import format_solution, solution_summary
 from ohmgraph.io.store import file_sha256, read_solution, voltages_by_label, write_solution
@@ -69,6 +70,9 @@ def register(subparsers) -> None:
                              "not given)")
     parser.add_argument("--force", action="store_true", help="overwrite OUT.h5 if it exists")
     parser.add_argument("--json", action="store_true", help="print the summary as JSON")
+    parser.add_argument("-q", "--quiet", action="store_true",
+                        help="no stage messages (they appear only when standard error is a "
+                             "terminal, on networks of 100,000 nodes or more)")
     parser.set_defaults(run=run)
 
 
@@ -127,6 +131,9 @@ def run(args) -> int:
             nodes = node_table_by_label(base, net)
     read_seconds = time.perf_counter() - start
     refuse_if_too_big(net, args.method, args.network)
+    feedback = Feedback("ohmgraph solve", args.quiet)
+    feedback.stage(f"read {net.n_branches:,} branches in {format_seconds(read_seconds)}; "
+                   "checking", net.n_nodes)
 
     checkpoint("check")
     start = time.perf_counter()
@@ -138,6 +145,8 @@ def run(args) -> int:
         return EXIT_FAILED
 
     checkpoint("solve")
+    feedback.stage(f"checked in {format_seconds(check_seconds)}; assembling, choosing the solver "
+                   f"({args.method}), setting it up and solving", net.n_nodes)
     try:
         solution = solve(net, method=args.method, rtol=args.rtol,
                          allow_floating=args.allow_floating, report=report,
@@ -152,6 +161,8 @@ def run(args) -> int:
     solution.timings["drop"] = time.perf_counter() - start
     extra = {**drop_datasets(drop), **{f"branches/{k}": v for k, v in ratings.items()},
              **(nodes.datasets() if nodes else {})}
+    feedback.stage(f"solved ({solution.method}, relative residual "
+                   f"{solution.relative_residual:.1e}); writing {args.output}", net.n_nodes)
     store_seconds = write_solution(args.output, solution, input_path=args.network,
                                    force=args.force, extra=extra)
     summary = solution_summary(solution, {"store": store_seconds}, drop)
