@@ -163,3 +163,21 @@ def test_solve_names_its_stages_on_a_large_network_only(tmp_path, monkeypatch, c
     assert "ohmgraph solve:" not in capsys.readouterr().err
     assert main(["solve", str(tmp_path / "big.csv"), "-o", str(tmp_path / "q.h5"), "-q"]) == 0
     assert "ohmgraph solve:" not in capsys.readouterr().err
+
+
+def test_reading_commands_name_their_stages_on_a_large_network(tmp_path, monkeypatch, capsys):
+    """compare and diagnose say what they start (model, ranking) on a terminal for large
+    networks, and nothing with --quiet."""
+    from ohmgraph.io.branch_table import write_branch_table
+
+    monkeypatch.setattr(progress_module, "stderr_is_terminal", lambda: True)
+    monkeypatch.setattr(progress_module, "STAGE_UNKNOWNS", 400)
+    write_branch_table(tmp_path / "net.csv", grid2d(30, 30, pads=2, loads=5, seed=1))
+    (tmp_path / "m.csv").write_text("kind,a,b,value,accuracy\nV,3_4,,0.99,1%\nV,20_20,,0.9,1%\n")
+    main(["diagnose", str(tmp_path / "net.csv"), str(tmp_path / "m.csv")])
+    stages = [line for line in capsys.readouterr().err.splitlines()
+              if line.startswith("ohmgraph diagnose: ")]
+    assert len(stages) == 2 and "2 reading(s) on 901 nodes" in stages[0]
+    assert "ranking single faults" in stages[1]
+    main(["compare", str(tmp_path / "net.csv"), str(tmp_path / "m.csv"), "--quiet"])
+    assert "ohmgraph compare:" not in capsys.readouterr().err

@@ -13,8 +13,8 @@ from ohmgraph.engine.readings.model import compare
 from ohmgraph.io.commands.argtypes import fraction, whole_number
 from ohmgraph.io.commands.part_options import (add_band_arguments, band_rule_text, model_bands,
                                                percent, read_part_tolerances)
-from ohmgraph.io.commands.reading_model import (model_readings, read_inputs, reading_columns,
-                                                write_table)
+from ohmgraph.io.commands.reading_model import (feedback, model_readings, read_inputs,
+                                                reading_columns, write_table)
 from ohmgraph.io.commands.reading_options import (add_full_precision_argument,
                                                   add_network_arguments, add_output_arguments,
                                                   add_reading_arguments)
@@ -188,6 +188,8 @@ def run(args) -> int:
     if tolerance is not None:
         return _run_parts(args, net, table, model, tolerance, sources)
     comparison = compare(model)
+    feedback(args).stage("ranking single faults of every resistor (screened by bounds, the "
+                         "best evaluated exactly)", net.n_nodes)
     result = diagnose(model, top=args.top, short_ratio=args.short_ratio)
     failed = int((~comparison.passed).sum())
     columns = hypothesis_columns(net, result)
@@ -225,6 +227,8 @@ def _emit(args, columns, attrs, sources, text, readings, flagged=()) -> None:
 def _run_parts(args, net, table, model, tolerance, sources) -> int:
     bands, spread = model_bands(args, model, tolerance, covariance=True)
     comparison = compare(model, bands.band)
+    feedback(args).stage("ranking single and two-fault hypotheses by generalised least squares",
+                         net.n_nodes)
     result = diagnose_parts(model, bands, spread.covariance, top=args.top,
                             short_ratio=args.short_ratio, min_change=args.min_change,
                             significance=args.significance,

@@ -14,6 +14,7 @@ from ohmgraph.io.errors import NotWellPosed, SolverError
 from ohmgraph.io.html_summary import check_html
 from ohmgraph.io.measurement_table import accuracy_rules, read_measurements
 from ohmgraph.io.memory_guard import refuse_if_too_big
+from ohmgraph.io.progress import Feedback
 from ohmgraph.io.reader import read_network
 from ohmgraph.io.result_store import command_options
 from ohmgraph.io.result_table import write_result_table
@@ -29,8 +30,15 @@ def read_inputs(args):
     return net, read_measurements(args.measurements, net, rules)
 
 
+def feedback(args) -> Feedback:
+    """Stage messages of a reading command (``--quiet`` turns them off)."""
+    return Feedback(f"ohmgraph {args.command}", getattr(args, "quiet", False))
+
+
 def model_readings(args, net, readings, solution=None) -> ReadingModel:
     """Build the reading model; a network without a unique solution is :class:`NotWellPosed`."""
+    feedback(args).stage(f"{readings.n} reading(s) on {net.n_nodes:,} nodes: solving the "
+                         "network and one adjoint system per reading", net.n_nodes)
     try:
         return build_model(net, readings, method=args.method, rtol=args.rtol,
                            allow_floating=args.allow_floating, solution=solution,

@@ -30,6 +30,9 @@ def add_network_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--allow-floating", action="store_true",
                         help="pin one node of every island without a path to the reference")
     add_memory_budget(parser)
+    parser.add_argument("-q", "--quiet", action="store_true",
+                        help="no stage messages (they appear only when standard error is a "
+                             "terminal, on networks of 100,000 nodes or more)")
 
 
 def add_reading_arguments(parser: argparse.ArgumentParser) -> None:
