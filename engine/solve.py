@@ -46,6 +46,9 @@ class Solution:
         the loop-closing branch).
     method : str
         Solver that produced the result (after any fallback).
+    method_reason : str
+        Why that solver: the choice of ``auto`` with its predicted cost, "asked for", or the
+        fallback (:attr:`SessionStats.reason`).
     rtol : float
         Requested relative residual.
     iterations : int
@@ -85,6 +88,7 @@ class Solution:
     power_dissipated: float
     timings: dict = field(default_factory=dict)
     notes: list = field(default_factory=list)
+    method_reason: str = ""
     report: CheckReport | None = None
     system: ReducedSystem | None = None
     session: SolveSession | None = None
@@ -127,6 +131,7 @@ class Solution:
             "branches": net.n_branches,
             "reference": net.reference_label,
             "method": self.method,
+            "method_reason": self.method_reason,
             "rtol": self.rtol,
             "iterations": self.iterations,
             "unknowns": self.system.n_unknowns if self.system else None,
@@ -233,7 +238,7 @@ def finish(net: Network, report: CheckReport, system: ReducedSystem, session: So
         power_balance=float(branches.power.sum()),
         power_dissipated=float(branches.power[net.kind == RESISTOR].sum()),
         timings=timings, notes=stats.notes + _pinned_notes(net, report), report=report,
-        system=system, session=session)
+        system=system, session=session, method_reason=stats.reason)
 
 
 def _pinned_notes(net: Network, report: CheckReport) -> list:

@@ -48,7 +48,8 @@ def summary_from_stored(stored: StoredSolution) -> dict:
         relative_residual=attrs["relative_residual"], kcl_max_residual=attrs["kcl_max_residual"],
         kcl_worst_node=int(worst[0]) if worst.size else 0,
         power_balance=attrs["power_balance"], power_dissipated=attrs["power_dissipated"],
-        timings=dict(stored.timings), notes=list(attrs.get("notes", [])))
+        timings=dict(stored.timings), notes=list(attrs.get("notes", [])),
+        method_reason=str(attrs.get("method_reason", "")))
     summary = rebuilt.summary()
     summary["unknowns"] = attrs.get("unknowns")
     summary["findings"] = _findings_digest(stored.findings)
@@ -91,6 +92,7 @@ def format_solution(summary: dict) -> str:
         f"network   {s['nodes']:,} nodes, {s['branches']:,} branches, reference node "
         f"{s['reference']}",
         f"solver    {s['method']}, {s['iterations']} iteration(s), rtol {s['rtol']:.1e}{unknowns}",
+        *([f"          chosen: {s['method_reason']}"] if s.get("method_reason") else []),
         f"evidence  relative residual {evidence(s['relative_residual'])}",
         f"          KCL max residual {evidence(s['kcl_max_residual_A'])} A "
         f"(node {s['kcl_worst_node']})",

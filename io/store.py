@@ -279,6 +279,7 @@ def _root_attrs(solution: Solution, input_path) -> dict:
         "power_absorbed_by_sources": float(solution.power_absorbed_by_sources),
         "power_dissipated": float(solution.power_dissipated),
         "notes": _string_list(solution.notes),
+        "method_reason": str(solution.method_reason),
     }
     if solution.system is not None:
         attrs["unknowns"] = int(solution.system.n_unknowns)
