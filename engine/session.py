@@ -101,6 +101,9 @@ class SolveSession:
         self.memory_budget = default_memory_budget() if memory_budget is None else memory_budget
         self.stats = SessionStats("not set up", int(self.matrix.shape[0]))
         self.last: SolveInfo | None = None
+        # Called with the number of right-hand sides after every proven solve (progress for
+        # callers whose query makes many solves of unknown count, such as a fault ranking).
+        self.on_solved = None
         self._solver: SPDSolver | None = None
         self._analysis = None     # the symbolic analysis of the factor, once made
 
@@ -214,6 +217,8 @@ class SolveSession:
         stats.solve_seconds += info.solve_seconds
         stats.max_iterations = max(stats.max_iterations, info.iterations)
         stats.max_relative_residual = max(stats.max_relative_residual, info.relative_residual)
+        if self.on_solved is not None:
+            self.on_solved(1 if b.ndim == 1 else b.shape[1])
 
 
 def solve_spd(A, b, rtol: float = DEFAULT_RTOL, method: str = "auto") -> np.ndarray:

@@ -68,6 +68,13 @@ class Feedback:
         if self.enabled:
             print(f"{self.command}: {text}", file=sys.stderr, flush=True)
 
+    def counter(self, what: str, unknowns: int):
+        """A bar without a total (count and rate) for work of unknown length, on networks of at
+        least :data:`STAGE_UNKNOWNS` unknowns; None when disabled. Close it when done."""
+        if not self.enabled or unknowns < STAGE_UNKNOWNS:
+            return None
+        return tqdm(desc=what, unit="solve", file=sys.stderr, leave=False, dynamic_ncols=True)
+
     def announce(self, plan) -> None:
         """Say what a query plans (solves, method, estimated time) and open its progress bar."""
         self.close()

@@ -174,10 +174,26 @@ def test_reading_commands_name_their_stages_on_a_large_network(tmp_path, monkeyp
     monkeypatch.setattr(progress_module, "STAGE_UNKNOWNS", 400)
     write_branch_table(tmp_path / "net.csv", grid2d(30, 30, pads=2, loads=5, seed=1))
     (tmp_path / "m.csv").write_text("kind,a,b,value,accuracy\nV,3_4,,0.99,1%\nV,20_20,,0.9,1%\n")
+    counted = []
+
+    class Recorder:                     # stands in for tqdm: keeps the counter's updates
+        def __init__(self, desc, **_):
+            self.desc = desc
+
+        def update(self, count):
+            counted.append((self.desc, count))
+
+        def close(self):
+            pass
+
+    monkeypatch.setattr(progress_module, "tqdm", Recorder)
     main(["diagnose", str(tmp_path / "net.csv"), str(tmp_path / "m.csv")])
-    stages = [line for line in capsys.readouterr().err.splitlines()
-              if line.startswith("ohmgraph diagnose: ")]
+    err = capsys.readouterr().err
+    stages = [line for line in err.splitlines() if line.startswith("ohmgraph diagnose: ")]
     assert len(stages) == 2 and "2 reading(s) on 901 nodes" in stages[0]
     assert "ranking single faults" in stages[1]
+    # the ranking's running count of solves (a bar without a total)
+    assert counted and {desc for desc, _ in counted} == {"ranking"}
+    assert sum(count for _, count in counted) > 0
     main(["compare", str(tmp_path / "net.csv"), str(tmp_path / "m.csv"), "--quiet"])
     assert "ohmgraph compare:" not in capsys.readouterr().err

@@ -234,3 +234,13 @@ def test_fallback_to_direct_is_recorded():
 def test_unknown_method_is_refused():
     with pytest.raises(ValueError, match="unknown method 'fast'"):
         SolveSession(np.eye(3), "fast")
+
+
+def test_on_solved_counts_every_proven_right_hand_side():
+    matrix = nx.laplacian_matrix(nx.path_graph(50)).astype(float) + np.eye(50)
+    session = SolveSession(matrix, "direct", RTOL)
+    counted = []
+    session.on_solved = counted.append
+    session.solve(np.ones(50))
+    session.solve(np.ones((50, 7)))
+    assert counted == [1, 7] and session.stats.solves == 8

@@ -13,8 +13,8 @@ from ohmgraph.engine.readings.model import compare
 from ohmgraph.io.commands.argtypes import fraction, whole_number
 from ohmgraph.io.commands.part_options import (add_band_arguments, band_rule_text, model_bands,
                                                percent, read_part_tolerances)
-from ohmgraph.io.commands.reading_model import (feedback, model_readings, read_inputs,
-                                                reading_columns, write_table)
+from ohmgraph.io.commands.reading_model import (counting_solves, feedback, model_readings,
+                                                read_inputs, reading_columns, write_table)
 from ohmgraph.io.commands.reading_options import (add_full_precision_argument,
                                                   add_network_arguments, add_output_arguments,
                                                   add_reading_arguments)
@@ -190,7 +190,8 @@ def run(args) -> int:
     comparison = compare(model)
     feedback(args).stage("ranking single faults of every resistor (screened by bounds, the "
                          "best evaluated exactly)", net.n_nodes)
-    result = diagnose(model, top=args.top, short_ratio=args.short_ratio)
+    with counting_solves(args, model, "ranking"):
+        result = diagnose(model, top=args.top, short_ratio=args.short_ratio)
     failed = int((~comparison.passed).sum())
     columns = hypothesis_columns(net, result)
     attrs = {"baseline_chi2": result.baseline_chi2, "readings": int(model.readings.n),
@@ -229,10 +230,11 @@ def _run_parts(args, net, table, model, tolerance, sources) -> int:
     comparison = compare(model, bands.band)
     feedback(args).stage("ranking single and two-fault hypotheses by generalised least squares",
                          net.n_nodes)
-    result = diagnose_parts(model, bands, spread.covariance, top=args.top,
-                            short_ratio=args.short_ratio, min_change=args.min_change,
-                            significance=args.significance,
-                            max_flagged=args.max_flagged)
+    with counting_solves(args, model, "ranking"):
+        result = diagnose_parts(model, bands, spread.covariance, top=args.top,
+                                short_ratio=args.short_ratio, min_change=args.min_change,
+                                significance=args.significance,
+                                max_flagged=args.max_flagged)
     ranking = result.ranking
     columns = hypothesis_columns(net, ranking, result.pairs)
     attrs = {"fit": "generalised least squares", "band_rule": band_rule_text(bands),

@@ -3,6 +3,8 @@ network and its measurement table, build the reading model, write the result tab
 
 from __future__ import annotations
 
+from contextlib import contextmanager
+
 import numpy as np
 
 from ohmgraph.engine.readings.model import ReadingModel, build_model
@@ -75,3 +77,20 @@ def reading_columns(table, model: ReadingModel, result, bands=None) -> dict:
         "deviation": result.deviation, "band": result.band, **parts, "accuracy": table.accuracy,
         "deviation_in_bands": result.normalized, "status": status,
     }
+
+
+@contextmanager
+def counting_solves(args, model: ReadingModel, what: str):
+    """Show a running count of the solves ``model``'s sessions make inside the block (a bar
+    without a total: a fault ranking's number of solves is not known in advance)."""
+    bar = feedback(args).counter(what, model.network.n_nodes)
+    sessions = [system.session for system in model.systems.values()]
+    for session in sessions:
+        session.on_solved = None if bar is None else bar.update
+    try:
+        yield
+    finally:
+        for session in sessions:
+            session.on_solved = None
+        if bar is not None:
+            bar.close()
