@@ -90,9 +90,16 @@ def main(argv=None) -> int:
             try:
                 interrupts.checkpoint("start")
                 argv = sys.argv[1:] if argv is None else list(argv)
-                args = build_parser(chosen_command(argv)).parse_args(argv)
-                name = f"ohmgraph {args.command}"
-                code = _run(args)
+                name = " ".join(["ohmgraph", *chosen_command(argv)])
+                try:
+                    args = build_parser(chosen_command(argv)).parse_args(argv)
+                    name = f"ohmgraph {args.command}"
+                    code = _run(args)
+                except (ImportError, OSError, MemoryError) as error:
+                    if not isinstance(error, MemoryError) and not _no_room_to_load(error):
+                        raise
+                    print(f"{name}: error: {OUT_OF_MEMORY}", file=sys.stderr)
+                    code = EXIT_NO_MEMORY
             except KeyboardInterrupt:
                 code = None
             interrupts.hold()
@@ -107,6 +114,15 @@ def main(argv=None) -> int:
         atomic.discard_run_files()
         print(f"{name}: interrupted by {interrupt}; no output was written", file=sys.stderr)
         return interrupt.exit_code
+
+
+def _no_room_to_load(error: Exception) -> bool:
+    """Whether a library failed to load for want of address space (``ulimit -v``): the dynamic
+    loader's "failed to map segment" or "cannot allocate memory", or a compiled library that
+    "could not find/load shared object" (llvmlite's wording)."""
+    text = str(error).lower()
+    return any(words in text for words in ("failed to map segment", "cannot allocate memory",
+                                           "could not find/load shared object"))
 
 
 def _run(args) -> int:

@@ -32,6 +32,7 @@ from __future__ import annotations
 
 import csv
 import gzip
+import resource
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 
@@ -169,6 +170,12 @@ def read_network_file(path, ground: str | None = "0") -> NetworkFile:
             columns = _read_parquet(path)
         else:
             columns = _read_table(path, found.format.delimiter)
+    except pa.ArrowMemoryError:
+        raise MemoryError from None
+    except pa.ArrowException as error:
+        if THREAD_LAUNCH_FAILED in str(error):      # no room for a thread's stack: memory
+            raise MemoryError from None
+        raise
     except (OSError, EOFError) as error:      # unreadable gzip stream or a failing disk
         raise InputError(f"{path}: cannot be read ({error})") from None
     network = _build_network(path, columns, None if ground is None else str(ground))
@@ -231,13 +238,25 @@ def locate_lines(path, rows) -> np.ndarray:
 
 
 # ---------------------------------------------------------------------------------- fast path
+# pyarrow's message when the address-space limit leaves no room for a worker thread's stack.
+THREAD_LAUNCH_FAILED = "Failed to launch worker thread"
+
+
+def _reader_threads() -> bool:
+    """Whether pyarrow may read with its thread pool: not under an address-space limit
+    (``ulimit -v``), where every worker thread reserves its stack and a malloc arena, so a
+    launch can fail ("Failed to launch worker thread") long before memory runs out."""
+    soft, _ = resource.getrlimit(resource.RLIMIT_AS)
+    return soft == resource.RLIM_INFINITY
+
+
 def _read_table(path: Path, delimiter: str) -> _Columns:
     header_line, header = _read_header(path, delimiter)
     try:
         table = pa_csv.read_csv(
             path,
             read_options=pa_csv.ReadOptions(column_names=header, skip_rows=header_line,
-                                            use_threads=True),
+                                            use_threads=_reader_threads()),
             parse_options=pa_csv.ParseOptions(delimiter=delimiter),
             convert_options=pa_csv.ConvertOptions(
                 column_types={column: pa.string() for column in header}))
@@ -270,7 +289,7 @@ def _read_edge_list(path: Path) -> _Columns:
     try:
         table = pa_csv.read_csv(
             path,
-            read_options=pa_csv.ReadOptions(column_names=["line"], use_threads=True),
+            read_options=pa_csv.ReadOptions(column_names=["line"], use_threads=_reader_threads()),
             parse_options=pa_csv.ParseOptions(delimiter=_UNUSED_DELIMITER, quote_char=False,
                                               double_quote=False, escape_char=False),
             convert_options=pa_csv.ConvertOptions(column_types={"line": pa.string()}))

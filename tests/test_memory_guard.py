@@ -129,3 +129,41 @@ def test_every_solving_command_is_guarded(lattice, capsys, monkeypatch, command)
     assert code == EXIT_NO_MEMORY
     assert err.startswith(f"ohmgraph {command[0]}: error: net.csv: solving 79,658 branches with "
                           "amg-cg needs about ") and "only 10 MB are available (free memory)" in err
+
+
+def test_a_reader_thread_that_cannot_start_is_out_of_memory(tmp_path, capsys, monkeypatch):
+    """Under ``ulimit -v`` pyarrow may fail to start a worker thread (no room for its stack):
+    that is the out-of-memory exit, not a traceback."""
+    import pyarrow as pa
+
+    import ohmgraph.io.reader as reader
+
+    def no_thread(*_, **__):
+        raise pa.ArrowException("Unknown error: Failed to launch worker thread: Resource "
+                                "temporarily unavailable")
+
+    net = tmp_path / "net.csv"
+    net.write_text("name,kind,from,to,value\nv,V,a,0,1\nr,R,a,0,2\n")
+    monkeypatch.setattr(reader.pa_csv, "read_csv", no_thread)
+    assert main(["solve", str(net), "-o", str(tmp_path / "out.h5")]) == EXIT_NO_MEMORY
+    assert capsys.readouterr().err == f"ohmgraph solve: error: {OUT_OF_MEMORY}\n"
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["net.csv"]
+
+
+def test_a_library_without_room_to_load_is_out_of_memory(capsys, monkeypatch):
+    """A command module whose libraries cannot be mapped (``ulimit -v``) ends with the
+    out-of-memory exit and names the command."""
+    import importlib
+
+    import ohmgraph.io.cli as cli
+
+    real = importlib.import_module
+
+    def no_room(name, *args):
+        if name == "ohmgraph.io.commands.check":
+            raise ImportError("libopenblas.so: failed to map segment from shared object")
+        return real(name, *args)
+
+    monkeypatch.setattr(cli.importlib, "import_module", no_room)
+    assert main(["check", "net.csv"]) == EXIT_NO_MEMORY
+    assert capsys.readouterr().err == f"ohmgraph check: error: {OUT_OF_MEMORY}\n"
