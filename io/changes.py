@@ -20,6 +20,7 @@ from ohmgraph.engine.network import KIND_CODE, KIND_LETTERS, RESISTOR, Network
 from ohmgraph.engine.variant import BranchChanges
 from ohmgraph.io.errors import InputError, ProblemList
 from ohmgraph.io.reader import COLUMNS, RATING_COLUMNS
+from ohmgraph.io.text_table import read_text_table
 
 
 @dataclass(frozen=True)
@@ -73,23 +74,7 @@ def read_changes(path, net: Network) -> ChangeFile:
         is not a resistor, contradicts the branch it names, or repeats a name.
     """
     path = Path(path)
-    if not path.is_file():
-        raise InputError(f"{path}: " + ("not a file" if path.exists() else "no such file"))
-    try:
-        table = pd.read_csv(path, dtype=str, keep_default_na=False, skip_blank_lines=False,
-                            encoding="utf-8-sig", sep="\t" if ".tsv" in path.name else ",")
-    except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError, OSError,
-            EOFError) as error:
-        raise InputError(f"{path}: cannot be read as a change file ({error})") from None
-    table.columns = [str(column).strip().lower() for column in table.columns]
-    unknown = [column for column in table.columns if column not in COLUMNS]
-    if unknown:
-        raise InputError(f"{path}:1: header has unknown column(s) "
-                         f"{', '.join(map(repr, unknown))} (expected {', '.join(COLUMNS)})")
-    missing = [column for column in ("name", "value") if column not in table.columns]
-    if missing:
-        raise InputError(f"{path}:1: header has no column {', '.join(map(repr, missing))}")
-    table = table.map(str.strip)
+    table = read_text_table(path, "change file", COLUMNS, required=("name", "value"))
     for column in COLUMNS:
         if column not in table.columns:
             table[column] = ""

@@ -17,6 +17,7 @@ import pandas as pd
 
 from ohmgraph.engine.network import Network
 from ohmgraph.io.errors import InputError, ProblemList
+from ohmgraph.io.text_table import read_text_table
 
 NODE_COLUMNS = ("label", "x", "y", "layer")
 
@@ -53,24 +54,9 @@ def read_node_table(path, net: Network) -> NodeTable:
         the network or repeats, or a coordinate is not a finite number.
     """
     path = Path(path)
-    if not path.is_file():
-        raise InputError(f"{path}: " + ("not a file" if path.exists() else "no such file"))
-    try:
-        table = pd.read_csv(path, dtype=str, keep_default_na=False, skip_blank_lines=False,
-                            skipinitialspace=True, encoding="utf-8-sig")
-    except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError, OSError,
-            EOFError) as error:
-        raise InputError(f"{path}: cannot be read as a node table ({error})") from None
-    table.columns = [str(column).strip().lower() for column in table.columns]
-    unknown = [column for column in table.columns if column not in NODE_COLUMNS]
-    if unknown:
-        raise InputError(f"{path}:1: header has unknown column(s) "
-                         f"{', '.join(map(repr, unknown))} (expected {', '.join(NODE_COLUMNS)})")
-    if "label" not in table.columns:
-        raise InputError(f"{path}:1: header has no column 'label'")
+    table = read_text_table(path, "node table", NODE_COLUMNS, required=("label",))
     if ("x" in table.columns) != ("y" in table.columns):
         raise InputError(f"{path}:1: header needs both 'x' and 'y' (or neither)")
-    table = table.map(str.strip)
     table["line"] = np.arange(len(table)) + 2
     table = table[(table.drop(columns="line") != "").any(axis=1)]      # blank lines
     problems = ProblemList(path)
