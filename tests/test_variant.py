@@ -11,6 +11,7 @@ import pytest
 
 from ohmgraph.datasets.generators import grid2d, layered_mesh
 from ohmgraph.engine import Network, check, solve
+from ohmgraph.engine.solve import NetworkNotSolvable
 from ohmgraph.engine.formulation import assemble
 from ohmgraph.engine.network import RESISTOR
 from ohmgraph.engine.variant import BranchChanges, _updated_system, apply_changes, resolve
@@ -55,9 +56,10 @@ def test_resolve_matches_a_fresh_solve(side, method):
     assert variant.kcl_max_residual < 1e-8
 
 
-def test_resolve_with_structural_changes_solves_afresh():
+def test_resolve_with_structural_changes():
     """The divider: opening R2 leaves 'mid' at 5 V; adding R3 = 3 ohm beside R2 gives
-    V(mid) = 5 * 1.5 / 3.5 (common practice: voltage divider)."""
+    V(mid) = 5 * 1.5 / 3.5; a new node 'tap' behind R4 = 1 ohm from 'mid' carries no current
+    and sits at V(mid) (common practice: voltage divider)."""
     net = Network.from_arrays(["in", "in", "mid"], ["0", "mid", "0"], [5.0, 2.0, 3.0],
                               ["V", "R", "R"], names=["V1", "R1", "R2"])
     base = solve(net)
@@ -67,10 +69,77 @@ def test_resolve_with_structural_changes_solves_afresh():
     variant = resolve(base, added)
     mid = variant.network.node_index("mid")[0]
     assert variant.node_voltage[mid] == pytest.approx(5 * 1.5 / 3.5)
-    assert "from scratch" in variant.notes[-1]
+    assert "base set-up" in variant.notes[0] and "structure checked" in variant.notes[0]
     opened = resolve(base, BranchChanges(np.array([2]), np.array([np.inf])))
     assert opened.network.n_branches == 2
     assert opened.node_voltage[opened.network.node_index("mid")[0]] == pytest.approx(5.0)
+    tap = resolve(base, BranchChanges(np.empty(0, np.int64), np.empty(0), np.array(["R4"]),
+                                      np.array([RESISTOR], np.uint8), np.array(["mid"]),
+                                      np.array(["tap"]), np.array([1.0])))
+    assert "from scratch" in tap.notes[-1]                   # a new node: new unknowns
+    assert tap.node_voltage[tap.network.node_index("tap")[0]] == pytest.approx(3.0)
+
+
+def _mesh_and_base(method):
+    net = grid2d(40, 40, 1.0, pads=4, loads=160, load_amps=1e-4, seed=3)
+    return net, solve(net, method=method)
+
+
+@pytest.mark.parametrize("method", ["direct", "amg-cg"])
+def test_opened_and_added_resistors_match_a_fresh_solve(method):
+    net, base = _mesh_and_base(method)
+    rng = np.random.default_rng(7)
+    resistors = np.flatnonzero(net.kind == RESISTOR)
+    # open resistors of the lattice's interior (both ends keep other resistors)
+    opened = rng.choice(resistors[np.char.startswith(net.branch_names[resistors].astype(str),
+                                                     "R")], 16, replace=False)
+    labels = net.node_labels
+    pairs = rng.choice(np.flatnonzero(labels != net.reference_label), (8, 2), replace=False)
+    changes = BranchChanges(
+        np.concatenate([opened, resistors[:4]]),
+        np.concatenate([np.full(opened.size, np.inf), net.value[resistors[:4]] * 3]),
+        np.array([f"added{k}" for k in range(8)]), np.full(8, RESISTOR, np.uint8),
+        labels[pairs[:, 0]], labels[pairs[:, 1]], rng.uniform(0.5, 5.0, 8))
+    variant = resolve(base, changes)
+    fresh = solve(apply_changes(net, changes), method=method)
+    assert "base set-up" in variant.notes[0]
+    assert variant.relative_residual <= base.rtol
+    # a fresh solve and the variant both meet rtol 1e-10 on a system whose solution is ~1 V
+    # and whose condition number is below 1e4 here (40 x 40 lattice): 1e-8 V is generous
+    np.testing.assert_allclose(variant.node_voltage, fresh.node_voltage, atol=1e-8)
+    np.testing.assert_allclose(variant.branch_current, fresh.branch_current, atol=1e-8)
+    assert variant.kcl_max_residual < 1e-8
+    assert abs(variant.power_balance) < 1e-8 * variant.power_delivered
+
+
+def test_a_change_that_cuts_nodes_off_is_refused_as_the_check_would():
+    net, base = _mesh_and_base("amg-cg")
+    corner = net.node_index("0_0")[0]                 # two resistors, no source here
+    around = np.flatnonzero(((net.from_node == corner) | (net.to_node == corner))
+                            & (net.kind == RESISTOR))
+    changes = BranchChanges(around, np.full(around.size, np.inf))
+    with pytest.raises(NetworkNotSolvable) as refused:
+        resolve(base, changes)
+    expected = check(apply_changes(net, changes))
+    assert [f.code for f in refused.value.report.findings] == [f.code for f in
+                                                              expected.findings]
+    assert "floating" in [f.code for f in refused.value.report.findings]
+    pinned = resolve(base, changes, allow_floating=True)         # as solve(allow_floating)
+    assert pinned.node_voltage[corner] == 0.0 and "pinned" in " ".join(pinned.notes)
+
+
+def test_value_changes_skip_the_check_but_recompute_the_spread():
+    net, base = _mesh_and_base("amg-cg")
+    resistor = int(np.flatnonzero(net.kind == RESISTOR)[5])
+    changes = BranchChanges(np.array([resistor]), np.array([1e13]))
+    variant = resolve(base, changes)
+    assert variant.timings["check"] == 0.0 and "update" in variant.timings
+    fresh_report = check(apply_changes(net, changes))
+    assert [f.code for f in variant.report.findings] == [f.code for f in fresh_report.findings]
+    assert "ill-conditioned" in [f.code for f in variant.report.findings]
+    assert variant.report.summary == fresh_report.summary
+    np.testing.assert_allclose(variant.node_voltage,
+                               solve(apply_changes(net, changes)).node_voltage, atol=1e-8)
 
 
 def run(capsys, *argv):
