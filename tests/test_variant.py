@@ -200,3 +200,37 @@ def test_cli_warm_start_matches_a_cold_solve_on_a_mesh(tmp_path, capsys):
         assert warm.attrs["relative_residual"] <= 1e-10
     code, text = run(capsys, "diff", tmp_path / "a.h5", tmp_path / "warm.h5", "--top", "3")
     assert code == 0 and "largest voltage changes" in text and "worst drop" in text
+
+
+def test_cli_value_changes_keep_the_stored_check_and_match_a_fresh_run(tmp_path, capsys):
+    from ohmgraph.io.branch_table import write_branch_table
+
+    net = grid2d(40, 40, 1.0, pads=4, loads=160, load_amps=1e-4, seed=3)
+    write_branch_table(tmp_path / "m.csv", net)
+    picked = np.flatnonzero(net.kind == RESISTOR)[::97]
+    values = net.value[picked] * 1.7
+    values[0] = 2e12                                   # spread over 1e12: a warning appears
+    rows = "".join(f"{net.branch_names[k]},{float(v)!r}\n" for k, v in zip(picked, values))
+    (tmp_path / "c.csv").write_text("name,value\n" + rows)
+    changed = apply_changes(net, BranchChanges(picked, values))
+    write_branch_table(tmp_path / "changed.csv", changed)
+    assert run(capsys, "solve", tmp_path / "m.csv", "-o", tmp_path / "a.h5")[0] == 0
+    code, text = run(capsys, "solve", tmp_path / "m.csv", "--changes", tmp_path / "c.csv",
+                     "--start-from", tmp_path / "a.h5", "-o", tmp_path / "v.h5")
+    assert code == 0, text
+    assert "check of" in text and "kept" in text
+    assert run(capsys, "solve", tmp_path / "changed.csv", "-o", tmp_path / "f.h5")[0] == 0
+    with h5py.File(tmp_path / "v.h5") as v, h5py.File(tmp_path / "f.h5") as f:
+        np.testing.assert_allclose(v["nodes/voltage"][...], f["nodes/voltage"][...], atol=1e-8)
+        assert v["checks/code"].asstr()[...].tolist() == f["checks/code"].asstr()[...].tolist()
+        assert "ill-conditioned" in v["checks/code"].asstr()[...].tolist()
+        assert dict(v["checks"].attrs) == dict(f["checks"].attrs)
+
+
+def test_cli_change_that_cuts_a_node_off_is_refused(tmp_path, capsys):
+    (tmp_path / "d.csv").write_text(DIVIDER + "R3,R,mid,end,1\n")
+    (tmp_path / "c.csv").write_text("name,value\nR3,inf\n")    # 'end' hangs on R3 alone
+    assert run(capsys, "solve", tmp_path / "d.csv", "-o", tmp_path / "a.h5")[0] == 0
+    code, text = run(capsys, "solve", tmp_path / "d.csv", "--changes", tmp_path / "c.csv",
+                     "--start-from", tmp_path / "a.h5", "-o", tmp_path / "b.h5")
+    assert code == 1 and "floating" in text and not (tmp_path / "b.h5").exists()
