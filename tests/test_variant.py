@@ -234,3 +234,17 @@ def test_cli_change_that_cuts_a_node_off_is_refused(tmp_path, capsys):
     code, text = run(capsys, "solve", tmp_path / "d.csv", "--changes", tmp_path / "c.csv",
                      "--start-from", tmp_path / "a.h5", "-o", tmp_path / "b.h5")
     assert code == 1 and "floating" in text and not (tmp_path / "b.h5").exists()
+
+
+def test_cli_variant_of_an_hdf5_network_file_reads_it_and_keeps_the_check(tmp_path, capsys):
+    (tmp_path / "d.csv").write_text(DIVIDER)
+    (tmp_path / "c.csv").write_text("name,value\nR1,1\n")     # 5 V over 1 + 3 ohm: 3.75 V
+    assert run(capsys, "convert", tmp_path / "d.csv", "-o", tmp_path / "d.h5")[0] == 0
+    assert run(capsys, "solve", tmp_path / "d.h5", "-o", tmp_path / "a.h5")[0] == 0
+    code, text = run(capsys, "solve", tmp_path / "d.h5", "--changes", tmp_path / "c.csv",
+                     "--start-from", tmp_path / "a.h5", "-o", tmp_path / "b.h5")
+    assert code == 0, text
+    assert "network taken from" not in text and "check of" in text and "kept" in text
+    with h5py.File(tmp_path / "b.h5") as h5:
+        labels = h5["nodes/label"].asstr()[...].tolist()
+        assert h5["nodes/voltage"][labels.index("mid")] == pytest.approx(3.75)

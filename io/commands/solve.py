@@ -17,6 +17,7 @@ from ohmgraph.io.formats import HDF5, require_format
 from ohmgraph.io.interrupts import checkpoint
 from ohmgraph.io.jsonout import dumps
 from ohmgraph.io.memory_guard import refuse_if_too_big
+from ohmgraph.io.network_file import is_hdf5
 from ohmgraph.io.mpi_launch import launched_rank, launched_size
 from ohmgraph.engine.variant import apply_changes
 from ohmgraph.io.changes import CHANGES_NOTE, change_note, check_from_base, read_changes
@@ -76,19 +77,22 @@ def register(subparsers) -> None:
     parser.set_defaults(run=run)
 
 
-def read_inputs(args, base) -> tuple[NetworkFile, list]:
-    """The network file (network, reader's findings, ratings): taken from ``BASE.h5`` when NET
-    is the very file it was solved from (same SHA-256, same reference node, no change file
-    applied then), else read from NET; and the notes saying which."""
-    if (base is not None and base.attrs.get("input_sha256") == file_sha256(args.network)
+def read_inputs(args, base) -> tuple[NetworkFile, list, bool]:
+    """The network file (network, reader's findings, ratings), the notes saying where it came
+    from, and whether it is the very network ``BASE.h5`` was solved from (same SHA-256, same
+    reference node, no change file applied then). That network is taken from ``BASE.h5``,
+    which is faster to read than a text file; an HDF5 network file (``convert``) is read
+    itself, faster still."""
+    same = (base is not None and base.attrs.get("input_sha256") == file_sha256(args.network)
             and base.attrs["reference"] == args.ground
-            and not any(note.startswith(CHANGES_NOTE) for note in base.attrs.get("notes", []))):
+            and not any(note.startswith(CHANGES_NOTE) for note in base.attrs.get("notes", [])))
+    if same and not is_hdf5(args.network):
         ratings = {name: base.extra[f"branches/{name}"] for name in RATING_COLUMNS
                    if f"branches/{name}" in base.extra}
         return (NetworkFile(args.network, base.network, (), ratings),
                 [f"network taken from {args.start_from}: {args.network} is unchanged since "
-                 "(same SHA-256)"])
-    return read_network_file(args.network, ground=args.ground), []
+                 "(same SHA-256)"], True)
+    return read_network_file(args.network, ground=args.ground), [], same
 
 
 def run(args) -> int:
@@ -114,12 +118,11 @@ def run(args) -> int:
     checkpoint("read")
     start = time.perf_counter()
     base = read_solution(args.start_from) if args.start_from else None
-    read, notes = read_inputs(args, base)
+    read, notes, same_as_base = read_inputs(args, base)
     change_file = None
     if args.changes:
         change_file = read_changes(args.changes, read.network)
-        # NET is the very file BASE.h5 was solved from: its stored check may serve
-        same_as_base = base is not None and read.network is base.network
+        original = read.network
         read = replace(read, network=apply_changes(read.network, change_file.changes),
                        ratings=change_file.changed_ratings(read.network, read.ratings))
         notes.append(change_note(args.changes, change_file.changes))
@@ -140,8 +143,9 @@ def run(args) -> int:
 
     checkpoint("check")
     start = time.perf_counter()
-    report = (check_from_base(base.findings, base.check_summary, base.network,
-                              change_file.changes, net)
+    # NET is the very network BASE.h5 was solved from: its stored check may serve
+    report = (check_from_base(base.findings, base.check_summary, original, change_file.changes,
+                              net)
               if change_file is not None and same_as_base else None)
     if report is None:
         report = read.check(allow_floating=args.allow_floating)
