@@ -41,7 +41,7 @@ from conftest import RTOL, supplied_lattice
 from ohmgraph.datasets.generators import site_coordinates
 from ohmgraph.engine import solve
 from ohmgraph.engine.network import RESISTOR
-from ohmgraph.engine.variant import BranchChanges, apply_changes, resolve
+from ohmgraph.engine.variant import BranchChanges, _updated_system, apply_changes, resolve
 from ohmgraph.io.branch_table import write_branch_table
 
 VARIANT_SIZE = int(os.environ.get("OHMGRAPH_VARIANT_SIZE", "708"))
@@ -186,4 +186,46 @@ def test_variant_python_session(variant_case, benchmark):
           f"{variant.notes[0]}")
     print("  fresh stages:   " + ", ".join(f"{k} {v:.3f}" for k, v in fresh.timings.items()))
     print("  variant stages: " + ", ".join(f"{k} {v:.3f}" for k, v in variant.timings.items()))
+    benchmark.pedantic(lambda: None, rounds=1)
+
+
+@pytest.mark.parametrize("fraction", [1e-4, 1e-3, 1e-2])
+def test_variant_python_session_by_fraction(variant_case, fraction, benchmark):
+    """How the session variant's advantage depends on how many branches change (random
+    resistors times U(0.5, 2), as above): fewer changes leave a smaller starting residual, so
+    fewer CG iterations reach the same absolute target."""
+    folder, net, _ = variant_case
+    base = solve(net, rtol=RTOL)
+    rng = np.random.default_rng(12)
+    index = np.sort(rng.choice(np.flatnonzero(net.kind == RESISTOR),
+                               int(net.n_branches * fraction), replace=False))
+    changes = BranchChanges(index, net.value[index] * rng.uniform(0.5, 2.0, index.size))
+    changed = apply_changes(net, changes)
+    solve(changed, rtol=RTOL), resolve(base, changes)          # warm-up
+    fresh_seconds, variant_seconds = [], []
+    loads = [load()]
+    for _ in range(3):
+        start = time.perf_counter()
+        fresh = solve(changed, rtol=RTOL)
+        fresh_seconds.append(time.perf_counter() - start)
+        start = time.perf_counter()
+        variant = resolve(base, changes)
+        variant_seconds.append(time.perf_counter() - start)
+    loads.append(load())
+    difference = float(np.max(np.abs(fresh.node_voltage - variant.node_voltage)))
+    ratio = float(np.median(fresh_seconds) / np.median(variant_seconds))
+    updated = _updated_system(base, changed, index)
+    start_residual = float(np.linalg.norm(
+        updated.rhs - updated.matrix @ updated.unknowns_from_voltages(base.node_voltage))
+        / np.linalg.norm(updated.rhs))
+    benchmark.extra_info.update(fraction=fraction, changed=index.size, load_average=loads,
+                                fresh_median=float(np.median(fresh_seconds)),
+                                variant_median=float(np.median(variant_seconds)),
+                                speedup=ratio, iterations=variant.iterations,
+                                start_relative_residual=start_residual,
+                                max_voltage_difference=difference)
+    print(f"\n{index.size:,} changed ({fraction:.2%}), load {loads[0]} -> {loads[1]}: fresh "
+          f"{np.median(fresh_seconds):.3f} s, variant {np.median(variant_seconds):.3f} s "
+          f"({variant.iterations} it from relative residual {start_residual:.1e}), {ratio:.2f}x; "
+          f"max |dV| {difference:.1e} V")
     benchmark.pedantic(lambda: None, rounds=1)

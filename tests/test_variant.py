@@ -248,3 +248,18 @@ def test_cli_variant_of_an_hdf5_network_file_reads_it_and_keeps_the_check(tmp_pa
     with h5py.File(tmp_path / "b.h5") as h5:
         labels = h5["nodes/label"].asstr()[...].tolist()
         assert h5["nodes/voltage"][labels.index("mid")] == pytest.approx(3.75)
+
+
+def test_few_changes_on_a_factorised_base_take_few_iterations():
+    """CG preconditioned by the exact inverse of A0 solves A1 = A0 + (k changed conductances)
+    in at most k + 1 steps in exact arithmetic, A0^-1 A1 having at most k + 1 distinct
+    eigenvalues (Hestenes & Stiefel 1952, J. Res. NBS 49, 409; common practice)."""
+    net, base = _mesh_and_base("direct")
+    rng = np.random.default_rng(5)
+    index = np.sort(rng.choice(np.flatnonzero(net.kind == RESISTOR), 4, replace=False))
+    changes = BranchChanges(index, net.value[index] * np.array([0.5, 2.0, 3.0, 0.25]))
+    variant = resolve(base, changes)
+    assert "base set-up" in variant.notes[0]
+    assert variant.iterations <= 4 + 1 + 1                     # one more for rounding
+    np.testing.assert_allclose(variant.node_voltage,
+                               solve(apply_changes(net, changes)).node_voltage, atol=1e-9)
