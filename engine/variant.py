@@ -21,11 +21,11 @@ set-up (its AMG hierarchy with the changed matrix on the finest level, or its fa
 started from the base solution, through :meth:`SolveSession.solve_nearby
 <ohmgraph.engine.session.SolveSession.solve_nearby>`: the target is the fresh solve's,
 ``||b - A x|| <= rtol ||b||`` for the changed system (absolute, not relative to the starting
-residual), and the measured residual proves the result. If CG misses ``rtol``, or
+residual), and the measured residual proves the result.
 
-3. **anything else** (new nodes, a voltage source set or added, an ideal connection), the changed
-   network goes the whole way through :func:`~ohmgraph.engine.solve.solve` with its check
-   report, started from the base voltages.
+3. **Anything else** (new nodes, a voltage source set or added, an ideal connection), and a
+   re-solve whose CG missed ``rtol``: the changed network goes the whole way through
+   :func:`~ohmgraph.engine.solve.solve` with its check report, started from the base voltages.
 
 Every way the branch currents, the KCL residual and the power balance are recomputed from the
 new voltages: the evidence of a variant is that of a fresh solve.

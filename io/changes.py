@@ -204,8 +204,10 @@ def check_from_base(findings: list, summary: dict, net: Network, changes: Branch
     """The changed network's check report from the check ``findings`` and ``summary`` stored
     with the solution of ``net`` (the very network, read from that file), without a new check,
     when the changes only set values (:func:`ohmgraph.engine.variant.changed_report` says why
-    nothing else can change); None otherwise, or when the base pinned floating islands."""
-    if any(f.code == "pinned-island" for f in findings) or not values_only(net, changes):
+    nothing else can change); None otherwise, when the base pinned floating islands, or when
+    the file holds no check summary (written before ``/checks`` was stored)."""
+    if (not summary or any(f.code == "pinned-island" for f in findings)
+            or not values_only(net, changes)):
         return None
     stored = CheckReport(list(findings), dict(summary), contract(changed), np.empty(0, np.int64))
     return changed_report(stored, net, changes, changed)
