@@ -263,3 +263,27 @@ def test_few_changes_on_a_factorised_base_take_few_iterations():
     assert variant.iterations <= 4 + 1 + 1                     # one more for rounding
     np.testing.assert_allclose(variant.node_voltage,
                                solve(apply_changes(net, changes)).node_voltage, atol=1e-9)
+
+
+def test_warm_start_read_matches_the_whole_read_and_refuses_other_files(tmp_path, capsys):
+    from ohmgraph.io.errors import InputError
+    from ohmgraph.io.store import read_solution, read_warm_start
+
+    (tmp_path / "d.csv").write_text(DIVIDER)
+    (tmp_path / "n.csv").write_text("label,x,y\nin,0,0\nmid,1,0\n0,2,0\n")
+    assert run(capsys, "solve", tmp_path / "d.csv", "--nodes", tmp_path / "n.csv",
+               "-o", tmp_path / "a.h5")[0] == 0
+    whole, lean = read_solution(tmp_path / "a.h5"), read_warm_start(tmp_path / "a.h5")
+    np.testing.assert_array_equal(lean.node_labels, whole.node_labels)
+    np.testing.assert_array_equal(lean.node_voltage, whole.node_voltage)
+    np.testing.assert_array_equal(lean.extra["nodes/x"], whole.extra["nodes/x"])
+    assert lean.check_summary == whole.check_summary and lean.attrs == whole.attrs
+    assert run(capsys, "convert", tmp_path / "d.csv", "-o", tmp_path / "d.h5")[0] == 0
+    with pytest.raises(InputError, match="not an ohmgraph solution file"):
+        read_warm_start(tmp_path / "d.h5")                      # a network file, not a solution
+    with h5py.File(tmp_path / "a.h5", "a") as h5:
+        del h5["nodes/voltage"]
+    code, text = run(capsys, "solve", tmp_path / "d.h5", "--start-from", tmp_path / "a.h5",
+                     "-o", tmp_path / "b.h5")
+    assert code == 2 and "missing dataset /nodes/voltage" in text
+    assert not (tmp_path / "b.h5").exists()

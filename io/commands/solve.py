@@ -25,7 +25,8 @@ from ohmgraph.io.node_table import node_table_by_label, read_node_table
 from ohmgraph.io.progress import Feedback, format_seconds
 from ohmgraph.io.reader import RATING_COLUMNS, NetworkFile, read_network_file
 from ohmgraph.io.solution_view import format_solution, solution_summary
-from ohmgraph.io.store import file_sha256, read_solution, voltages_by_label, write_solution
+from ohmgraph.io.store import (file_sha256, read_solution, read_warm_start, voltages_by_label,
+                               write_solution)
 
 
 def register(subparsers) -> None:
@@ -117,7 +118,12 @@ def run(args) -> int:
     require_format(args.output, (HDF5,), role="-o")
     checkpoint("read")
     start = time.perf_counter()
-    base = read_solution(args.start_from) if args.start_from else None
+    base = None
+    if args.start_from:
+        # NET in HDF5 is read itself, so only what a warm start needs is read from BASE.h5;
+        # a text NET may be the file BASE.h5 was solved from, whose network BASE.h5 holds
+        base = (read_warm_start(args.start_from) if is_hdf5(args.network)
+                else read_solution(args.start_from))
     read, notes, same_as_base = read_inputs(args, base)
     change_file = None
     if args.changes:
