@@ -153,16 +153,15 @@ def test_variant_cli(variant_case, suffix, benchmark):
     benchmark.pedantic(lambda: None, rounds=1)
 
 
-def test_variant_python_session(variant_case, benchmark):
-    """``engine.solve`` of the changed network and ``engine.variant.resolve`` from the base
-    solution alternate in one process (after one warm-up of each)."""
-    folder, net, changes = variant_case
-    base = solve(net, rtol=RTOL)
-    changed = apply_changes(net, changes)
-    solve(changed, rtol=RTOL), resolve(base, changes)          # warm-up: compiled kernels
+def interleaved(base, changes, rounds: int):
+    """``engine.solve`` of the changed network and ``resolve`` from ``base``, alternating for
+    ``rounds`` rounds after one warm-up of each (compiled kernels): the last of each, their
+    seconds, and the load averages before and after."""
+    changed = apply_changes(base.network, changes)
+    solve(changed, rtol=RTOL), resolve(base, changes)
     fresh_seconds, variant_seconds = [], []
     loads = [load()]
-    for _ in range(max(ROUNDS, 5)):
+    for _ in range(rounds):
         start = time.perf_counter()
         fresh = solve(changed, rtol=RTOL)
         fresh_seconds.append(time.perf_counter() - start)
@@ -170,6 +169,16 @@ def test_variant_python_session(variant_case, benchmark):
         variant = resolve(base, changes)
         variant_seconds.append(time.perf_counter() - start)
     loads.append(load())
+    return fresh, variant, fresh_seconds, variant_seconds, loads
+
+
+def test_variant_python_session(variant_case, benchmark):
+    """``engine.solve`` of the changed network and ``engine.variant.resolve`` from the base
+    solution alternate in one process (after one warm-up of each)."""
+    folder, net, changes = variant_case
+    base = solve(net, rtol=RTOL)
+    fresh, variant, fresh_seconds, variant_seconds, loads = interleaved(
+        base, changes, max(ROUNDS, 5))
     difference = float(np.max(np.abs(fresh.node_voltage - variant.node_voltage)))
     fresh_median, variant_median = np.median(fresh_seconds), np.median(variant_seconds)
     pairs = [f / v for f, v in zip(fresh_seconds, variant_seconds)]
@@ -201,17 +210,7 @@ def test_variant_python_session_by_fraction(variant_case, fraction, benchmark):
                                int(net.n_branches * fraction), replace=False))
     changes = BranchChanges(index, net.value[index] * rng.uniform(0.5, 2.0, index.size))
     changed = apply_changes(net, changes)
-    solve(changed, rtol=RTOL), resolve(base, changes)          # warm-up
-    fresh_seconds, variant_seconds = [], []
-    loads = [load()]
-    for _ in range(3):
-        start = time.perf_counter()
-        fresh = solve(changed, rtol=RTOL)
-        fresh_seconds.append(time.perf_counter() - start)
-        start = time.perf_counter()
-        variant = resolve(base, changes)
-        variant_seconds.append(time.perf_counter() - start)
-    loads.append(load())
+    fresh, variant, fresh_seconds, variant_seconds, loads = interleaved(base, changes, 3)
     difference = float(np.max(np.abs(fresh.node_voltage - variant.node_voltage)))
     ratio = float(np.median(fresh_seconds) / np.median(variant_seconds))
     updated = _updated_system(base, changed, index)
