@@ -22,10 +22,12 @@ of ``n`` degrees of freedom at ``1 - alpha`` (``alpha``: ``significance``, defau
 generalised least-squares fit is the same as giving it a free offset (the mean-shift outlier
 model; Cook & Weisberg, *Residuals and Influence in Regression*, 1982, §2.2), which has a
 closed form with ``gamma = Sigma^{-1} d`` and ``eta_i = (Sigma^{-1})_ii``, for every candidate
-and every reading at once. A reading is flagged when leaving it out lowers the best cost by
-more than the chi-square quantile of one degree of freedom at ``1 - alpha / n`` (Bonferroni over
-the ``n`` readings), confirmed by an exact re-ranking without it; the ranking is then shown
-without the flagged readings (at most ``max_flagged``).
+and every reading at once. The most promising readings are re-ranked exactly without them; a
+reading is flagged when the drop of the best cost passes one of the tests of :mod:`.contact`
+(a gross error on any reading; a contact error on a resistance reading read high, with a lower
+limit), the largest drop minus limit first (at most ``max_flagged``). The ranking shown puts the
+hypotheses fitted without the flagged readings, their cost plus the limits passed (a penalised
+likelihood), together with those fitted on every reading.
 
 *Two faults*: when no single fault fits (best cost above the quantile of ``n - 1`` degrees of
 freedom), every pair among the best ``pair_pool`` single faults is fitted with both values free.
