@@ -113,6 +113,7 @@ def main(argv=None) -> int:
             return code
         atomic.discard_run_files()
         print(f"{name}: interrupted by {interrupt}; no output was written", file=sys.stderr)
+        interrupts.end_without_shutdown(interrupt.exit_code)
         return interrupt.exit_code
 
 
