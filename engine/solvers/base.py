@@ -51,6 +51,9 @@ def single_threaded_blas():
 
 # Seconds between the main thread's checks on a worker (signal handlers run between them too).
 WORKER_POLL = 0.05
+# Matrices with fewer unknowns are set up and solved on the calling thread: their calls take
+# milliseconds, less than starting a thread would add to each of their many small solves.
+WORKER_MIN_UNKNOWNS = 20_000
 
 
 _UNFINISHED: set = set()          # completion events of workers not finished yet
@@ -164,7 +167,9 @@ class SPDSolver(ABC):
         self.setup_seconds = time.perf_counter() - start
 
     def _run(self, function, *args):
-        return in_worker(function, *args) if self.worker_thread else function(*args)
+        if self.worker_thread and self.matrix.shape[0] >= WORKER_MIN_UNKNOWNS:
+            return in_worker(function, *args)
+        return function(*args)
 
     @abstractmethod
     def _setup(self) -> None:
