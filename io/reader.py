@@ -44,6 +44,7 @@ import pyarrow.parquet as pq
 
 from ohmgraph.engine.checks import INFO, CheckReport, Finding, check
 from ohmgraph.engine.network import KIND_CODE, RESISTOR, Network
+from ohmgraph.io.address_space import refuse_to_read
 from ohmgraph.io.errors import InputError, ProblemList
 from ohmgraph.io.formats import EDGE_LIST, PARQUET, network_format
 from ohmgraph.io.network_file import is_hdf5, read_stored_network
@@ -252,6 +253,7 @@ def _reader_threads() -> bool:
 
 def _read_table(path: Path, delimiter: str) -> _Columns:
     header_line, header = _read_header(path, delimiter)
+    refuse_to_read(path, path.stat().st_size, path.suffix == ".gz")
     try:
         table = pa_csv.read_csv(
             path,
@@ -286,6 +288,7 @@ def _read_parquet(path: Path) -> _Columns:
 
 def _read_edge_list(path: Path) -> _Columns:
     """Whole lines through ``pyarrow.csv`` (no delimiter, no quoting), then vectorised splitting."""
+    refuse_to_read(path, path.stat().st_size, path.suffix == ".gz")
     try:
         table = pa_csv.read_csv(
             path,
