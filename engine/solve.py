@@ -118,7 +118,7 @@ class Solution:
             index = np.flatnonzero(mask)
             if index.size == 0:
                 return []
-            picked = index[np.argsort(-np.abs(values[index]), kind="stable")[:top]]
+            picked = index[largest_first(np.abs(values[index]), top)]
             return [{"branch": str(names[k]), "kind": "RVI"[net.kind[k]],
                      "from": str(labels[net.from_node[k]]), "to": str(labels[net.to_node[k]]),
                      "value": float(values[k])} for k in picked]
@@ -152,6 +152,19 @@ class Solution:
             "timings_s": dict(self.timings),
             "notes": list(self.notes),
         }
+
+
+def largest_first(magnitude: np.ndarray, top: int) -> np.ndarray:
+    """Positions of the ``top`` largest entries, largest first, ties in position order: the
+    first ``top`` of ``np.argsort(-magnitude, kind="stable")``, found by a partition (linear
+    time) so that only the chosen entries are sorted."""
+    if magnitude.size <= top or np.isnan(magnitude).any():     # NaN: the plain sort puts it last
+        return np.argsort(-magnitude, kind="stable")[:top]
+    threshold = np.partition(magnitude, magnitude.size - top)[magnitude.size - top]
+    above = np.flatnonzero(magnitude > threshold)
+    tied = np.flatnonzero(magnitude == threshold)[:top - above.size]
+    chosen = np.concatenate([above, tied])
+    return chosen[np.argsort(-magnitude[chosen], kind="stable")]
 
 
 def solve(net: Network, *, method: str = "auto", rtol: float = DEFAULT_RTOL,

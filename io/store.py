@@ -189,8 +189,8 @@ def decode_strings(raw: np.ndarray) -> np.ndarray:
 def _put(group: h5py.Group, name: str, data) -> None:
     """Create one dataset: chunked and compressed when large, with units and description."""
     data = np.asarray(data)
-    if data.dtype.kind == "U":
-        encoded = encode_strings(data)
+    if data.dtype.kind in "US":         # UTF-8 text (bytes are taken as already encoded)
+        encoded = encode_strings(data) if data.dtype.kind == "U" else data
         data = encoded.view(h5py.string_dtype("utf-8", encoded.dtype.itemsize))
     dataset = group.create_dataset(name, data=data, **dataset_options(data))
     key = f"{group.name.strip('/')}/{name}"
@@ -330,7 +330,7 @@ def write_solution(path, solution: Solution, *, input_path=None, force: bool = F
             _put(nodes, "voltage", solution.node_voltage)
             branches = h5.create_group("branches")
             _put(branches, "name", net.branch_names)
-            _put(branches, "kind", np.array(KIND_LETTERS)[net.kind])
+            _put(branches, "kind", np.array(KIND_LETTERS, "S1")[net.kind])
             _put(branches, "from", net.from_node)
             _put(branches, "to", net.to_node)
             _put(branches, "value", net.value)
