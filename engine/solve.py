@@ -66,10 +66,13 @@ class Solution:
     notes : list of str
     report : CheckReport
     system : ReducedSystem
-        Kept for reuse (further right-hand sides, sensitivities).
+        Kept for reuse (further right-hand sides, sensitivities); None after
+        :meth:`release_solver`.
     session : SolveSession
         The solve session of the reduced system, set up and reusable for further right-hand
-        sides (adjoint solves, sensitivities).
+        sides (adjoint solves, sensitivities); None after :meth:`release_solver`.
+    unknowns : int or None
+        Unknowns of the reduced system.
     """
 
     network: Network
@@ -92,6 +95,13 @@ class Solution:
     report: CheckReport | None = None
     system: ReducedSystem | None = None
     session: SolveSession | None = None
+    unknowns: int | None = None
+
+    def release_solver(self) -> None:
+        """Let go of the reduced system and the solve session (matrix, solver set-up and
+        supernode graph: often the largest arrays held) once no further right-hand side will
+        come."""
+        self.system = self.session = None
 
     @property
     def power_delivered(self) -> float:
@@ -134,7 +144,7 @@ class Solution:
             "method_reason": self.method_reason,
             "rtol": self.rtol,
             "iterations": self.iterations,
-            "unknowns": self.system.n_unknowns if self.system else None,
+            "unknowns": self.unknowns,
             "relative_residual": self.relative_residual,
             "kcl_max_residual_A": self.kcl_max_residual,
             "kcl_worst_node": str(labels[self.kcl_worst_node]),
@@ -251,7 +261,8 @@ def finish(net: Network, report: CheckReport, system: ReducedSystem, session: So
         power_balance=float(branches.power.sum()),
         power_dissipated=float(branches.power[net.kind == RESISTOR].sum()),
         timings=timings, notes=stats.notes + _pinned_notes(net, report), report=report,
-        system=system, session=session, method_reason=stats.reason)
+        system=system, session=session, method_reason=stats.reason,
+        unknowns=system.n_unknowns)
 
 
 def _pinned_notes(net: Network, report: CheckReport) -> list:

@@ -266,7 +266,7 @@ def _read_table(path: Path, delimiter: str) -> _Columns:
             parse_options=pa_csv.ParseOptions(delimiter=delimiter),
             convert_options=pa_csv.ConvertOptions(
                 column_types={column: pa.string() for column in header}))
-        return _convert(table)
+        return _convert(_take_columns(table))
     except (pa.ArrowInvalid, _Rejected):
         return _exact_table(path, delimiter, header)
 
@@ -285,7 +285,7 @@ def _read_parquet(path: Path) -> _Columns:
     except pa.ArrowException as error:
         raise InputError(f"{path}: a column cannot be read as text ({error})") from None
     try:
-        return _convert(text)
+        return _convert(_take_columns(text))
     except (pa.ArrowInvalid, _Rejected):
         return _exact_rows(path, text, header)
 
@@ -310,57 +310,69 @@ def _read_edge_list(path: Path) -> _Columns:
             raise _Rejected
         flat = pc.list_flatten(fields)
         starts = np.arange(0, len(flat), width)
-        return _convert(pa.table({name: flat.take(starts + k)
-                                  for k, name in enumerate(EDGE_LIST_FIELDS[:width])}))
+        return _convert({name: flat.take(starts + k)
+                         for k, name in enumerate(EDGE_LIST_FIELDS[:width])})
     except (pa.ArrowInvalid, _Rejected):
         return _exact_edge_list(path)
 
 
-def _convert(table: pa.Table) -> _Columns:
-    """Vectorised conversion of string columns; raises when any field is unusable.
+def _take_columns(table: pa.Table) -> dict:
+    """The table's columns by name; :func:`_convert` drops each once converted, so the whole
+    text table is not kept while the arrays are built (the caller keeps no reference)."""
+    return dict(zip(table.column_names, table.columns))
+
+
+def _convert(table: dict) -> _Columns:
+    """Vectorised conversion of string columns (by name, Arrow arrays, chunked or not; each is
+    removed from ``table`` once converted); raises when any field is unusable.
 
     Whole columns are trimmed only where trimming can matter: endpoint labels and kinds are
     trimmed in their dictionaries (one entry per distinct text), values are parsed as they
     stand and trimmed only when that fails.
     """
-    def trimmed(column):
-        return pc.utf8_trim_whitespace(table[column].combine_chunks())
+    def taken(column):
+        array = table.pop(column)
+        return array.combine_chunks() if isinstance(array, pa.ChunkedArray) else array
 
-    labels, from_node, to_node = _number_nodes(table["from"].combine_chunks(),
-                                               table["to"].combine_chunks())
-    defaulted = "value" not in table.column_names
+    rows = len(table["from"])
+    labels, from_node, to_node = _number_nodes(taken("from"), taken("to"))
+    defaulted = "value" not in table
     if defaulted:
-        value = np.full(len(table), DEFAULT_OHMS)
+        value = np.full(rows, DEFAULT_OHMS)
     else:
+        text = taken("value")
         try:
-            value = pc.cast(table["value"].combine_chunks(), pa.float64())
+            value = pc.cast(text, pa.float64())
         except pa.ArrowInvalid:             # surrounding spaces, or no number at all
-            value = pc.cast(trimmed("value"), pa.float64())
+            value = pc.cast(pc.utf8_trim_whitespace(text), pa.float64())
+        del text
         value = value.to_numpy(zero_copy_only=False)
-    if "kind" in table.column_names:
+    if "kind" in table:
         spellings = pa.array(list(KIND_SPELLINGS))
-        encoded = pc.dictionary_encode(table["kind"].combine_chunks())
+        encoded = pc.dictionary_encode(taken("kind"))
         position = pc.index_in(pc.utf8_upper(pc.utf8_trim_whitespace(encoded.dictionary)),
                                value_set=spellings)
         if position.null_count:
             raise _Rejected
         codes = np.asarray(list(KIND_SPELLINGS.values()), np.uint8)[position.to_numpy()]
         kind = codes[encoded.indices.to_numpy()]
+        del encoded
     else:
-        kind = np.full(len(table), RESISTOR, np.uint8)
+        kind = np.full(rows, RESISTOR, np.uint8)
     names = None
-    if "name" in table.column_names:
-        names = table["name"].combine_chunks()
+    if "name" in table:
+        names = taken("name")
         if names.type != pa.string():
             names = names.cast(pa.string())
         text = _text_bytes(names)
         if text.size and text.min() == 0:
             raise _Rejected
+        del text                            # a view that would keep the untrimmed names
         names = pc.utf8_trim_whitespace(names)
     ratings = {}
     for column in RATING_COLUMNS:
-        if column in table.column_names:
-            text = trimmed(column)
+        if column in table:
+            text = pc.utf8_trim_whitespace(taken(column))
             text = pc.if_else(pc.equal(pc.utf8_length(text), 0), pa.scalar(None, pa.string()), text)
             ratings[column] = pc.cast(text, pa.float64()).to_numpy(zero_copy_only=False)
             given = ratings[column][~np.isnan(ratings[column])]

@@ -281,8 +281,8 @@ def _root_attrs(solution: Solution, input_path) -> dict:
         "notes": _string_list(solution.notes),
         "method_reason": str(solution.method_reason),
     }
-    if solution.system is not None:
-        attrs["unknowns"] = int(solution.system.n_unknowns)
+    if solution.unknowns is not None:
+        attrs["unknowns"] = int(solution.unknowns)
     if input_path is not None:
         attrs["input_file"] = Path(input_path).name
         attrs["input_sha256"] = file_sha256(input_path)

@@ -155,6 +155,7 @@ def run(args) -> int:
         raise SolverError(f"{args.network}: {error}") from error
     solution.timings = {"read": read_seconds, **solution.timings, "check": check_seconds}
     solution.notes += notes
+    solution.release_solver()           # nothing here solves again: free it before storing
     start = time.perf_counter()
     drop = supply_drop(net, solution.node_voltage, nominal=args.nominal,
                        thresholds=args.drop_thresholds)
