@@ -19,6 +19,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
+import numba
 import numpy as np
 import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components
@@ -85,12 +86,31 @@ FNV_OFFSET = np.uint64(0xCBF29CE484222325)
 FNV_PRIME = np.uint64(0x100000001B3)
 
 
-def string_hashes(strings: np.ndarray) -> np.ndarray:
-    """64-bit FNV-1a hash of every entry of a NumPy unicode array (vectorised over entries,
-    one pass per character position; equal strings hash equal)."""
+def string_hashes(strings: np.ndarray, kernel: bool = True) -> np.ndarray:
+    """64-bit FNV-1a hash of every entry of a NumPy unicode array (equal strings hash equal):
+    compiled, one pass over the text in memory order (:func:`string_hashes_kernel`), or with
+    ``kernel=False`` vectorised over entries, one pass per character position
+    (:func:`string_hashes_reference`)."""
     strings = np.ascontiguousarray(strings, dtype=str)
     codes = strings.view(np.uint32).reshape(strings.size, strings.dtype.itemsize // 4)
-    hashes = np.full(strings.size, FNV_OFFSET, np.uint64)
+    return string_hashes_kernel(codes) if kernel else string_hashes_reference(codes)
+
+
+@numba.njit(cache=True)
+def string_hashes_kernel(codes):
+    """FNV-1a over the rows of ``codes`` (UCS-4 code units, one string per row)."""
+    hashes = np.empty(codes.shape[0], np.uint64)
+    for row in range(codes.shape[0]):
+        value = FNV_OFFSET
+        for column in range(codes.shape[1]):
+            value = (value ^ np.uint64(codes[row, column])) * FNV_PRIME
+        hashes[row] = value
+    return hashes
+
+
+def string_hashes_reference(codes: np.ndarray) -> np.ndarray:
+    """:func:`string_hashes_kernel` in NumPy, one pass per column."""
+    hashes = np.full(codes.shape[0], FNV_OFFSET, np.uint64)
     for column in codes.T:
         hashes ^= column
         hashes *= FNV_PRIME

@@ -260,7 +260,7 @@ def _write_findings(group: h5py.Group, findings: list, summary: dict) -> None:
         group.attrs[key] = value
 
 
-def _root_attrs(solution: Solution, input_path) -> dict:
+def _root_attrs(solution: Solution, input_path, input_sha256=None) -> dict:
     net = solution.network
     attrs = {
         "layout": "ohmgraph solution",
@@ -285,12 +285,13 @@ def _root_attrs(solution: Solution, input_path) -> dict:
         attrs["unknowns"] = int(solution.unknowns)
     if input_path is not None:
         attrs["input_file"] = Path(input_path).name
-        attrs["input_sha256"] = file_sha256(input_path)
+        attrs["input_sha256"] = (file_sha256(input_path) if input_sha256 is None
+                                 else input_sha256.result())
     return attrs
 
 
 def write_solution(path, solution: Solution, *, input_path=None, force: bool = False,
-                   extra: dict | None = None) -> float:
+                   extra: dict | None = None, input_sha256=None) -> float:
     """Store a solution in a new HDF5 file, atomically.
 
     Parameters
@@ -301,6 +302,9 @@ def write_solution(path, solution: Solution, *, input_path=None, force: bool = F
         From :func:`ohmgraph.engine.solve`; its ``timings`` are stored in ``/timings``.
     input_path : str or Path, optional
         The network file the solution came from; its name and SHA-256 are recorded.
+    input_sha256 : concurrent.futures.Future, optional
+        That file's SHA-256 (:func:`file_sha256`) being computed in another thread since the
+        file was read; by default it is computed here.
     force : bool
         Replace an existing file.
     extra : dict, optional
@@ -319,7 +323,7 @@ def write_solution(path, solution: Solution, *, input_path=None, force: bool = F
     """
     start = time.perf_counter()
     net = solution.network
-    root_attrs = _root_attrs(solution, input_path)
+    root_attrs = _root_attrs(solution, input_path, input_sha256)
     try:
         with (atomic_output(path, force) as temporary,
               create_hdf5(temporary, track_order=True, **FILE_OPTIONS) as h5):

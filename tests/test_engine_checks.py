@@ -234,3 +234,14 @@ def test_largest_first_is_the_head_of_a_stable_sort():
         top = int(rng.integers(1, 8))
         np.testing.assert_array_equal(largest_first(magnitude, top),
                                       np.argsort(-magnitude, kind="stable")[:top])
+
+
+def test_string_hash_kernel_agrees_with_numpy_columns():
+    from ohmgraph.engine.checks import string_hashes
+
+    rng = np.random.default_rng(6)
+    texts = np.array([f"R{a}_{b}" for a, b in rng.integers(0, 3000, (500, 2))]
+                     + ["", "Ωλ", "a" * 40], dtype=str)
+    fast, plain = string_hashes(texts), string_hashes(texts, kernel=False)
+    np.testing.assert_array_equal(fast, plain)
+    assert fast.dtype == np.uint64 and np.unique(fast).size == np.unique(texts).size
