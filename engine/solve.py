@@ -125,17 +125,18 @@ class Solution:
         labels, names = net.node_labels, net.branch_names
 
         def largest(values, mask):
-            index = np.flatnonzero(mask)
-            if index.size == 0:
-                return []
-            picked = index[largest_first(np.abs(values[index]), top)]
+            """The ``top`` largest |values| among the branches of ``mask`` (None: all)."""
+            if mask is None:
+                picked = largest_first(np.abs(values), top)
+            else:
+                index = np.flatnonzero(mask)
+                picked = index[largest_first(np.abs(values[index]), top)]
             return [{"branch": str(names[k]), "kind": "RVI"[net.kind[k]],
                      "from": str(labels[net.from_node[k]]), "to": str(labels[net.to_node[k]]),
                      "value": float(values[k])} for k in picked]
 
         v = self.node_voltage
         low, high = int(np.argmin(v)), int(np.argmax(v))
-        every = np.ones(net.n_branches, bool)
         return {
             "nodes": net.n_nodes,
             "branches": net.n_branches,
@@ -154,7 +155,7 @@ class Solution:
             "power_dissipated_W": self.power_dissipated,
             "voltage_min": {"node": str(labels[low]), "volts": float(v[low])},
             "voltage_max": {"node": str(labels[high]), "volts": float(v[high])},
-            "largest_currents_A": largest(self.branch_current, every),
+            "largest_currents_A": largest(self.branch_current, None),
             "largest_resistor_powers_W": largest(self.branch_power, net.kind == RESISTOR),
             "source_powers_W": largest(self.branch_power,
                                        (net.kind == VOLTAGE_SOURCE) | (net.kind == CURRENT_SOURCE)),
