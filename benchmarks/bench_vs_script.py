@@ -12,7 +12,9 @@ resident memory (largest ``ru_maxrss`` of its runs, from ``os.wait4`` on the chi
 too. ``OHMGRAPH_VS_SIDES`` (default ``1000,2000``) picks the grids; ``OHMGRAPH_VS_DATA`` names a
 folder that keeps the generated CSV files between runs (default: a temporary folder);
 ``OHMGRAPH_VS_SCRIPT=0`` runs ohmgraph alone (the 3000 x 3000 grid: ``OHMGRAPH_VS_SIDES=3000
-OHMGRAPH_VS_ROUNDS=1``). Nothing here asserts a time.
+OHMGRAPH_VS_ROUNDS=1``). ``OHMGRAPH_VS_BEFORE`` names another ``ohmgraph`` executable (an
+earlier checkout's) to run in each round too, for a before/after table of the stages. Nothing
+here asserts a time.
 
     .venv/bin/python -m pytest benchmarks/bench_vs_script.py -o python_files='bench_*.py' \\
         --benchmark-enable -s
@@ -36,6 +38,7 @@ from ohmgraph.io.branch_table import write_branch_table
 SIDES = [int(side) for side in os.environ.get("OHMGRAPH_VS_SIDES", "1000,2000").split(",")]
 ROUNDS = int(os.environ.get("OHMGRAPH_VS_ROUNDS", "3"))
 WITH_SCRIPT = os.environ.get("OHMGRAPH_VS_SCRIPT", "1") != "0"
+BEFORE = os.environ.get("OHMGRAPH_VS_BEFORE")
 RTOL = "1e-8"
 SCRIPT = Path(__file__).with_name("plain_script.py")
 
@@ -85,12 +88,16 @@ def test_against_plain_script(benchmark, data_folder, side, tmp_path):
     ours = [str(Path(sys.executable).with_name("ohmgraph")), "solve", str(network), "-o",
             str(tmp_path / "ohmgraph.h5"), "--rtol", RTOL, "--json", "--force"]
     script = [sys.executable, str(SCRIPT), str(network), str(tmp_path / "script.h5")]
-    a_runs, b_runs, b1_runs, summaries = [], [], [], []
+    a_runs, b_runs, b1_runs, summaries, before_runs, before_summaries = [], [], [], [], [], []
 
     def one_round():
         seconds, peak, out = run_child(ours)
         a_runs.append((seconds, peak))
         summaries.append(json.loads(out))
+        if BEFORE:
+            seconds, peak, out = run_child([BEFORE, *ours[1:]])
+            before_runs.append((seconds, peak))
+            before_summaries.append(json.loads(out))
         if WITH_SCRIPT:
             b_runs.append(run_child(script)[:2])
             b1_runs.append(run_child(script, ONE_THREAD)[:2])
@@ -128,4 +135,17 @@ def test_against_plain_script(benchmark, data_folder, side, tmp_path):
         print(f"  ratio ohmgraph / faster script (median of rounds) {ratio:.2f} (goal <= 0.6); "
               f"peak memory ratio {a_peak / b_peak:.2f} (goal <= 1)")
     print("  stages (median s): " + ", ".join(f"{k} {v:.2f}" for k, v in stages.items()))
+    print("  rounds (s): ohmgraph " + " ".join(f"{s:.2f}" for s, _ in a_runs)
+          + (" | script " + " ".join(f"{s:.2f}" for s, _ in b_runs)
+             + " | one thread " + " ".join(f"{s:.2f}" for s, _ in b1_runs) if b_runs else ""))
+    if before_runs:
+        before_stages = {stage: statistics.median(s["timings_s"][stage] for s in before_summaries)
+                         for stage in before_summaries[0]["timings_s"]}
+        before_median = statistics.median(s for s, _ in before_runs)
+        before_peak = max(p for _, p in before_runs)
+        info.update(before_median_s=before_median, before_peak_bytes=before_peak,
+                    before_stages_median_s=before_stages)
+        print(f"  before ({BEFORE}) median {before_median:7.2f} s  peak "
+              f"{before_peak / 1e9:5.2f} GB; stages (median s): "
+              + ", ".join(f"{k} {v:.2f}" for k, v in before_stages.items()))
     benchmark.extra_info.update(info)
