@@ -178,18 +178,32 @@ def _value_findings(net: Network) -> list:
         findings.append(Finding(INFO, "ideal-connection",
                                 f"{ideal.size} zero-ohm resistor(s) are ideal connections; the "
                                 "nodes they join are merged", branches=ideal))
+    spread = spread_finding(net)
+    return findings + ([spread] if spread else [])
+
+
+def conductance_spread(net: Network) -> float | None:
+    """Largest over smallest positive finite resistance (None without such resistors)."""
     resistive = (net.kind == RESISTOR) & (net.value > 0) & np.isfinite(net.value)
-    if resistive.any():
-        with np.errstate(over="ignore"):
-            spread = float(net.value[resistive].max() / net.value[resistive].min())
-        if spread > CONDUCTANCE_SPREAD_LIMIT:
-            findings.append(Finding(
-                WARNING, "ill-conditioned",
-                f"resistances span a factor of {spread:.3g} (over {CONDUCTANCE_SPREAD_LIMIT:.0e}); "
-                "expect lost digits in the solution",
-                branches=_indices(resistive)[[int(np.argmin(net.value[resistive])),
-                                              int(np.argmax(net.value[resistive]))]]))
-    return findings
+    if not resistive.any():
+        return None
+    with np.errstate(over="ignore"):
+        return float(net.value[resistive].max() / net.value[resistive].min())
+
+
+def spread_finding(net: Network) -> Finding | None:
+    """The ``ill-conditioned`` warning when the resistances span more than
+    :data:`CONDUCTANCE_SPREAD_LIMIT`, else None."""
+    spread = conductance_spread(net)
+    if spread is None or spread <= CONDUCTANCE_SPREAD_LIMIT:
+        return None
+    resistive = _indices((net.kind == RESISTOR) & (net.value > 0) & np.isfinite(net.value))
+    return Finding(
+        WARNING, "ill-conditioned",
+        f"resistances span a factor of {spread:.3g} (over {CONDUCTANCE_SPREAD_LIMIT:.0e}); "
+        "expect lost digits in the solution",
+        branches=resistive[[int(np.argmin(net.value[resistive])),
+                            int(np.argmax(net.value[resistive]))]])
 
 
 def tree_path(net: Network, contraction: Contraction, branch: int) -> np.ndarray:
@@ -340,10 +354,7 @@ def check(net: Network, *, allow_floating: bool = False) -> CheckReport:
     findings += floating_findings
     n_components = _all_components(topology, label_of_conductive)
     unknowns = contraction.n_supernodes - 1 - pinned.size
-    resistive = (net.kind == RESISTOR) & (net.value > 0) & np.isfinite(net.value)
-    with np.errstate(over="ignore"):
-        spread = (float(net.value[resistive].max() / net.value[resistive].min())
-                  if resistive.any() else None)
+    spread = conductance_spread(net)
     summary = {
         "nodes": net.n_nodes,
         "branches": net.n_branches,

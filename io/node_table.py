@@ -95,7 +95,7 @@ def node_table_by_label(stored, net: Network) -> NodeTable | None:
     import pandas as pd           # imported on use: keeps start-up short
     if "nodes/x" not in stored.extra and "nodes/layer" not in stored.extra:
         return None
-    where = pd.Index(stored.network.node_labels).get_indexer(net.node_labels)
+    where = pd.Index(stored.node_labels).get_indexer(net.node_labels)
     found = where >= 0
 
     def carried(name, fill):
