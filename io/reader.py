@@ -368,7 +368,8 @@ def _convert(table: dict) -> _Columns:
         if text.size and text.min() == 0:
             raise _Rejected
         del text                            # a view that would keep the untrimmed names
-        names = pc.utf8_trim_whitespace(names)
+        if _may_need_trimming(names):
+            names = pc.utf8_trim_whitespace(names)
     ratings = {}
     for column in RATING_COLUMNS:
         if column in table:
@@ -433,6 +434,19 @@ def _branch_names(names: pa.Array | None, m: int) -> np.ndarray:
     if pc.any(empty).as_py():
         names = pc.if_else(empty, row_numbers(), names)
     return _to_numpy_text(names)
+
+
+def _may_need_trimming(array: pa.Array) -> bool:
+    """False when no entry starts or ends with a byte that can be part of whitespace (ASCII
+    controls and space, 0-32, or any byte of a multi-byte character, 128-255), so that
+    :func:`pyarrow.compute.utf8_trim_whitespace` would return the array unchanged."""
+    if len(array) == 0 or array.buffers()[2] is None:
+        return False
+    offsets = np.frombuffer(array.buffers()[1], np.int32, len(array) + 1, array.offset * 4)
+    data = np.frombuffer(array.buffers()[2], np.uint8)
+    filled = offsets[1:] > offsets[:-1]
+    edges = np.concatenate([data[offsets[:-1][filled]], data[offsets[1:][filled] - 1]])
+    return bool(np.any((edges <= 32) | (edges >= 128)))
 
 
 def _text_bytes(array: pa.Array) -> np.ndarray:

@@ -337,3 +337,13 @@ def test_arrow_text_to_numpy_agrees_with_python_strings(texts):
     assert fast.dtype.kind == "U" and fast.tolist() == expected.tolist() == texts
     sliced = pa.array(["skip", *texts], pa.string()).slice(1)
     assert reader._to_numpy_text(sliced).tolist() == texts
+
+
+@pytest.mark.parametrize("texts, may", [(["a", "bc", ""], False), (["a ", "b"], True),
+                                        (["\tx"], True), (["x\x1f"], True), (["xλ"], True),
+                                        (["\u00a0x"], True), ([], False), ([""], False)])
+def test_trimming_is_skipped_only_where_it_cannot_change_anything(texts, may):
+    array = pa.array(["pad", *texts], pa.string()).slice(1)
+    assert reader._may_need_trimming(array) == may
+    if not may:                             # Arrow's trim is the reference
+        assert pa.compute.utf8_trim_whitespace(array).to_pylist() == texts
