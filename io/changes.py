@@ -14,7 +14,6 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
-import pandas as pd
 import pyarrow as pa
 import pyarrow.compute as pc
 
@@ -77,6 +76,7 @@ def read_changes(path, net: Network) -> ChangeFile:
         row names a branch that does not exist without ``from`` and ``to``, opens a branch that
         is not a resistor, contradicts the branch it names, or repeats a name.
     """
+    import pandas as pd           # imported on use: keeps start-up short
     path = Path(path)
     table = read_text_table(path, "change file", COLUMNS, required=("name", "value"))
     for column in COLUMNS:

@@ -157,7 +157,7 @@ def _max():
 def _create(group, name: str, shape: int, dtype, source: h5py.Dataset | None = None):
     """An empty dataset of the solution layout (chunked, checksummed and compressed like the
     store's, :func:`ohmgraph.io.hdf5_integrity.dataset_options`)."""
-    options = dataset_options(np.empty(shape, dtype=dtype))
+    options = dataset_options(np.empty(shape, dtype=dtype), probe=False)
     options.pop("maxshape", None)
     dataset = group.create_dataset(name, shape=(shape,), dtype=dtype, **options)
     key = f"{group.name.strip('/')}/{name}"

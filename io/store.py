@@ -215,8 +215,8 @@ def decode_strings(raw: np.ndarray) -> np.ndarray:
 def _put(group: h5py.Group, name: str, data) -> None:
     """Create one dataset: chunked and compressed when large, with units and description."""
     data = np.asarray(data)
-    if data.dtype.kind == "U":
-        encoded = encode_strings(data)
+    if data.dtype.kind in "US":         # UTF-8 text (bytes are taken as already encoded)
+        encoded = encode_strings(data) if data.dtype.kind == "U" else data
         data = encoded.view(h5py.string_dtype("utf-8", encoded.dtype.itemsize))
     dataset = group.create_dataset(name, data=data, **dataset_options(data))
     key = f"{group.name.strip('/')}/{name}"
@@ -286,7 +286,7 @@ def _write_findings(group: h5py.Group, findings: list, summary: dict) -> None:
         group.attrs[key] = value
 
 
-def _root_attrs(solution: Solution, input_path) -> dict:
+def _root_attrs(solution: Solution, input_path, input_sha256=None) -> dict:
     net = solution.network
     attrs = {
         "layout": "ohmgraph solution",
@@ -307,16 +307,17 @@ def _root_attrs(solution: Solution, input_path) -> dict:
         "notes": _string_list(solution.notes),
         "method_reason": str(solution.method_reason),
     }
-    if solution.system is not None:
-        attrs["unknowns"] = int(solution.system.n_unknowns)
+    if solution.unknowns is not None:
+        attrs["unknowns"] = int(solution.unknowns)
     if input_path is not None:
         attrs["input_file"] = Path(input_path).name
-        attrs["input_sha256"] = file_sha256(input_path)
+        attrs["input_sha256"] = (file_sha256(input_path) if input_sha256 is None
+                                 else input_sha256.result())
     return attrs
 
 
 def write_solution(path, solution: Solution, *, input_path=None, force: bool = False,
-                   extra: dict | None = None) -> float:
+                   extra: dict | None = None, input_sha256=None) -> float:
     """Store a solution in a new HDF5 file, atomically.
 
     Parameters
@@ -327,6 +328,9 @@ def write_solution(path, solution: Solution, *, input_path=None, force: bool = F
         From :func:`ohmgraph.engine.solve`; its ``timings`` are stored in ``/timings``.
     input_path : str or Path, optional
         The network file the solution came from; its name and SHA-256 are recorded.
+    input_sha256 : concurrent.futures.Future, optional
+        That file's SHA-256 (:func:`file_sha256`) being computed in another thread since the
+        file was read; by default it is computed here.
     force : bool
         Replace an existing file.
     extra : dict, optional
@@ -345,7 +349,7 @@ def write_solution(path, solution: Solution, *, input_path=None, force: bool = F
     """
     start = time.perf_counter()
     net = solution.network
-    root_attrs = _root_attrs(solution, input_path)
+    root_attrs = _root_attrs(solution, input_path, input_sha256)
     try:
         with (atomic_output(path, force) as temporary,
               create_hdf5(temporary, track_order=True, **FILE_OPTIONS) as h5):
@@ -356,7 +360,7 @@ def write_solution(path, solution: Solution, *, input_path=None, force: bool = F
             _put(nodes, "voltage", solution.node_voltage)
             branches = h5.create_group("branches")
             _put(branches, "name", net.branch_names)
-            _put(branches, "kind", np.array(KIND_LETTERS)[net.kind])
+            _put(branches, "kind", np.array(KIND_LETTERS, "S1")[net.kind])
             _put(branches, "from", net.from_node)
             _put(branches, "to", net.to_node)
             _put(branches, "value", net.value)

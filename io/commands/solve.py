@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import time
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import replace
 
 from ohmgraph.engine.drop import DEFAULT_THRESHOLDS, supply_drop
@@ -165,6 +166,11 @@ def run(args) -> int:
         return EXIT_FAILED
 
     checkpoint("solve")
+    # The input's SHA-256 (provenance) in another thread while the solver runs on this one:
+    # hashlib releases the interpreter lock and the file is still in the page cache.
+    hashing = ThreadPoolExecutor(1)
+    input_sha256 = hashing.submit(file_sha256, args.network)
+    hashing.shutdown(wait=False)
     feedback.stage(f"checked in {format_seconds(check_seconds)}; assembling, choosing the solver "
                    f"({args.method}), setting it up and solving", net.n_nodes)
     try:
@@ -175,6 +181,7 @@ def run(args) -> int:
         raise SolverError(f"{args.network}: {error}") from error
     solution.timings = {"read": read_seconds, **solution.timings, "check": check_seconds}
     solution.notes += notes
+    solution.release_solver()           # nothing here solves again: free it before storing
     start = time.perf_counter()
     drop = supply_drop(net, solution.node_voltage, nominal=args.nominal,
                        thresholds=args.drop_thresholds)
@@ -184,7 +191,7 @@ def run(args) -> int:
     feedback.stage(f"solved ({solution.method}, relative residual "
                    f"{solution.relative_residual:.1e}); writing {args.output}", net.n_nodes)
     store_seconds = write_solution(args.output, solution, input_path=args.network,
-                                   force=args.force, extra=extra)
+                                   force=args.force, extra=extra, input_sha256=input_sha256)
     summary = solution_summary(solution, {"store": store_seconds}, drop)
     if args.json:
         print(dumps({"output": str(args.output), **summary}))
