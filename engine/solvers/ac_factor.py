@@ -75,7 +75,7 @@ def split_kernel(indptr, indices, data):
     every off-diagonal entry is nonpositive (a grounded Laplacian's are)."""
     n = indptr.size - 1
     ptr = np.zeros(n + 1, np.int64)
-    idx = np.empty(indices.size, np.int64)
+    idx = np.empty(indices.size, np.int32)
     weights = np.empty(indices.size, np.float64)
     excess = np.empty(n, np.float64)
     laplacian = True
@@ -173,7 +173,7 @@ def factor_kernel(indptr, indices, weights, excess, state0):
     state = np.empty(1, np.uint64)
     state[0] = state0
     capacity = indices.size + n + 16
-    edge = np.empty((capacity, 2), np.int64)
+    edge = np.empty((capacity, 2), np.int32)
     weight = np.empty(capacity, np.float64)
     head = np.full(n, -1, np.int64)
     tail = np.full(n, -1, np.int64)
@@ -200,8 +200,8 @@ def factor_kernel(indptr, indices, weights, excess, state0):
     position = np.empty(n, np.int64)
     order = np.empty(n, np.int64)
     colptr = np.zeros(n + 1, np.int64)
-    rows = np.empty(indices.size + n, np.int64)
-    values = np.empty(indices.size + n, np.float64)
+    rows = np.empty(indices.size + n, np.int32)
+    values = np.empty(indices.size + n, np.float32)
     pivots = np.empty(n, np.float64)
     near = np.empty(16, np.int64)
     near_w = np.empty(16, np.float64)
@@ -292,7 +292,7 @@ def factor_kernel(indptr, indices, weights, excess, state0):
             for i in range(1, count):
                 near_w[i] += near_w[i - 1]
             if used + 2 * count > edge.shape[0]:
-                bigger = np.empty((2 * (used + 2 * count), 2), np.int64)
+                bigger = np.empty((2 * (used + 2 * count), 2), np.int32)
                 bigger[:used] = edge[:used]
                 edge = bigger
                 weight = _grow(weight, 2 * (used + 2 * count))
@@ -343,10 +343,9 @@ def factor_kernel(indptr, indices, weights, excess, state0):
                 kept += 1
         n_live = kept
         rnd += 1
-    compact_rows = np.empty(total, np.int32)
     for e in range(total):
-        compact_rows[e] = position[rows[e]]
-    return order, colptr, compact_rows, values[:total].astype(np.float32), pivots
+        rows[e] = position[rows[e]]
+    return order, colptr, rows[:total].copy(), values[:total].copy(), pivots
 
 
 @numba.njit(cache=True, nogil=True)

@@ -24,7 +24,9 @@ predicted from ``nnz(A)``: a factorisation cost per entry and, per right-hand si
 count that grows with the digits asked for (``AC_ITERATIONS_PER_DECADE`` times
 ``-log10(rtol)``) times a cost per entry and iteration. The iterative candidate is the cheaper of
 ``amg-cg`` and ``ac-cg`` that fits the budget; it stands against ``direct`` as ``amg-cg`` alone
-did before.
+did before. When the iterative candidate (at the floor complexity) is predicted cheaper than
+the least a factorisation could cost (:func:`direct_floor`: its analysis and per-entry terms),
+on at least ``SCREEN_MIN_UNKNOWNS`` unknowns, neither the screen nor the analysis is made.
 
 The choice is a :class:`Choice`: the method, the reason in words and the numbers behind it, so a
 caller can show and store why a method was used.
@@ -134,6 +136,15 @@ def direct_prediction(matrix, factor_nonzeros: float, flops: float, solves: int)
                + solves * (SOLVE_SECONDS_PER_FACTOR_ENTRY * factor_nonzeros
                            + SOLVE_SECONDS_PER_UNKNOWN * n))
     return seconds, DIRECT_BYTES_PER_FACTOR_ENTRY * factor_nonzeros + DIRECT_BYTES_PER_ENTRY * entries
+
+
+def direct_floor(matrix, solves: int) -> float:
+    """The least ``direct`` can cost, its analysis included, whatever the factor: the
+    per-entry terms, and per right-hand side a factor of at least ``nnz(A) / 2`` entries."""
+    n, entries = matrix.shape[0], matrix.nnz
+    return ((ANALYSIS_SECONDS_PER_ENTRY + FACTOR_SECONDS_PER_ENTRY) * entries
+            + solves * (SOLVE_SECONDS_PER_FACTOR_ENTRY * entries / 2
+                        + SOLVE_SECONDS_PER_UNKNOWN * n))
 
 
 def operator_complexity(matrix, factor_nonzeros: float | None = None,
@@ -265,6 +276,15 @@ def choose(matrix, solves: int = 1, memory_budget: float | None = None,
                  "memory_budget_bytes": budget if math.isfinite(budget) else None}
     laplacian = grounded_laplacian(matrix)
     _, cheapest, _ = _iterative(matrix, solves, rtol, COMPLEXITY_FLOOR, laplacian, math.inf, {})
+    floor = direct_floor(matrix, solves)
+    if analysis is None and n >= SCREEN_MIN_UNKNOWNS:
+        quick = dict(predicted, direct_floor_seconds=floor)
+        iterative = _iterative(matrix, solves, rtol, COMPLEXITY_FLOOR, laplacian, budget, quick)
+        method, seconds, needed = iterative
+        if seconds < floor and needed <= budget:
+            return Choice(method, f"predicted {seconds:.3g} s for {solves} right-hand side(s), "
+                          f"less than a factorisation's least ({floor:.3g} s: its analysis and "
+                          "a pass over the matrix)", quick)
     if (analysis is None and ANALYSIS_SECONDS_PER_ENTRY * entries > SCREEN_SHARE * cheapest
             and n >= SCREEN_MIN_UNKNOWNS):
         sample = sampled_factor(matrix)
