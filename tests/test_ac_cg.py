@@ -13,10 +13,10 @@ from ohmgraph.datasets.generators import grid2d
 from ohmgraph.engine import solve
 from ohmgraph.engine.session import SolveSession
 from ohmgraph.engine.solvers.ac_cg import AcCgSolver
-from ohmgraph.engine.solvers.ac_factor import (apply_kernel, apply_reference, factor_kernel,
-                                               factor_matrix, factor_reference,
-                                               grounded_laplacian_kernel, inverse_pivots,
-                                               seed_state, split_kernel, split_laplacian)
+from ohmgraph.engine.solvers.ac_factor import (apply_reference, factor_kernel, factor_matrix,
+                                               factor_reference, grounded_laplacian_kernel,
+                                               inverse_pivots, permute_kernel, seed_state,
+                                               split_kernel, split_laplacian, sweep_kernel)
 
 
 def laplacian(n: int, edges: np.ndarray, weights: np.ndarray) -> sp.csr_matrix:
@@ -68,10 +68,16 @@ def test_kernel_and_reference_give_the_same_factor_and_preconditioner(name, matr
     for got, expected in zip(fast, plain):
         np.testing.assert_array_equal(got, expected)
     r = np.random.default_rng(seed).normal(size=matrix.shape[0])
-    out = np.empty_like(r)
     order, colptr, rows, values, pivots = fast
-    apply_kernel(colptr, rows, values, inverse_pivots(pivots), order, r, out, np.empty_like(r))
+    swept = np.empty_like(r)
+    dot = sweep_kernel(colptr, rows, values, inverse_pivots(pivots), r[order], swept)
+    out = np.empty_like(r)
+    out[order] = swept
     np.testing.assert_array_equal(out, apply_reference(colptr, rows, values, pivots, order, r))
+    np.testing.assert_allclose(dot, r @ out, rtol=1e-12)
+    ptr, idx, val = permute_kernel(matrix.indptr, matrix.indices, matrix.data, order)
+    permuted = sp.csr_matrix((val, idx, ptr), shape=matrix.shape)
+    np.testing.assert_array_equal(permuted.toarray(), matrix.toarray()[order][:, order])
     # the preconditioner is the inverse of the factor's product (float32 values kept exactly)
     product = factor_matrix(colptr, rows, values.astype(np.float64), pivots, order)
     np.testing.assert_allclose(product @ out, r, atol=1e-9 * np.abs(r).max())

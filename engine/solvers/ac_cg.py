@@ -13,49 +13,44 @@ import numba
 import numpy as np
 import scipy.sparse.linalg as spla
 
-from .ac_factor import apply_kernel, factor_kernel, inverse_pivots, seed_state, split_kernel
+from .ac_factor import (factor_kernel, inverse_pivots, permute_kernel, seed_state, split_kernel,
+                        sweep_kernel)
 from .base import DEFAULT_RTOL, SPDSolver
 
 DEFAULT_SEED = 1
 
 
 @numba.njit(cache=True, nogil=True)
-def _matvec(indptr, indices, data, x, out):
-    for i in range(indptr.size - 1):
-        total = 0.0
-        for e in range(indptr[i], indptr[i + 1]):
-            total += data[e] * x[indices[e]]
-        out[i] = total
-
-
-@numba.njit(cache=True, nogil=True)
-def pcg_kernel(indptr, indices, data, colptr, rows, values, pivots, order, b, x, target,
+def pcg_kernel(indptr, indices, data, colptr, rows, values, inverse, b, x, target,
                max_iterations):
     """Preconditioned conjugate gradient from ``x`` (updated in place) until the recurrence
-    residual norm is at most ``target``; returns the iterations made."""
+    residual norm is at most ``target``; returns the iterations made. The matrix, ``b`` and
+    ``x`` are in elimination order, so the factor's sweeps need no gather or scatter."""
     n = b.size
     r = np.empty(n)
     z = np.empty(n)
     p = np.empty(n)
-    q = np.empty(n)
-    work = np.empty(n)
-    _matvec(indptr, indices, data, x, q)
     norm2 = 0.0
     for i in range(n):
-        r[i] = b[i] - q[i]
+        total = 0.0
+        for e in range(indptr[i], indptr[i + 1]):
+            total += data[e] * x[indices[e]]
+        r[i] = b[i] - total
         norm2 += r[i] * r[i]
     if np.sqrt(norm2) <= target:
         return 0
-    apply_kernel(colptr, rows, values, pivots, order, r, z, work)
-    rho = 0.0
+    rho = sweep_kernel(colptr, rows, values, inverse, r, z)
     for i in range(n):
         p[i] = z[i]
-        rho += r[i] * z[i]
+    q = z                                   # z is free until the next sweep
     for iteration in range(1, max_iterations + 1):
-        _matvec(indptr, indices, data, p, q)
         pq = 0.0
         for i in range(n):
-            pq += p[i] * q[i]
+            total = 0.0
+            for e in range(indptr[i], indptr[i + 1]):
+                total += data[e] * p[indices[e]]
+            q[i] = total
+            pq += p[i] * total
         if pq <= 0.0:
             return iteration
         alpha = rho / pq
@@ -66,10 +61,7 @@ def pcg_kernel(indptr, indices, data, colptr, rows, values, pivots, order, b, x,
             norm2 += r[i] * r[i]
         if np.sqrt(norm2) <= target:
             return iteration
-        apply_kernel(colptr, rows, values, pivots, order, r, z, work)
-        rho_new = 0.0
-        for i in range(n):
-            rho_new += r[i] * z[i]
+        rho_new = sweep_kernel(colptr, rows, values, inverse, r, z)
         beta = rho_new / rho
         rho = rho_new
         for i in range(n):
@@ -107,27 +99,25 @@ class AcCgSolver(SPDSolver):
         super().__init__(matrix, rtol)
 
     def _setup(self) -> None:
-        n = self.matrix.shape[0]
-        self._indptr = self.matrix.indptr
-        self._indices = self.matrix.indices
-        self._data = self.matrix.data
-        if n == 0:
-            self.factor_nonzeros = 0
+        self.factor_nonzeros = 0
+        if self.matrix.shape[0] == 0:
             return
-        self.matrix.sort_indices()
-        indptr, indices, weights, excess, _ = split_kernel(self._indptr, self._indices, self._data)
+        matrix = self.matrix
+        parts = split_kernel(matrix.indptr, matrix.indices, matrix.data)[:4]
         (self._order, self._colptr, self._rows, self._values,
-         pivots) = factor_kernel(indptr, indices, weights, excess,
-                                 np.uint64(seed_state(self.seed)))
-        self._pivots = inverse_pivots(pivots)
+         pivots) = factor_kernel(*parts, np.uint64(seed_state(self.seed)))
+        del parts
+        self._inverse = inverse_pivots(pivots)
+        self._permuted = permute_kernel(matrix.indptr, matrix.indices, matrix.data, self._order)
         self.factor_nonzeros = int(self._rows.size)
 
     def apply(self, r: np.ndarray) -> np.ndarray:
-        """The preconditioner applied to one vector."""
-        r = np.ascontiguousarray(r, dtype=np.float64)
-        out = np.empty_like(r)
-        apply_kernel(self._colptr, self._rows, self._values, self._pivots, self._order, r, out,
-                     np.empty_like(r))
+        """The preconditioner applied to one vector (in the original numbering)."""
+        z = np.empty(r.shape[0])
+        sweep_kernel(self._colptr, self._rows, self._values, self._inverse,
+                     np.ascontiguousarray(r, dtype=np.float64)[self._order], z)
+        out = np.empty_like(z)
+        out[self._order] = z
         return out
 
     def preconditioner(self, matrix=None) -> spla.LinearOperator:
@@ -139,16 +129,19 @@ class AcCgSolver(SPDSolver):
     def _solve_column(self, b, x0=None):
         if not np.any(b):
             return np.zeros_like(b), 0
-        x = np.zeros_like(b) if x0 is None else np.array(x0, dtype=np.float64)
+        order = self._order
+        bp = b[order]
+        xp = np.zeros_like(b) if x0 is None else np.asarray(x0, dtype=np.float64)[order]
         norm_b = float(np.linalg.norm(b))
         iterations = 0
         # Recurrence residual to half the target, then check the true one (they drift apart);
         # a second round restarts from the current iterate when the true one falls short.
         for _ in range(2):
-            iterations += pcg_kernel(self._indptr, self._indices, self._data, self._colptr,
-                                     self._rows, self._values, self._pivots, self._order,
-                                     b, x, 0.5 * self.rtol * norm_b,
+            iterations += pcg_kernel(*self._permuted, self._colptr, self._rows, self._values,
+                                     self._inverse, bp, xp, 0.5 * self.rtol * norm_b,
                                      self.max_iterations - iterations)
+            x = np.empty_like(xp)
+            x[order] = xp
             if (np.linalg.norm(self.matrix @ x - b) <= self.rtol * norm_b
                     or iterations >= self.max_iterations):
                 break

@@ -349,24 +349,48 @@ def factor_kernel(indptr, indices, weights, excess, state0):
 
 
 @numba.njit(cache=True, nogil=True)
-def apply_kernel(colptr, rows, values, inverse, order, r, out, work):
-    """``out = (I - C)^-T D^-1 (I - C)^-1 r`` (``inverse``: :func:`inverse_pivots`;
-    ``work``: scratch of length n)."""
-    n = order.size
+def sweep_kernel(colptr, rows, values, inverse, r, z):
+    """``z = (I - C)^-T D^-1 (I - C)^-1 r`` with ``r`` and ``z`` in elimination order
+    (``inverse``: :func:`inverse_pivots`); returns ``r . z`` (formed in the backward sweep)."""
+    n = r.size
     for t in range(n):
-        work[t] = r[order[t]]
+        z[t] = r[t]
     for t in range(n):
-        y = work[t]
+        y = z[t]
         for e in range(colptr[t], colptr[t + 1]):
-            work[rows[e]] += values[e] * y
-        work[t] = y * inverse[t]
+            z[rows[e]] += values[e] * y
+        z[t] = y * inverse[t]
+    dot = 0.0
     for t in range(n - 1, -1, -1):
-        y = work[t]
+        y = z[t]
         for e in range(colptr[t], colptr[t + 1]):
-            y += values[e] * work[rows[e]]
-        work[t] = y
+            y += values[e] * z[rows[e]]
+        z[t] = y
+        dot += r[t] * y
+    return dot
+
+
+@numba.njit(cache=True, nogil=True)
+def permute_kernel(indptr, indices, data, order):
+    """The CSR matrix ``A[order][:, order]`` (the system in elimination order)."""
+    n = order.size
+    position = np.empty(n, np.int64)
     for t in range(n):
-        out[order[t]] = work[t]
+        position[order[t]] = t
+    ptr = np.zeros(n + 1, np.int64)
+    for t in range(n):
+        v = order[t]
+        ptr[t + 1] = ptr[t] + indptr[v + 1] - indptr[v]
+    idx = np.empty(ptr[n], np.int32)
+    val = np.empty(ptr[n], np.float64)
+    for t in range(n):
+        v = order[t]
+        k = ptr[t]
+        for e in range(indptr[v], indptr[v + 1]):
+            idx[k] = position[indices[e]]
+            val[k] = data[e]
+            k += 1
+    return ptr, idx, val
 
 
 # --------------------------------------------------------------------- plain-Python reference
@@ -458,7 +482,8 @@ def inverse_pivots(pivots) -> np.ndarray:
 
 
 def apply_reference(colptr, rows, values, pivots, order, r) -> np.ndarray:
-    """``(I - C)^-T D^-1 (I - C)^-1 r`` by the same loops as :func:`apply_kernel`."""
+    """``(I - C)^-T D^-1 (I - C)^-1 r`` in the original numbering, by the same loops as
+    :func:`sweep_kernel`."""
     n = len(order)
     values = [float(v) for v in values]
     inverse = [float(v) for v in inverse_pivots(pivots)]
