@@ -139,10 +139,12 @@ def _grow(array, needed):
     return bigger
 
 
-# Columns of the kernel's per-vertex record and of its per-slot record.
-_DEGREE, _SEEN, _ROUND = 0, 1, 2
-_NEIGHBOUR, _NEXT = 0, 1
+# Columns of the kernel's per-vertex record (64 bytes: one cache line). Each vertex's edges
+# (neighbour, weight) lie together in a pool, from START, LENGTH of them in ROOM slots; a full
+# list moves to the pool's end with twice the room, leaving its dead edges behind.
+_DEGREE, _SEEN, _ROUND, _START, _LENGTH, _ROOM = 0, 1, 2, 3, 4, 5
 _GONE = -1
+_SLACK = 2
 
 
 @numba.njit(cache=True, nogil=True)
@@ -172,26 +174,22 @@ def factor_kernel(indptr, indices, weights, excess, state0):
     n = indptr.size - 1
     state = np.empty(1, np.uint64)
     state[0] = state0
-    capacity = indices.size + n + 16
-    edge = np.empty((capacity, 2), np.int32)
-    weight = np.empty(capacity, np.float64)
-    head = np.full(n, -1, np.int64)
-    tail = np.full(n, -1, np.int64)
-    node = np.empty((n, 3), np.int64)
+    neighbour = np.empty(indices.size + _SLACK * n + 16, np.int32)
+    weight = np.empty(neighbour.size, np.float64)
+    node = np.empty((n, 8), np.int64)
+    used = 0
     for v in range(n):
         first, last = indptr[v], indptr[v + 1]
         for e in range(first, last):
-            edge[e, _NEIGHBOUR] = indices[e]
-            edge[e, _NEXT] = e + 1
-            weight[e] = weights[e]
-        if last > first:
-            edge[last - 1, _NEXT] = -1
-            head[v], tail[v] = first, last - 1
+            neighbour[used + e - first] = indices[e]
+            weight[used + e - first] = weights[e]
+        node[v, _START] = used
+        node[v, _LENGTH] = last - first
+        node[v, _ROOM] = last - first + _SLACK
+        used += last - first + _SLACK
         node[v, _DEGREE] = last - first
         node[v, _SEEN] = -2
         node[v, _ROUND] = -1
-    used = indices.size
-    free = -1
     excess = np.maximum(excess, 0.0)
     original = excess.copy()              # each row's diagonal, the scale of its pivot
     for v in range(n):
@@ -224,10 +222,9 @@ def factor_kernel(indptr, indices, weights, excess, state0):
             # gather the live edges, merging multi-edges (summed in list order); a neighbour
             # seen in this step has SEEN = total + its place
             count = 0
-            e = head[v]
-            last = -1
-            while e >= 0:
-                u = edge[e, _NEIGHBOUR]
+            start = node[v, _START]
+            for e in range(start, start + node[v, _LENGTH]):
+                u = neighbour[e]
                 seen = node[u, _SEEN]
                 if seen >= total:
                     near_w[seen - total] += weight[e]
@@ -243,12 +240,7 @@ def factor_kernel(indptr, indices, weights, excess, state0):
                     near_w[count] = weight[e]
                     times[count] = 1
                     count += 1
-                last = e
-                e = edge[e, _NEXT]
-            if last >= 0:                  # recycle the list's slots
-                edge[last, _NEXT] = free
-                free = head[v]
-            head[v] = -1
+            node[v, _LENGTH] = 0
             # sort by (weight, vertex) ascending
             if count <= _INSERTION_SORT:
                 for i in range(1, count):
@@ -291,11 +283,6 @@ def factor_kernel(indptr, indices, weights, excess, state0):
             # one sampled edge per neighbour but the last; cumulative weights in near_w
             for i in range(1, count):
                 near_w[i] += near_w[i - 1]
-            if used + 2 * count > edge.shape[0]:
-                bigger = np.empty((2 * (used + 2 * count), 2), np.int32)
-                bigger[:used] = edge[:used]
-                edge = bigger
-                weight = _grow(weight, 2 * (used + 2 * count))
             for i in range(count - 1):
                 below = near_w[i]
                 rest = near_w[count - 1] - below
@@ -310,32 +297,29 @@ def factor_kernel(indptr, indices, weights, excess, state0):
                         hi = mid
                 a, b = near[i], near[lo]
                 new_w = own * rest / big_w
-                if free >= 0:
-                    slot, free = free, edge[free, _NEXT]
-                else:
-                    slot, used = used, used + 1
-                edge[slot, _NEIGHBOUR] = b
-                edge[slot, _NEXT] = -1
-                weight[slot] = new_w
-                if head[a] < 0:
-                    head[a] = slot
-                else:
-                    edge[tail[a], _NEXT] = slot
-                tail[a] = slot
-                if free >= 0:
-                    slot, free = free, edge[free, _NEXT]
-                else:
-                    slot, used = used, used + 1
-                edge[slot, _NEIGHBOUR] = a
-                edge[slot, _NEXT] = -1
-                weight[slot] = new_w
-                if head[b] < 0:
-                    head[b] = slot
-                else:
-                    edge[tail[b], _NEXT] = slot
-                tail[b] = slot
-                node[a, _DEGREE] += 1
-                node[b, _DEGREE] += 1
+                for end, other in ((a, b), (b, a)):
+                    length = node[end, _LENGTH]
+                    if length == node[end, _ROOM]:
+                        room = 2 * length + _SLACK
+                        if used + room > neighbour.size:
+                            neighbour = _grow(neighbour, used + room)
+                            weight = _grow(weight, neighbour.size)
+                        start = node[end, _START]
+                        kept = used
+                        for e in range(start, start + length):
+                            if node[neighbour[e], _SEEN] != _GONE:
+                                neighbour[kept] = neighbour[e]
+                                weight[kept] = weight[e]
+                                kept += 1
+                        node[end, _START] = used
+                        length = kept - used
+                        node[end, _ROOM] = room
+                        used += room
+                    slot = node[end, _START] + length
+                    neighbour[slot] = other
+                    weight[slot] = new_w
+                    node[end, _LENGTH] = length + 1
+                    node[end, _DEGREE] += 1
         kept = 0
         for scan in range(n_live):
             if node[live[scan], _SEEN] != _GONE:
