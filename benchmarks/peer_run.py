@@ -55,6 +55,7 @@ def _pyamg(A, b):
 
 
 SOLVERS = {"solve_spd": (_solve_spd, "ohmgraph.engine.session"), "apxchol": (_apxchol, "apxchol"),
+           "apxchol-1t": (_apxchol, "apxchol"),
            "approx-chol": (_approx_chol, "approx_chol"), "pyamg": (_pyamg, "pyamg")}
 
 

@@ -67,6 +67,9 @@ def test_kernel_and_reference_give_the_same_factor_and_preconditioner(name, matr
     plain = factor_reference(*parts, seed)
     for got, expected in zip(fast, plain):
         np.testing.assert_array_equal(got, expected)
+    # a pool with no room to spare is compacted (and grown) often: the same factor
+    for got, expected in zip(factor_kernel(*parts, np.uint64(seed_state(seed)), 1.0), plain):
+        np.testing.assert_array_equal(got, expected)
     r = np.random.default_rng(seed).normal(size=matrix.shape[0])
     order, colptr, rows, values, pivots = fast
     swept = np.empty_like(r)

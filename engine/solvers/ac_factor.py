@@ -139,12 +139,38 @@ def _grow(array, needed):
     return bigger
 
 
-# Columns of the kernel's per-vertex record (64 bytes: one cache line). Each vertex's edges
-# (neighbour, weight) lie together in a pool, from START, LENGTH of them in ROOM slots; a full
-# list moves to the pool's end with twice the room, leaving its dead edges behind.
+# Columns of the kernel's per-vertex record (32 bytes: within one cache line). Each vertex's
+# edges (neighbour, weight) lie together in a pool, from START, LENGTH of them in ROOM slots,
+# after a header slot (owner, room); a full list moves to the pool's end with twice the room,
+# leaving its dead edges behind, and a full pool is compacted in place (_compact).
 _DEGREE, _SEEN, _ROUND, _START, _LENGTH, _ROOM = 0, 1, 2, 3, 4, 5
 _GONE = -1
 _SLACK = 2
+_POOL = 1.5          # pool size over the initial lists, headers and slack
+
+
+@numba.njit(cache=True, nogil=True)
+def _compact(node, neighbour, weight, used):
+    """Slide the live vertices' lists to the front of the pool, in pool order, each keeping at
+    most ``_SLACK`` free slots; returns the new end."""
+    p = 0
+    q = 0
+    while p < used:
+        v = neighbour[p]
+        room = np.int64(weight[p])
+        if node[v, _SEEN] != _GONE and node[v, _START] == p + 1:
+            length = node[v, _LENGTH]
+            kept_room = min(room, length + _SLACK)
+            neighbour[q] = v
+            weight[q] = kept_room
+            for k in range(1, length + 1):
+                neighbour[q + k] = neighbour[p + k]
+                weight[q + k] = weight[p + k]
+            node[v, _START] = q + 1
+            node[v, _ROOM] = kept_room
+            q += kept_room + 1
+        p += room + 1
+    return q
 
 
 @numba.njit(cache=True, nogil=True)
@@ -164,8 +190,9 @@ def _threshold(node, live, n_live, histogram):
 
 
 @numba.njit(cache=True, nogil=True)
-def factor_kernel(indptr, indices, weights, excess, state0):
-    """Approximate Cholesky factor (see the module docstring).
+def factor_kernel(indptr, indices, weights, excess, state0, pool=_POOL):
+    """Approximate Cholesky factor (see the module docstring); ``pool``: the edge pool's size
+    over the initial lists (a smaller one is compacted more often; the factor is the same).
 
     Returns ``order`` (vertex eliminated at each step), ``colptr``, ``rows`` (elimination
     positions of the neighbours, int32), ``values`` (``w_u / W``, float32) and ``pivots``
@@ -174,12 +201,15 @@ def factor_kernel(indptr, indices, weights, excess, state0):
     n = indptr.size - 1
     state = np.empty(1, np.uint64)
     state[0] = state0
-    neighbour = np.empty(indices.size + _SLACK * n + 16, np.int32)
+    neighbour = np.empty(int(pool * (indices.size + (_SLACK + 1) * n)) + 16, np.int32)
     weight = np.empty(neighbour.size, np.float64)
-    node = np.empty((n, 8), np.int64)
+    node = np.empty((n, 8), np.int32)
     used = 0
     for v in range(n):
         first, last = indptr[v], indptr[v + 1]
+        neighbour[used] = v
+        weight[used] = last - first + _SLACK
+        used += 1
         for e in range(first, last):
             neighbour[used + e - first] = indices[e]
             weight[used + e - first] = weights[e]
@@ -301,9 +331,14 @@ def factor_kernel(indptr, indices, weights, excess, state0):
                     length = node[end, _LENGTH]
                     if length == node[end, _ROOM]:
                         room = 2 * length + _SLACK
-                        if used + room > neighbour.size:
-                            neighbour = _grow(neighbour, used + room)
-                            weight = _grow(weight, neighbour.size)
+                        if used + room + 1 > neighbour.size:
+                            used = _compact(node, neighbour, weight, used)
+                            if used + room + 1 > 0.75 * neighbour.size:
+                                neighbour = _grow(neighbour, int(pool * (used + room + 1)))
+                                weight = _grow(weight, neighbour.size)
+                        neighbour[used] = end
+                        weight[used] = room
+                        used += 1
                         start = node[end, _START]
                         kept = used
                         for e in range(start, start + length):
