@@ -11,12 +11,14 @@ import scipy.sparse.linalg as spla
 
 from ohmgraph.datasets.generators import grid2d
 from ohmgraph.engine import solve
+from ohmgraph.engine.network import RESISTOR, Network
 from ohmgraph.engine.session import SolveSession
 from ohmgraph.engine.solvers.ac_cg import AcCgSolver
 from ohmgraph.engine.solvers.ac_factor import (apply_reference, factor_kernel, factor_matrix,
                                                factor_reference, grounded_laplacian_kernel,
                                                inverse_pivots, permute_kernel, seed_state,
-                                               split_kernel, split_laplacian, sweep_kernel)
+                                               split_kernel, split_laplacian, sweep_kernel,
+                                               weight_variation_kernel)
 
 
 def laplacian(n: int, edges: np.ndarray, weights: np.ndarray) -> sp.csr_matrix:
@@ -92,6 +94,16 @@ def test_a_different_seed_samples_a_different_factor():
     first = factor_kernel(*parts, np.uint64(seed_state(1)))
     second = factor_kernel(*parts, np.uint64(seed_state(2)))
     assert not (first[3].size == second[3].size and np.array_equal(first[3], second[3]))
+
+
+def test_weight_variation_matches_numpy():
+    matrix = CASES[1][1]
+    rows = np.repeat(np.arange(matrix.shape[0]), np.diff(matrix.indptr))
+    off = (matrix.indices != rows) & (matrix.data != 0)
+    logs, owner = np.log10(np.abs(matrix.data[off])), rows[off]
+    spreads = [logs[owner == v].std() for v in np.unique(owner)]
+    assert weight_variation_kernel(matrix.indptr, matrix.indices, matrix.data, 1) == \
+        pytest.approx(np.mean(spreads), rel=1e-9)
 
 
 def test_split_kernel_matches_scipy():
@@ -178,12 +190,26 @@ def test_same_seed_same_iterates_and_the_seed_is_recorded():
     assert not np.array_equal(x7, AcCgSolver(matrix, 1e-10, seed=1).solve(rhs)[0])
 
 
-def test_auto_picks_ac_cg_for_a_large_grounded_laplacian():
-    net = grid2d(300, 300, pads=9, loads=100, seed=3)
-    session = solve(net, rtol=1e-8).session
+def varied_lattice(side: int):
+    """A lattice whose resistors are log-uniform over two decades (common practice for a
+    network of uneven conductances)."""
+    net = grid2d(side, side, pads=9, loads=100, seed=3)
+    value = net.value.copy()
+    resistors = net.kind == RESISTOR
+    value[resistors] = 10.0 ** np.random.default_rng(4).uniform(-1, 1, int(resistors.sum()))
+    return Network(net.node_labels, net.branch_names, net.kind, net.from_node, net.to_node,
+                   value, net.reference)
+
+
+def test_auto_picks_ac_cg_for_uneven_conductances_and_amg_for_even_ones():
+    session = solve(varied_lattice(300), rtol=1e-8).session
     assert session.method == "ac-cg" and session.stats.seed == 1
     assert session.stats.predicted["ac_seconds"] < session.stats.predicted["amg_seconds"]
     assert session.stats.max_relative_residual <= 1e-8
+    # equal resistors: classical multigrid converges in a few cycles (benchmarks/README.md)
+    even = solve(grid2d(300, 300, pads=9, loads=100, seed=3), rtol=1e-8).session
+    assert even.method == "amg-cg" and even.stats.seed is None
+    assert even.stats.predicted["amg_evenness"] < 0.5
 
 
 def test_session_falls_back_when_ac_cg_misses(monkeypatch):

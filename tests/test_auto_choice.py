@@ -102,16 +102,13 @@ def test_small_world_goes_to_an_iterative_back_end_for_one_right_hand_side():
     # Watts & Strogatz (Nature 393, 440, 1998) shortcuts make the factor fill in heavily.
     matrix = grounded(small_world(70_000, 4, 0.1, seed=1, pads=4, loads=10)).matrix
     choice = choose(matrix, 1, memory_budget=8e9)
-    # a grounded Laplacian: approximate Cholesky is predicted cheaper than the multigrid
-    # ... and it is below the least a factorisation could cost: no analysis is made
-    assert choice.method == "ac-cg" and choice.analysis is None
-    assert (choice.predicted["direct_floor_seconds"] > choice.predicted["ac_seconds"]
-            and choice.predicted["amg_seconds"] > choice.predicted["ac_seconds"])
-    # with the analysis at hand the factor fills in heavily, dearer still
-    analysed = choose(matrix, 1, memory_budget=8e9, analysis=column_counts(matrix))
-    assert analysed.method == "ac-cg"
-    assert analysed.predicted["factor_nonzeros"] > 20 * matrix.nnz
-    assert analysed.predicted["direct_seconds"] > analysed.predicted["ac_seconds"]
+    # a grounded Laplacian of even conductances: the analysis is made (amg-cg's floor is below
+    # ac-cg's prediction), it shows heavy fill and a high multigrid complexity, and ac-cg wins
+    # (measured 0.14 s against 1.09 s for amg-cg and 15 s for direct at rtol 1e-10)
+    assert choice.method == "ac-cg" and choice.analysis is not None
+    assert choice.predicted["factor_nonzeros"] > 20 * matrix.nnz
+    assert (choice.predicted["direct_seconds"] > choice.predicted["amg_seconds"]
+            > choice.predicted["ac_seconds"])
     # ... and to one factorisation for a thousand
     assert choose(matrix, 1000, memory_budget=8e9).method == "direct"
 

@@ -119,6 +119,29 @@ def grounded_laplacian_kernel(indptr, indices, data):
     return True
 
 
+@numba.njit(cache=True, nogil=True)
+def weight_variation_kernel(indptr, indices, data, stride):
+    """Mean over every ``stride``-th row of the standard deviation of ``log10`` of the row's
+    off-diagonal magnitudes (0 for a matrix of equal conductances)."""
+    total = 0.0
+    rows = 0
+    for v in range(0, indptr.size - 1, stride):
+        count = 0
+        mean = 0.0
+        square = 0.0
+        for e in range(indptr[v], indptr[v + 1]):
+            if indices[e] != v and data[e] != 0.0:
+                x = np.log10(abs(data[e]))
+                count += 1
+                mean += x
+                square += x * x
+        if count > 0:
+            mean /= count
+            total += np.sqrt(max(square / count - mean * mean, 0.0))
+            rows += 1
+    return total / rows if rows else 0.0
+
+
 # ----------------------------------------------------------------------------- numba kernel
 @numba.njit(cache=True, nogil=True)
 def _next_uniform(state):

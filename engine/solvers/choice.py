@@ -24,8 +24,8 @@ predicted from ``nnz(A)``: a factorisation cost per entry and, per right-hand si
 count that grows with the digits asked for (``AC_ITERATIONS_PER_DECADE`` times
 ``-log10(rtol)``) times a cost per entry and iteration. The iterative candidate is the cheaper of
 ``amg-cg`` and ``ac-cg`` that fits the budget; it stands against ``direct`` as ``amg-cg`` alone
-did before. When the iterative candidate (at the floor complexity) is predicted cheaper than
-the least a factorisation could cost (:func:`direct_floor`: its analysis and per-entry terms),
+did before. When ac-cg is predicted cheaper than amg-cg at its floor complexity (its least) and
+than the least a factorisation could cost (:func:`direct_floor`: its analysis and per-entry terms),
 on at least ``SCREEN_MIN_UNKNOWNS`` unknowns, neither the screen nor the analysis is made.
 
 The choice is a :class:`Choice`: the method, the reason in words and the numbers behind it, so a
@@ -85,11 +85,26 @@ AMG_BYTES_PER_ENTRY = 20.0              # peak bytes: measured 14-20
 COMPLEXITY_FLOOR = 2.2
 COMPLEXITY_SLOPE = 1.7
 
+# amg-cg is relatively cheaper on matrices of even weights and degrees: ac-cg's prediction is
+# divided by min(1, AMG_EVEN_BASE + AMG_EVEN_SLOPE * irregularity) (amg-cg's own, calibrated
+# on uniform lattices among others, stays), irregularity = the mean within-row
+# standard deviation of log10 conductance + AMG_DEGREE_WEIGHT * (delta - 1) (delta: the degree
+# spread above). Measured (CPU seconds per 10^6 entries, rtol 1e-8, one right-hand side): a
+# uniform lattice (irregularity 0.01) 0.21, the two-layer mesh (0.21) 0.31, the 3-NN graph
+# (0.47) 0.51, the lattice of log-uniform conductances (0.47) 0.49; ac-cg 0.33-0.41 on all four.
+AMG_EVEN_BASE = 0.43
+AMG_EVEN_SLOPE = 1.22
+AMG_DEGREE_WEIGHT = 6.0
+VARIATION_ROWS = 50_000                 # rows sampled for the weight variation
+
 # ac-cg (approximate Cholesky + CG), per entry of A
 AC_SETUP_SECONDS = 2.2e-7
 AC_ITERATION_SECONDS = 4.6e-9
 AC_ITERATIONS_PER_DECADE = 3.9          # 29-31 iterations at rtol 1e-8
-AC_BYTES_PER_ENTRY = 60.0               # the edge pool, the factor and CG's vectors
+# Peak bytes: the edge pool, the factor, the permuted matrix and CG's vectors. Engine solve of
+# a 700 x 700 lattice: ac-cg added 193 MB, amg-cg 212 MB; scaled to amg-cg's model (44 B per
+# entry at the floor complexity).
+AC_BYTES_PER_ENTRY = 40.0
 
 # The screen: used when the analysis would cost more than SCREEN_SHARE of amg-cg's cheapest
 # prediction, on at least SCREEN_MIN_UNKNOWNS unknowns; skips the analysis when the sampled
@@ -167,6 +182,22 @@ def amg_prediction(matrix, solves: int, complexity: float) -> tuple:
     return seconds, AMG_BYTES_PER_ENTRY * work
 
 
+def amg_evenness(matrix) -> float:
+    """The factor (at most 1) by which amg-cg is cheaper, relative to ac-cg, on a matrix of
+    even conductances and degrees (see the constants above)."""
+    from .ac_factor import weight_variation_kernel
+
+    n = matrix.shape[0]
+    if n == 0:
+        return 1.0
+    degree = np.diff(matrix.indptr).astype(np.float64) - 1.0
+    spread = n * float(degree @ degree) / max(float(degree.sum()) ** 2, 1.0)
+    within = weight_variation_kernel(matrix.indptr, matrix.indices, matrix.data,
+                                     max(1, n // VARIATION_ROWS))
+    irregularity = within + AMG_DEGREE_WEIGHT * max(spread - 1.0, 0.0)
+    return min(1.0, AMG_EVEN_BASE + AMG_EVEN_SLOPE * irregularity)
+
+
 def ac_prediction(matrix, solves: int, rtol: float = DEFAULT_RTOL) -> tuple:
     """``(seconds, bytes)`` of the ac-cg factorisation and ``solves`` right-hand sides."""
     iterations = AC_ITERATIONS_PER_DECADE * max(-math.log10(max(rtol, 1e-16)), 1.0)
@@ -182,15 +213,17 @@ def grounded_laplacian(matrix) -> bool:
 
 
 def _iterative(matrix, solves: int, rtol: float, complexity: float, laplacian: bool,
-               budget: float, predicted: dict) -> tuple:
+               budget: float, predicted: dict, evenness: float = 1.0) -> tuple:
     """The cheaper of amg-cg and (for a grounded Laplacian) ac-cg among those within the
     budget: ``(method, seconds, bytes)``, their predictions recorded in ``predicted``; the
     smaller in bytes when neither fits (the caller refuses it)."""
     amg_s, amg_b = amg_prediction(matrix, solves, complexity)
-    predicted.update(amg_seconds=amg_s, amg_bytes=amg_b, amg_complexity=complexity)
+    predicted.update(amg_seconds=amg_s, amg_bytes=amg_b, amg_complexity=complexity,
+                     amg_evenness=evenness)
     candidates = [("amg-cg", amg_s, amg_b)]
     if laplacian:
         ac_s, ac_b = ac_prediction(matrix, solves, rtol)
+        ac_s /= evenness
         predicted.update(ac_seconds=ac_s, ac_bytes=ac_b)
         candidates.append(("ac-cg", ac_s, ac_b))
     fitting = [c for c in candidates if c[2] <= budget]
@@ -275,13 +308,17 @@ def choose(matrix, solves: int = 1, memory_budget: float | None = None,
     predicted = {"unknowns": n, "matrix_nonzeros": entries, "solves": solves,
                  "memory_budget_bytes": budget if math.isfinite(budget) else None}
     laplacian = grounded_laplacian(matrix)
-    _, cheapest, _ = _iterative(matrix, solves, rtol, COMPLEXITY_FLOOR, laplacian, math.inf, {})
+    evenness = amg_evenness(matrix)
+    _, cheapest, _ = _iterative(matrix, solves, rtol, COMPLEXITY_FLOOR, laplacian, math.inf, {},
+                                evenness)
     floor = direct_floor(matrix, solves)
     if analysis is None and n >= SCREEN_MIN_UNKNOWNS:
         quick = dict(predicted, direct_floor_seconds=floor)
-        iterative = _iterative(matrix, solves, rtol, COMPLEXITY_FLOOR, laplacian, budget, quick)
+        iterative = _iterative(matrix, solves, rtol, COMPLEXITY_FLOOR, laplacian, budget, quick,
+                               evenness)
         method, seconds, needed = iterative
-        if seconds < floor and needed <= budget:
+        # amg-cg at the floor complexity is its least; only ac-cg's prediction is final here
+        if method == "ac-cg" and seconds < floor and needed <= budget:
             return Choice(method, f"predicted {seconds:.3g} s for {solves} right-hand side(s), "
                           f"less than a factorisation's least ({floor:.3g} s: its analysis and "
                           "a pass over the matrix)", quick)
@@ -295,7 +332,8 @@ def choose(matrix, solves: int = 1, memory_budget: float | None = None,
             complexity = operator_complexity(matrix, factor_nonzeros, flops)
             screened = dict(predicted, sampled=True, factor_nonzeros=factor_nonzeros,
                             factor_flops=flops, direct_seconds=direct_s, direct_bytes=direct_b)
-            iterative = _iterative(matrix, solves, rtol, complexity, laplacian, budget, screened)
+            iterative = _iterative(matrix, solves, rtol, complexity, laplacian, budget, screened,
+                                   evenness)
             method, seconds, _ = iterative
             if direct_s > SCREEN_MARGIN * seconds or direct_b > SCREEN_MARGIN * budget:
                 _refuse_over_budget(screened, iterative, budget)
@@ -309,7 +347,8 @@ def choose(matrix, solves: int = 1, memory_budget: float | None = None,
     complexity = operator_complexity(matrix, analysis.factor_nonzeros, analysis.flops)
     predicted.update(sampled=False, factor_nonzeros=analysis.factor_nonzeros,
                      factor_flops=analysis.flops, direct_seconds=direct_s, direct_bytes=direct_b)
-    iterative = _iterative(matrix, solves, rtol, complexity, laplacian, budget, predicted)
+    iterative = _iterative(matrix, solves, rtol, complexity, laplacian, budget, predicted,
+                           evenness)
     method, seconds, _ = iterative
     if direct_b > budget:
         _refuse_over_budget(predicted, iterative, budget)
