@@ -219,3 +219,20 @@ def test_session_falls_back_when_ac_cg_misses(monkeypatch):
     x = session.solve(np.ones(matrix.shape[0]))
     assert session.method == "direct" and "fell back" in session.stats.notes[0]
     np.testing.assert_allclose(matrix @ x, np.ones(matrix.shape[0]), atol=1e-9)
+
+
+def test_a_read_only_install_caches_kernels_in_a_temporary_folder(monkeypatch, tmp_path):
+    from ohmgraph.engine import numba_cache
+
+    monkeypatch.delenv("NUMBA_CACHE_DIR", raising=False)
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "cache"))
+    assert numba_cache.ensure_cache_dir(str(tmp_path)) is None         # all writable: untouched
+    monkeypatch.setattr(numba_cache.os, "access", lambda path, mode: False)
+    monkeypatch.setattr("numba.config.CACHE_DIR", "", raising=False)
+    folder = numba_cache.ensure_cache_dir(str(tmp_path))
+    assert folder and numba_cache.os.environ["NUMBA_CACHE_DIR"] == folder
+    import numba
+
+    assert numba.config.CACHE_DIR == folder
+    monkeypatch.setenv("NUMBA_CACHE_DIR", "/elsewhere")                 # the user's choice stays
+    assert numba_cache.ensure_cache_dir(str(tmp_path)) is None
