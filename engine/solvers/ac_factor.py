@@ -142,7 +142,7 @@ def weight_variation_kernel(indptr, indices, data, stride):
     return total / rows if rows else 0.0
 
 
-# ----------------------------------------------------------------------------- numba kernel
+# ------------------------------------------------------------------ the factorisation kernel
 @numba.njit(cache=True, nogil=True)
 def _next_uniform(state):
     x = state[0]
