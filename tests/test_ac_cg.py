@@ -224,7 +224,9 @@ def test_session_falls_back_when_ac_cg_misses(monkeypatch):
 def test_a_read_only_install_caches_kernels_in_a_temporary_folder(monkeypatch, tmp_path):
     from ohmgraph.engine import numba_cache
 
-    monkeypatch.delenv("NUMBA_CACHE_DIR", raising=False)
+    # recorded by monkeypatch (delenv of an absent variable is not), so whatever
+    # ensure_cache_dir sets is undone and no later subprocess inherits it
+    monkeypatch.setenv("NUMBA_CACHE_DIR", "")
     monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "cache"))
     assert numba_cache.ensure_cache_dir(str(tmp_path)) is None         # all writable: untouched
     monkeypatch.setattr(numba_cache.os, "access", lambda path, mode: False)
