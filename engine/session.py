@@ -157,8 +157,10 @@ class SolveSession:
         else:
             self._solver = SOLVERS[method](self.matrix, self.rtol)
         self.stats.setup_seconds += time.perf_counter() - start
-        self.stats.method, self.stats.reason = method, reason
         self.stats.seed = getattr(self._solver, "seed", None)
+        if self.stats.seed is not None:          # stored with the reason, so a run can repeat
+            reason = f"{reason}; seed {self.stats.seed}"
+        self.stats.method, self.stats.reason = method, reason
 
     def solve(self, b: np.ndarray, x0: np.ndarray | None = None) -> np.ndarray:
         """Solve ``A x = b`` for one column (shape ``(n,)``) or a block (shape ``(n, r)``).

@@ -184,6 +184,7 @@ def test_same_seed_same_iterates_and_the_seed_is_recorded():
     np.testing.assert_array_equal(first.node_voltage, second.node_voltage)
     assert first.iterations == second.iterations > 1
     assert first.session.stats.seed == second.session.stats.seed == 1
+    assert first.method_reason.endswith("seed 1")             # stored with the solution
     matrix, rhs = first.system.matrix, first.system.rhs
     x7 = AcCgSolver(matrix, 1e-10, seed=7).solve(rhs)[0]
     np.testing.assert_array_equal(x7, AcCgSolver(matrix, 1e-10, seed=7).solve(rhs)[0])
