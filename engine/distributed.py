@@ -35,7 +35,7 @@ import scipy.sparse as sp
 from .network import CURRENT_SOURCE, RESISTOR
 from .ordering import NodeUnknowns
 from .recovery import forest_currents
-from .solvers.petsc import configure_ksp, petsc_module
+from .solvers.petsc import petsc_module, set_up_ksp
 
 
 @dataclass(frozen=True)
@@ -189,10 +189,7 @@ def solve_distributed(comm, part: BranchPart, own_nodes: NodeUnknowns, node_rang
     timings["assemble"] = time.perf_counter() - start
 
     start = time.perf_counter()
-    ksp = PETSc.KSP().create(comm=world)
-    ksp.setOperators(matrix)
-    preconditioner = configure_ksp(ksp, rtol)
-    ksp.setUp()
+    ksp, preconditioner = set_up_ksp(matrix, rtol, world)
     timings["setup"] = time.perf_counter() - start
     start = time.perf_counter()
     ksp.solve(rhs, x)

@@ -46,7 +46,7 @@ from .resistance.accuracy import (ASSEMBLY, MARGIN, UNIT_ROUNDOFF, ResidualMeter
                                   gamma)
 from .resistance.progress import Tracker, first_then_blocks
 from .resistance.sketch import block_columns
-from .solvers.petsc import configure_ksp, petsc_module
+from .solvers.petsc import petsc_module, set_up_ksp
 
 METHOD = "pair solves"
 # Rounds of the distance exchange after which the (valid, maybe loose) bound is kept as it is.
@@ -238,10 +238,7 @@ def pairs_distributed(comm, part: BranchPart, own_nodes: NodeUnknowns,
     timings["distances"] = time.perf_counter() - start
 
     start = time.perf_counter()
-    ksp = PETSc.KSP().create(comm=world)
-    ksp.setOperators(matrix)
-    preconditioner = configure_ksp(ksp, rtol)
-    ksp.setUp()
+    ksp, preconditioner = set_up_ksp(matrix, rtol, world)
     timings["setup"] = time.perf_counter() - start
 
     start = time.perf_counter()

@@ -15,7 +15,7 @@ import scipy.sparse.linalg as spla
 
 from .ac_factor import (factor_kernel, inverse_pivots, permute_kernel, seed_state, split_kernel,
                         sweep_kernel)
-from .base import DEFAULT_RTOL, SPDSolver
+from .base import DEFAULT_RTOL, SPDSolver, column_by_column
 
 DEFAULT_SEED = 1
 
@@ -149,10 +149,4 @@ class AcCgSolver(SPDSolver):
 
     def _solve(self, b, x0=None):
         b = np.ascontiguousarray(b, dtype=np.float64)
-        if b.ndim == 1:
-            return self._solve_column(b, x0)
-        columns = [self._solve_column(np.ascontiguousarray(b[:, j]),
-                                      None if x0 is None else x0[:, j])
-                   for j in range(b.shape[1])]
-        return (np.column_stack([c[0] for c in columns]),
-                max((c[1] for c in columns), default=0))
+        return column_by_column(self._solve_column, b, x0)

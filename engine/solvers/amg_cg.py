@@ -13,7 +13,7 @@ import numpy as np
 import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 
-from .base import SPDSolver
+from .base import SPDSolver, column_by_column
 
 
 class AmgCgSolver(SPDSolver):
@@ -78,9 +78,4 @@ class AmgCgSolver(SPDSolver):
         return x, count[0]
 
     def _solve(self, b, x0=None):
-        if b.ndim == 1:
-            return self._solve_column(b, x0)
-        columns = [self._solve_column(b[:, j], None if x0 is None else x0[:, j])
-                   for j in range(b.shape[1])]
-        return (np.column_stack([c[0] for c in columns]),
-                max((c[1] for c in columns), default=0))
+        return column_by_column(self._solve_column, b, x0)

@@ -152,6 +152,19 @@ def relative_residual(matrix, x: np.ndarray, b: np.ndarray) -> float:
     return float(np.max(ratio)) if np.size(ratio) else 0.0
 
 
+def column_by_column(solve_column, b: np.ndarray, x0: np.ndarray | None = None
+                     ) -> tuple[np.ndarray, int]:
+    """Solve a 1-D right-hand side, or each column of a 2-D block in turn, with
+    ``solve_column(b, x0) -> (x, iterations)``; return the solution(s) and the most iterations
+    any column took (for back ends without a block method)."""
+    if b.ndim == 1:
+        return solve_column(b, x0)
+    columns = [solve_column(np.ascontiguousarray(b[:, j]), None if x0 is None else x0[:, j])
+               for j in range(b.shape[1])]
+    return (np.column_stack([c[0] for c in columns]),
+            max((c[1] for c in columns), default=0))
+
+
 class SPDSolver(ABC):
     """Set up once for a symmetric positive-definite matrix, solve many right-hand sides."""
 

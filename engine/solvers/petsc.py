@@ -18,7 +18,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .base import SPDSolver
+from .base import SPDSolver, column_by_column
 
 MAX_ITERATIONS = 1000
 
@@ -52,6 +52,17 @@ def configure_ksp(ksp, rtol: float) -> str:
         return "hypre-boomeramg"
     pc.setType(PETSc.PC.Type.GAMG)
     return "gamg"
+
+
+def set_up_ksp(matrix, rtol: float, comm=None):
+    """A KSP on ``comm`` (the matrix's own by default) for ``matrix``, configured by
+    :func:`configure_ksp` and set up; returns it with the preconditioner's name."""
+    PETSc = petsc_module()
+    ksp = PETSc.KSP().create(comm=matrix.getComm() if comm is None else comm)
+    ksp.setOperators(matrix)
+    preconditioner = configure_ksp(ksp, rtol)
+    ksp.setUp()
+    return ksp, preconditioner
 
 
 class PetscSolver(SPDSolver):
@@ -110,13 +121,7 @@ class PetscSolver(SPDSolver):
         return result, iterations
 
     def _solve(self, b, x0=None):
-        if b.ndim == 1:
-            return self._solve_column(b, x0)
-        columns = [self._solve_column(np.ascontiguousarray(b[:, j]),
-                                      None if x0 is None else x0[:, j])
-                   for j in range(b.shape[1])]
-        return (np.column_stack([c[0] for c in columns]),
-                max((c[1] for c in columns), default=0))
+        return column_by_column(self._solve_column, b, x0)
 
     def __del__(self):
         for handle in ("_ksp", "_matrix"):
