@@ -43,7 +43,9 @@ PAIR_ACCURACY = {
     "pair solves": "relative error bound; covers the rounding of the conductances, the solve, "
                    "the residuals and the value",
     "terminal reduction": EXACT_ACCURACY,
-    "factor reach": "relative error estimate (first order, from one check solve's residual)",
+    "factor reach": "relative error bound; covers the rounding of the conductances, the "
+                    "factorisation (its backward error in the energy norm), the forward solve "
+                    "and the value",
     "trivial": "exact",
 }
 
