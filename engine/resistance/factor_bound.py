@@ -46,10 +46,11 @@ import numba
 import numpy as np
 
 from .accuracy import ASSEMBLY, MARGIN, UNIT_ROUNDOFF, gamma
+from .reach import row_counts
 
 # Blocks in which the rows of U are gathered for the symmetry gap (each a pass over U; fewer
-# blocks, more memory: a quarter of U's entries at a time).
-GAP_CHUNKS = 4
+# blocks, more memory: an eighth of U's entries at a time).
+GAP_CHUNKS = 8
 
 
 @numba.njit(cache=True)
@@ -77,18 +78,25 @@ def lu_row_sums(l_ptr, l_idx, l_val, u_ptr, u_idx, u_val):
 
 
 @numba.njit(cache=True)
-def _upper_rows(u_ptr, u_idx, u_val, start, stop):
-    """Rows ``start .. stop-1`` of the CSC matrix ``U`` above its diagonal, as CSR arrays."""
-    count = np.zeros(stop - start + 1, np.int64)
-    for k in range(start + 1, u_ptr.size - 1):
+def _upper_row_starts(u_ptr, u_idx):
+    """``starts[j]``: entries of the rows of CSC ``U`` above its diagonal before row ``j``."""
+    n = u_ptr.size - 1
+    starts = np.zeros(n + 1, np.int64)
+    for k in range(n):
         for q in range(u_ptr[k], u_ptr[k + 1]):
-            j = u_idx[q]
-            if start <= j < stop and j < k:
-                count[j - start + 1] += 1
-    ptr = np.cumsum(count)
-    idx = np.empty(ptr[-1], np.int64)
-    val = np.empty(ptr[-1])
-    fill = ptr[:-1].copy()
+            if u_idx[q] < k:
+                starts[u_idx[q] + 1] += 1
+    return np.cumsum(starts)
+
+
+@numba.njit(cache=True)
+def _upper_rows(u_ptr, u_idx, u_val, starts, start, stop):
+    """Rows ``start .. stop-1`` of the CSC matrix ``U`` above its diagonal (``idx``, ``val``
+    from ``starts[start]`` on)."""
+    base = starts[start]
+    idx = np.empty(starts[stop] - base, np.int32)
+    val = np.empty(starts[stop] - base)
+    fill = starts[start:stop] - base
     for k in range(start + 1, u_ptr.size - 1):
         for q in range(u_ptr[k], u_ptr[k + 1]):
             j = u_idx[q]
@@ -96,7 +104,7 @@ def _upper_rows(u_ptr, u_idx, u_val, start, stop):
                 idx[fill[j - start]] = k
                 val[fill[j - start]] = u_val[q]
                 fill[j - start] += 1
-    return ptr, idx, val
+    return idx, val
 
 
 @numba.njit(cache=True)
@@ -110,11 +118,13 @@ def symmetry_gap(l_ptr, l_idx, l_val, u_ptr, u_idx, u_val, pivot, l_cols, u, bou
     in_u = np.full(n, -1, np.int64)        # position in U's row j of column k, for this j
     owner = np.full(n, -1, np.int64)
     in_l = np.full(n, -1, np.int64)        # row k present in L's column j
+    starts = _upper_row_starts(u_ptr, u_idx)
     for c in range(bounds.size - 1):
         start, stop = bounds[c], bounds[c + 1]
-        ur_ptr, ur_idx, ur_val = _upper_rows(u_ptr, u_idx, u_val, start, stop)
+        ur_idx, ur_val = _upper_rows(u_ptr, u_idx, u_val, starts, start, stop)
         for j in range(start, stop):
-            for q in range(ur_ptr[j - start], ur_ptr[j - start + 1]):
+            first, last = starts[j] - starts[start], starts[j + 1] - starts[start]
+            for q in range(first, last):
                 in_u[ur_idx[q]] = q
                 owner[ur_idx[q]] = j
             for p in range(l_ptr[j], l_ptr[j + 1]):
@@ -127,7 +137,7 @@ def symmetry_gap(l_ptr, l_idx, l_val, u_ptr, u_idx, u_val, pivot, l_cols, u, bou
                 e = abs(scaled - other) * (1.0 + 2.0 * u) + u * abs(scaled)
                 by_row[j] += e
                 by_col[k] += l_cols[j] * e
-            for q in range(ur_ptr[j - start], ur_ptr[j - start + 1]):   # U without L partner
+            for q in range(first, last):                 # U entries without an L partner
                 k = ur_idx[q]
                 if in_l[k] != j:
                     e = abs(ur_val[q])
@@ -159,7 +169,7 @@ def factor_rho(lower, upper, pivot: np.ndarray) -> np.ndarray:
     l_ptr, l_idx, l_val = lower.indptr.astype(np.int64), lower.indices, lower.data
     u_ptr, u_idx, u_val = upper.indptr.astype(np.int64), upper.indices, upper.data
     rows, cols, l_cols = lu_row_sums(l_ptr, l_idx, l_val, u_ptr, u_idx, u_val)
-    row_count = np.bincount(l_idx, minlength=pivot.size)
+    row_count = row_counts(l_idx, pivot.size)
     col_count = np.diff(u_ptr)
     # blocks of rows holding about equal shares of U's entries (U's row j mirrors L's column j)
     bounds = np.unique(np.searchsorted(l_ptr, np.linspace(0, l_ptr[-1], GAP_CHUNKS + 1)))

@@ -87,6 +87,16 @@ def tree_closed_reference(lower) -> bool:
 
 
 @numba.njit(cache=True)
+def row_counts(indices, n):
+    """Entries of each row of a compressed-column pattern (``np.bincount`` without its 64-bit
+    copy of ``indices``)."""
+    count = np.zeros(n, np.int64)
+    for i in indices:
+        count[i] += 1
+    return count
+
+
+@numba.njit(cache=True)
 def column_rounding(indptr, indices, data, row_count, u):
     """``w_j = Σ_{i>j} γ_{c_i} |L_ij|`` with ``c_i = row_count[i]`` and unit roundoff ``u``."""
     n = indptr.size - 1
@@ -210,7 +220,7 @@ class FactorPairs:
         self.n = lower.shape[0]
         self.position = lu.perm_r.astype(np.int64)    # unknown k sits at row perm_r[k]
         self.factor_nonzeros = int(lower.nnz)
-        self.row_count = np.bincount(self.indices, minlength=self.n).astype(np.int64)
+        self.row_count = row_counts(self.indices, self.n)
         self.column_rounding = column_rounding(self.indptr, self.indices, self.data,
                                                self.row_count, UNIT_ROUNDOFF)
         self._lower = lower
