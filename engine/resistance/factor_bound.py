@@ -41,6 +41,7 @@ with dense matrices for the tests.
 from __future__ import annotations
 
 import math
+from concurrent.futures import ThreadPoolExecutor
 
 import numba
 import numpy as np
@@ -49,13 +50,13 @@ from .accuracy import ASSEMBLY, MARGIN, UNIT_ROUNDOFF, gamma
 from .reach import row_counts
 
 # Blocks in which the rows of U are gathered for the symmetry gap (each a pass over U; fewer
-# blocks, more memory: an eighth of U's entries at a time).
-GAP_CHUNKS = 8
+# blocks, more memory: a sixteenth of U's entries at a time).
+GAP_CHUNKS = 16
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)
 def lu_row_sums(l_ptr, l_idx, l_val, u_ptr, u_idx, u_val):
-    """``(|L| |U| 1, 1ᵀ |L| |U|, 1ᵀ |L|)`` for CSC factors."""
+    """``(|L| |U| 1, 1ᵀ |L| |U|)`` for CSC factors."""
     n = l_ptr.size - 1
     u_rows = np.zeros(n)
     for k in range(n):
@@ -74,7 +75,7 @@ def lu_row_sums(l_ptr, l_idx, l_val, u_ptr, u_idx, u_val):
         for p in range(u_ptr[k], u_ptr[k + 1]):
             total += l_cols[u_idx[p]] * abs(u_val[p])
         cols[k] = total
-    return rows, cols, l_cols
+    return rows, cols
 
 
 @numba.njit(cache=True)
@@ -107,17 +108,21 @@ def _upper_rows(u_ptr, u_idx, u_val, starts, start, stop):
     return idx, val
 
 
-@numba.njit(cache=True)
-def symmetry_gap(l_ptr, l_idx, l_val, u_ptr, u_idx, u_val, pivot, l_cols, u, bounds):
+@numba.njit(cache=True, nogil=True)
+def symmetry_gap(l_ptr, l_idx, l_val, u_ptr, u_idx, u_val, pivot, u, bounds):
     """Bounds ``e_jk >= |D_jj L_kj - U_jk|`` (``k > j``) summed two ways: ``Σ_k e_jk`` for each
     ``j`` and ``Σ_j (1ᵀ|L|)_j e_jk`` for each ``k``. Both factors CSC, indices in any order;
     the rows of ``U`` are gathered a block at a time, ``bounds[c] .. bounds[c+1]-1`` (memory)."""
     n = l_ptr.size - 1
+    l_cols = np.zeros(n)                   # 1ᵀ |L|
+    for j in range(n):
+        for p in range(l_ptr[j], l_ptr[j + 1]):
+            l_cols[j] += abs(l_val[p])
     by_row = np.zeros(n)
     by_col = np.zeros(n)
-    in_u = np.full(n, -1, np.int64)        # position in U's row j of column k, for this j
-    owner = np.full(n, -1, np.int64)
-    in_l = np.full(n, -1, np.int64)        # row k present in L's column j
+    in_u = np.full(n, -1, np.int32)        # position in U's row j of column k, for this j
+    owner = np.full(n, -1, np.int32)
+    in_l = np.full(n, -1, np.int32)        # row k present in L's column j
     starts = _upper_row_starts(u_ptr, u_idx)
     for c in range(bounds.size - 1):
         start, stop = bounds[c], bounds[c + 1]
@@ -146,7 +151,7 @@ def symmetry_gap(l_ptr, l_idx, l_val, u_ptr, u_idx, u_val, pivot, l_cols, u, bou
     return by_row, by_col
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)
 def _lower_times(l_ptr, l_idx, l_val, v):
     """``|L| v``."""
     out = np.zeros(v.size)
@@ -166,16 +171,18 @@ def factor_rho(lower, upper, pivot: np.ndarray) -> np.ndarray:
     pivot : ndarray
         ``diag(U)``.
     """
-    l_ptr, l_idx, l_val = lower.indptr.astype(np.int64), lower.indices, lower.data
-    u_ptr, u_idx, u_val = upper.indptr.astype(np.int64), upper.indices, upper.data
-    rows, cols, l_cols = lu_row_sums(l_ptr, l_idx, l_val, u_ptr, u_idx, u_val)
-    row_count = row_counts(l_idx, pivot.size)
-    col_count = np.diff(u_ptr)
+    l_ptr, l_idx, l_val = lower.indptr, lower.indices, lower.data
+    u_ptr, u_idx, u_val = upper.indptr, upper.indices, upper.data
     # blocks of rows holding about equal shares of U's entries (U's row j mirrors L's column j)
     bounds = np.unique(np.searchsorted(l_ptr, np.linspace(0, l_ptr[-1], GAP_CHUNKS + 1)))
     bounds[0], bounds[-1] = 0, pivot.size
-    by_row, by_col = symmetry_gap(l_ptr, l_idx, l_val, u_ptr, u_idx, u_val, pivot, l_cols,
-                                  UNIT_ROUNDOFF, bounds.astype(np.int64))
+    with ThreadPoolExecutor(2) as pool:         # the kernels release the GIL: one per core
+        gap_sums = pool.submit(symmetry_gap, l_ptr, l_idx, l_val, u_ptr, u_idx, u_val, pivot,
+                               UNIT_ROUNDOFF, bounds.astype(np.int64))
+        rows, cols = lu_row_sums(l_ptr, l_idx, l_val, u_ptr, u_idx, u_val)
+        row_count = row_counts(l_idx, pivot.size)
+        by_row, by_col = gap_sums.result()
+    col_count = np.diff(u_ptr)
     backward = gamma(row_count + 1) * rows + gamma(col_count + 1) * cols
     gap = _lower_times(l_ptr, l_idx, l_val, by_row) + by_col
     return 0.5 * (backward + gap) * MARGIN

@@ -44,7 +44,7 @@ from .accuracy import UNIT_ROUNDOFF, gamma
 def _parents(indptr, indices):
     """Smallest sub-diagonal row of each column (-1 for a root)."""
     n = indptr.size - 1
-    parent = np.full(n, -1, np.int64)
+    parent = np.full(n, -1, np.int32)
     for j in range(n):
         best = n
         for p in range(indptr[j], indptr[j + 1]):
@@ -60,7 +60,7 @@ def _parents(indptr, indices):
 def tree_closed(indptr, indices, parent):
     """True when every column's rows below its parent are rows of the parent."""
     n = parent.size
-    mark = np.full(n, -1, np.int64)
+    mark = np.full(n, -1, np.int32)
     for j in range(n):
         p = parent[j]
         if p < 0:
@@ -86,11 +86,11 @@ def tree_closed_reference(lower) -> bool:
     return True
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)
 def row_counts(indices, n):
     """Entries of each row of a compressed-column pattern (``np.bincount`` without its 64-bit
     copy of ``indices``)."""
-    count = np.zeros(n, np.int64)
+    count = np.zeros(n, np.int32)
     for i in indices:
         count[i] += 1
     return count
@@ -120,7 +120,7 @@ def column_rounding_reference(lower, row_count) -> np.ndarray:
 
 
 @numba.njit(cache=True)
-def _path_energy(indptr, indices, data, inv_pivot, weight, parent, a, b, y):
+def _path_energy(indptr, indices, data, pivot, weight, parent, a, b, y):
     """``Σ y_j² / D_jj`` for ``L y = e_a - e_b`` (-1: grounded), the rounding sum
     ``Σ |y_j| weight_j`` and the columns visited; leaves ``y`` zero."""
     if a >= 0:
@@ -147,7 +147,7 @@ def _path_energy(indptr, indices, data, inv_pivot, weight, parent, a, b, y):
         visited += 1
         if yj == 0.0:
             continue
-        energy += yj * yj * inv_pivot[j]
+        energy += yj * yj / pivot[j]
         rounding += abs(yj) * weight[j]
         for p in range(indptr[j], indptr[j + 1]):
             i = indices[p]
@@ -157,10 +157,10 @@ def _path_energy(indptr, indices, data, inv_pivot, weight, parent, a, b, y):
 
 
 @numba.njit(parallel=True, cache=True)
-def pair_energies(indptr, indices, data, inv_pivot, weight, parent, a, b, n_chunks):
+def pair_energies(indptr, indices, data, pivot, weight, parent, a, b, n_chunks):
     """Energies, rounding sums and visited columns of ``L y = e_a[k] - e_b[k]`` (permuted
     indices; -1 = grounded), the pairs split into ``n_chunks`` runs processed in parallel."""
-    n = inv_pivot.size
+    n = pivot.size
     m = a.size
     energy = np.empty(m)
     rounding = np.empty(m)
@@ -170,7 +170,7 @@ def pair_energies(indptr, indices, data, inv_pivot, weight, parent, a, b, n_chun
         y = np.zeros(n)
         for k in range(bounds[c], bounds[c + 1]):
             energy[k], rounding[k], visited[k] = _path_energy(
-                indptr, indices, data, inv_pivot, weight, parent, a[k], b[k], y)
+                indptr, indices, data, pivot, weight, parent, a[k], b[k], y)
     return energy, rounding, visited
 
 
@@ -195,7 +195,7 @@ class FactorPairs:
 
     Attributes
     ----------
-    row_count : ndarray of int64
+    row_count : ndarray of int32
         Non-zeros of each row of ``L`` (diagonal included).
     column_rounding : ndarray of float64
         ``w_j = Σ_{i>j} γ_{c_i} |L_ij|`` (module notes).
@@ -211,21 +211,20 @@ class FactorPairs:
         if not np.array_equal(lu.perm_r, lu.perm_c):
             raise ValueError("the factorisation pivoted off the diagonal")
         lower = lu.L.tocsc()
-        self.indptr = lower.indptr.astype(np.int64)
+        self.indptr = lower.indptr
         self.indices = lower.indices
         self.data = lower.data
         self.parent = _parents(self.indptr, self.indices)
         if not tree_closed(self.indptr, self.indices, self.parent):
             raise ValueError("the pattern of L is not closed along its elimination tree")
         self.n = lower.shape[0]
-        self.position = lu.perm_r.astype(np.int64)    # unknown k sits at row perm_r[k]
+        self.position = lu.perm_r                      # unknown k sits at row perm_r[k]
         self.factor_nonzeros = int(lower.nnz)
         self.row_count = row_counts(self.indices, self.n)
         self.column_rounding = column_rounding(self.indptr, self.indices, self.data,
                                                self.row_count, UNIT_ROUNDOFF)
         self._lower = lower
         self.pivot = self._read_pivots(lu)
-        self.inv_pivot = 1.0 / self.pivot
 
     @staticmethod
     def _read_pivots(lu) -> np.ndarray:
@@ -253,7 +252,7 @@ class FactorPairs:
         a, b = self.positions(into), self.positions(out)
         chunks = max(1, min(numba.get_num_threads(), a.size))
         energy, rounding, visited = pair_energies(self.indptr, self.indices, self.data,
-                                                  self.inv_pivot, self.column_rounding,
+                                                  self.pivot, self.column_rounding,
                                                   self.parent, a, b, chunks)
         ends = (np.where(a >= 0, gamma(self.row_count[np.maximum(a, 0)]), 0.0)
                 + np.where(b >= 0, gamma(self.row_count[np.maximum(b, 0)]), 0.0))
