@@ -190,13 +190,27 @@ def _between(args, net, solver) -> int:
 def _pairs(args, solver, a_labels, b_labels, a_idx, b_idx, feedback) -> int:
     result = solver.pairs_by_index(a_idx, b_idx, progress=feedback.progress,
                                    announce=feedback.announce)
-    columns = {"a": a_labels, "b": b_labels, "ohms": result.ohms, "accuracy": result.accuracy}
+    accuracy = _bound_up(result.accuracy)
+    columns = {"a": a_labels, "b": b_labels, "ohms": result.ohms, "accuracy": accuracy}
     summary = {"pairs": int(a_idx.size), "method": result.method, "solves": result.solves,
                "seconds": result.seconds, "infinite": int(np.isinf(result.ohms).sum()),
-               "max_accuracy": float(result.accuracy.max(initial=0.0)),
+               "max_accuracy": float(accuracy.max(initial=0.0)),
                "accuracy_meaning": PAIR_ACCURACY[result.method],
+               **({"factor_delta": solver.factor_delta} if result.method == "factor reach"
+                  else {}),
                "solver": _solver_summary(solver)}
     return _emit_table(args, columns, summary)
+
+
+def _bound_up(values: np.ndarray) -> np.ndarray:
+    """Error bounds rounded UP to :data:`UNCERTAINTY_DIGITS` significant digits: still bounds,
+    without the noise digits (0 and inf kept)."""
+    out = np.array(values, dtype=np.float64)
+    live = np.isfinite(out) & (out > 0)
+    scale = 10.0 ** (np.floor(np.log10(out[live])) - (UNCERTAINTY_DIGITS - 1))
+    rounded = np.ceil(out[live] / scale * (1.0 - 1e-12)) * scale
+    out[live] = np.where(rounded >= out[live], rounded, np.nextafter(rounded, np.inf))
+    return out
 
 
 def _across(args, net, solver, feedback) -> int:
