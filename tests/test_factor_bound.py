@@ -15,7 +15,7 @@ from ohmgraph.engine.network import RESISTOR, Network
 from ohmgraph.engine.resistance import ResistanceSolver
 from ohmgraph.engine.resistance.factor_bound import (factor_rho, factor_rho_reference,
                                                      pair_bounds)
-from ohmgraph.engine.resistance.reach import (column_rounding, column_rounding_reference,
+from ohmgraph.engine.resistance.reach import (FactorPairs, column_rounding, column_rounding_reference,
                                               pair_energies_reference, tree_closed,
                                               tree_closed_reference)
 from ohmgraph.engine.resistance.accuracy import UNIT_ROUNDOFF
@@ -52,8 +52,15 @@ def test_kernels_match_their_references():
     rng = np.random.default_rng(2)
     into, out = rng.integers(-1, solver.free.size, (2, 60))      # -1: the grounded node
     a, b = reach.positions(into), reach.positions(out)
-    np.testing.assert_allclose(reach.energies(into, out),
-                               pair_energies_reference(lu.L, reach.pivot, a, b), rtol=1e-12)
+    expected = pair_energies_reference(lu.L, reach.pivot, a, b)
+    assert reach.top < reach.n
+    np.testing.assert_allclose(reach.energies(into, out), expected, rtol=1e-12)
+    # all sparse, and a larger dense trailing block: the same values and rounding terms
+    for dense in (0, 200):
+        other = FactorPairs(lu, dense_top=dense)
+        np.testing.assert_allclose(other.energies(into, out), expected, rtol=1e-12)
+        np.testing.assert_allclose(other.forward(into, out)[1], reach.forward(into, out)[1],
+                                   rtol=1e-10)
 
 
 def test_a_pattern_not_closed_along_its_tree_is_refused():

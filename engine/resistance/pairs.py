@@ -447,7 +447,7 @@ class ResistanceSolver:
         rhs[into, 0], rhs[out, 0] = 1.0, -1.0
         x = self.solve_block(rhs)
         full = float(self.meter.energy_estimates(rhs, x)[0][0])
-        shortcut = float(reach.energies(into, out)[0])
+        shortcut = float(reach.forward(into, out, dense=False)[0][0])
         if abs(shortcut - full) > REACH_CHECK_LIMIT * abs(full):
             self.stats.notes.append(f"factor reach disagreed with a full solve ({shortcut!r} vs "
                                     f"{full!r}); pair values by full solves")
@@ -471,6 +471,8 @@ class ResistanceSolver:
         """Each distinct pair by one sparse forward solve from the factor
         (engine/resistance/reach.py), with the rigorous bound of
         :func:`~ohmgraph.engine.resistance.factor_bound.pair_bounds`."""
+        if not self.factor_delta >= 0.0:                   # once per factorisation
+            self.factor_delta = self._loewner_delta(reach)
         count = keys.shape[1]
         values, rounding = np.empty(count), np.empty(count)
         visited = np.empty(count, np.int64)
@@ -480,8 +482,6 @@ class ResistanceSolver:
             values[part], rounding[part], visited[part] = reach.forward(into[part], out[part])
             self.stats.solves += part.stop - part.start
             tracker.done(part.stop - part.start)
-        if not self.factor_delta >= 0.0:                   # once per factorisation
-            self.factor_delta = self._loewner_delta(reach)
         distance = self.ground_distance[self.island[keys[0]]]
         return values, pair_bounds(values, rounding, visited, self.factor_delta, distance)
 
