@@ -157,3 +157,23 @@ def test_pair_bounds_grow_with_each_term():
                        np.array([100.0]))[0] > 2e-9
     assert math.isinf(pair_bounds(np.array([1.0]), np.array([0.0]), np.array([1]), 1.0,
                                   np.array([1.0]))[0])
+
+
+def test_grounding_the_strongest_node_keeps_values_and_tightens_the_bound():
+    # A lattice held at one corner, with 9 pads elsewhere merged by their zeroed sources: no
+    # resistance depends on the grounded node (common practice), the bound does.
+    net = random_lattice(60, 6, pads=9).with_reference("0_0")
+    rng = np.random.default_rng(7)
+    a, b = rng.integers(0, net.n_nodes, (2, 300))
+    corner = ResistanceSolver(net, method="direct")
+    strongest = ResistanceSolver(net, method="direct", ground_at="strongest")
+    assert strongest.ground[0] == strongest.supernode[net.node_index("0")[0]]   # the pads
+    first, second = corner.pairs_by_index(a, b), strongest.pairs_by_index(a, b)
+    assert first.method == second.method == "factor reach"
+    live = second.ohms > 0                     # pairs within one supernode read 0 both ways
+    assert np.all(first.ohms[~live] == 0) and live.sum() > 250
+    gap = np.abs(first.ohms[live] / second.ohms[live] - 1.0)
+    assert np.all(gap <= first.accuracy[live] + second.accuracy[live])
+    assert strongest.factor_delta < corner.factor_delta / 2
+    with pytest.raises(ValueError, match="ground_at"):
+        ResistanceSolver(net, ground_at="middle")

@@ -126,6 +126,12 @@ class ResistanceSolver:
         Relative residual every solve must reach.
     memory_budget : float, optional
         Bytes the solver's set-up may use (None: the default, :mod:`ohmgraph.engine.memory`).
+    ground_at : {"reference", "strongest"}
+        Which supernode of each island is grounded (no resistance depends on it):
+        ``"reference"``, the reference's in its island and the first elsewhere; ``"strongest"``,
+        the one with the largest total conductance in each island (on a supply mesh, the pads
+        merged by their zeroed sources), which keeps the factor-reach bound small
+        (:mod:`ohmgraph.engine.resistance.factor_bound`: it grows with the distance to ground).
 
     Raises
     ------
@@ -134,7 +140,7 @@ class ResistanceSolver:
     """
 
     def __init__(self, net: Network, method: str = "auto", rtol: float = DEFAULT_RTOL, *,
-                 memory_budget: float | None = None):
+                 memory_budget: float | None = None, ground_at: str = "reference"):
         start = time.perf_counter()
         passive = net.passive()
         resistors = passive.kind == RESISTOR
@@ -155,7 +161,10 @@ class ResistanceSolver:
                                     shape=(n_super, n_super))
         conductance = (conductance + conductance.T).tocsr()   # parallel conductances add up
         self.n_islands, self.island = connected_components(conductance, directed=False)
-        self.ground = self._grounds(net.reference)
+        if ground_at not in ("reference", "strongest"):
+            raise ValueError(f"ground_at must be 'reference' or 'strongest', not {ground_at!r}")
+        self.ground = self._grounds(net.reference, conductance if ground_at == "strongest"
+                                    else None)
         unknown_of = np.full(n_super, -1, np.int64)
         grounded = np.zeros(n_super, bool)
         grounded[self.ground] = True
@@ -177,11 +186,18 @@ class ResistanceSolver:
         self.factor_delta = float("nan")
 
     # ------------------------------------------------------------------ set-up helpers
-    def _grounds(self, reference: int) -> np.ndarray:
-        """One grounded supernode per island: the reference's in its island, else the first."""
+    def _grounds(self, reference: int, conductance=None) -> np.ndarray:
+        """One grounded supernode per island: the reference's in its island, else the first;
+        with ``conductance`` (the supernode conductance matrix), the one with the largest total
+        conductance in each island."""
         n_super = self.graph.n_supernodes
         first = np.full(self.n_islands, n_super, np.int64)
         np.minimum.at(first, self.island, np.arange(n_super))
+        if conductance is not None:
+            total = np.asarray(conductance.sum(axis=1)).ravel()
+            order = np.lexsort((np.arange(n_super), -total, self.island))   # strongest first
+            starts = np.searchsorted(self.island[order], np.arange(self.n_islands))
+            return order[starts]
         ref = self.supernode[reference]
         first[self.island[ref]] = ref
         return first

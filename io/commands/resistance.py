@@ -128,8 +128,12 @@ def run(args) -> int:
         _nodes(args, net, args.between[0], "--between")     # an unknown label: InputError
         net = net.with_reference(args.between[0])
     try:
+        # --pairs grounds the strongest node of each island (a tighter factor-reach bound)
+        # unless --ground names one; the other queries ground the reference (or --between's A).
+        strongest = bool(args.pairs) and args.ground is None
         solver = ResistanceSolver(net, method=args.method, rtol=args.rtol,
-                                  memory_budget=args.memory_budget)
+                                  memory_budget=args.memory_budget,
+                                  ground_at="strongest" if strongest else "reference")
     except ValueError as error:
         raise NotWellPosed(f"{args.network}: not well-posed: {error}") from None
     feedback = Feedback("ohmgraph resistance", args.quiet)
