@@ -24,7 +24,8 @@ triangular solve (BLAS), from the right-hand sides the sparse part leaves there.
 Each pair also returns the rounding term of its forward solve: the computed ``ŷ`` solves
 ``L ŷ = P d - f`` exactly with ``|f_i| <= γ_{c_i} (|b_i| + Σ_j |L_ij| |ŷ_j|)``, ``c_i`` the
 non-zeros of row ``i`` of ``L`` (the terms of that row's sum; N. J. Higham, *Accuracy and
-Stability of Numerical Algorithms*, 2nd ed., SIAM 2002, Lemma 8.4 and §3.1), so
+Stability of Numerical Algorithms*, 2nd ed., SIAM 2002, Thm 8.5 and §3.1, numbers recalled
+from memory), so
 ``||f||_1 <= γ_{c_a} + γ_{c_b} + Σ_j |ŷ_j| w_j`` with ``w_j = Σ_{i>j} γ_{c_i} |L_ij|``
 (the dense part sums the same terms of each row in another order, with explicit zeros that add
 no rounding, so the same bound holds)
