@@ -43,7 +43,6 @@ with dense matrices for the tests.
 from __future__ import annotations
 
 import math
-from concurrent.futures import ThreadPoolExecutor
 
 import numba
 import numpy as np
@@ -52,8 +51,8 @@ from .accuracy import ASSEMBLY, MARGIN, UNIT_ROUNDOFF, gamma
 from .reach import row_counts
 
 # Blocks in which the rows of U are gathered for the symmetry gap (each a pass over U; fewer
-# blocks, more memory: a sixteenth of U's entries at a time).
-GAP_CHUNKS = 16
+# blocks, more memory: a 32nd of U's entries at a time).
+GAP_CHUNKS = 32
 
 
 @numba.njit(cache=True, nogil=True)
@@ -178,12 +177,10 @@ def factor_rho(lower, upper, pivot: np.ndarray) -> np.ndarray:
     # blocks of rows holding about equal shares of U's entries (U's row j mirrors L's column j)
     bounds = np.unique(np.searchsorted(l_ptr, np.linspace(0, l_ptr[-1], GAP_CHUNKS + 1)))
     bounds[0], bounds[-1] = 0, pivot.size
-    with ThreadPoolExecutor(2) as pool:         # the kernels release the GIL: one per core
-        gap_sums = pool.submit(symmetry_gap, l_ptr, l_idx, l_val, u_ptr, u_idx, u_val, pivot,
-                               UNIT_ROUNDOFF, bounds.astype(np.int64))
-        rows, cols = lu_row_sums(l_ptr, l_idx, l_val, u_ptr, u_idx, u_val)
-        row_count = row_counts(l_idx, pivot.size)
-        by_row, by_col = gap_sums.result()
+    by_row, by_col = symmetry_gap(l_ptr, l_idx, l_val, u_ptr, u_idx, u_val, pivot,
+                                  UNIT_ROUNDOFF, bounds.astype(np.int64))
+    rows, cols = lu_row_sums(l_ptr, l_idx, l_val, u_ptr, u_idx, u_val)
+    row_count = row_counts(l_idx, pivot.size)
     col_count = np.diff(u_ptr)
     backward = gamma(row_count + 1) * rows + gamma(col_count + 1) * cols
     gap = _lower_times(l_ptr, l_idx, l_val, by_row) + by_col
@@ -206,8 +203,10 @@ def factor_rho_reference(lower, upper) -> np.ndarray:
 
 
 def assembly_rho(matrix, degree_rounding: np.ndarray) -> np.ndarray:
-    """``ρ`` of the assembly part of ``B``: ``γ_{deg_i+3} (|A| 1)_i`` (unknown order)."""
-    return degree_rounding * np.asarray(abs(matrix).sum(axis=1)).ravel()
+    """``ρ`` of the assembly part of ``B``: ``γ_{deg_i+3} (|A| 1)_i`` (unknown order), with
+    ``(|A| 1)_i <= 2 A_ii (1 + 2 γ_{deg_i+3})``: the off-diagonal conductances of a row add up to
+    at most its diagonal, each sum assembled within ``γ_{deg_i}`` (no copy of the matrix)."""
+    return degree_rounding * 2.0 * matrix.diagonal() * (1.0 + 2.0 * degree_rounding)
 
 
 def loewner_delta(potential_max: float, residual_l1: float, distance: float) -> float:

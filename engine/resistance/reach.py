@@ -134,6 +134,19 @@ def column_rounding_reference(lower, row_count) -> np.ndarray:
 
 
 @numba.njit(cache=True)
+def _trailing_block(indptr, indices, data, top):
+    """Rows and columns ``top ..`` of a lower-triangular CSC matrix, dense (no copy of the rest,
+    which a scipy slice would make)."""
+    k = indptr.size - 1 - top
+    block = np.zeros((k, k))
+    for j in range(top, top + k):
+        for p in range(indptr[j], indptr[j + 1]):
+            if indices[p] >= top:
+                block[indices[p] - top, j - top] = data[p]
+    return block
+
+
+@numba.njit(cache=True)
 def _path_energy(indptr, indices, data, pivot, weight, parent, a, b, top, y, gathered):
     """``Σ y_j² / D_jj`` over columns below ``top`` for ``L y = e_a - e_b`` (-1: grounded), the
     rounding sum ``Σ |y_j| weight_j`` and the columns visited; the entries of ``y`` from ``top``
@@ -281,7 +294,7 @@ class FactorPairs:
     def dense_top(self) -> np.ndarray:
         """The trailing block of ``L`` from row and column :attr:`top` on, dense."""
         if self._dense_top is None:
-            self._dense_top = self._lower[self.top:, self.top:].toarray()
+            self._dense_top = _trailing_block(self.indptr, self.indices, self.data, self.top)
         return self._dense_top
 
     def forward(self, into: np.ndarray, out: np.ndarray, dense: bool = True):
