@@ -45,7 +45,9 @@ test: $(STAMP)
 	else echo "make test: MPI stack not installed: the MPI tests (tests/test_mpi.py) are SKIPPED; 'make mpi' installs it"; fi
 	$(BIN)/python -m pytest -q
 
+# The peers of benchmarks/bench_peers.py (optional extra; the engine never imports them).
 bench: $(STAMP)
+	$(BIN)/python -m pip install --quiet -e '.[test,bench]'
 	$(BIN)/python -m pytest benchmarks -q -p no:cacheprovider -o python_files='bench_*.py' --benchmark-enable --benchmark-columns=min,median,max,rounds -s
 
 clean:

@@ -6,7 +6,10 @@
   ``auto`` choice), and under ``mpiexec`` on 1 and 2 ranks with ``--method petsc``; per stage
   (the slowest rank's seconds), whole run and peak resident memory per rank (``/usr/bin/time``'s
   maximum resident set size);
-* the largest node-voltage difference between the 2-rank and the single-process solution.
+* the largest node-voltage difference between the 2-rank and the single-process solution;
+* ``ohmgraph resistance NET.h5 --pairs`` of ``OHMGRAPH_BENCH_PAIRS`` (default 100) random node
+  pairs on 1 and 2 ranks, interleaved (1, 2, 1, 2), per stage, with the largest relative
+  difference between the two runs' values.
 
 Skipped without the MPI stack (``make mpi``). Numbers are printed and kept in ``extra_info``.
 """
@@ -15,6 +18,7 @@ from __future__ import annotations
 
 import importlib.util
 import json
+import os
 import re
 import shutil
 import subprocess
@@ -100,4 +104,47 @@ def test_one_process_against_one_and_two_ranks(files, benchmark, tmp_path):
     difference = float(np.abs(single - two).max() / np.abs(single).max())
     benchmark.extra_info["max_dv_over_max_v"] = difference
     print(f"max|dV| / max|V| between 2 ranks and one process: {difference:.2g}")
+    benchmark.pedantic(lambda: None, rounds=1, iterations=1)
+
+
+PAIRS = int(os.environ.get("OHMGRAPH_BENCH_PAIRS", "100"))
+
+
+def test_pairs_on_one_and_two_ranks(files, benchmark, tmp_path):
+    import h5py
+    import pandas as pd
+
+    _, h5, _ = files
+    with h5py.File(h5, "r") as stored:
+        labels = stored["nodes/label"][...].astype(str)
+    ends = np.random.default_rng(7).integers(0, labels.size, (PAIRS, 2))
+    pd.DataFrame({"a": labels[ends[:, 0]], "b": labels[ends[:, 1]]}).to_csv(
+        tmp_path / "pairs.csv", index=False)
+    found = {}
+    for turn, ranks in enumerate((1, 2, 1, 2)):
+        output = tmp_path / f"r{ranks}_{turn}.h5"
+        start = time.perf_counter()
+        child = subprocess.run([MPIEXEC, "--allow-run-as-root", "--oversubscribe", "-n",
+                                str(ranks), *TIME, sys.executable, "-m", "ohmgraph.io.cli",
+                                "resistance", str(h5), "--pairs", str(tmp_path / "pairs.csv"),
+                                "-o", str(output), "--method", "petsc", "--json"],
+                               capture_output=True, text=True)
+        seconds = time.perf_counter() - start
+        if child.returncode != 0:
+            raise RuntimeError(child.stderr)
+        summary = json.loads(child.stdout)
+        peaks = [int(k) / 2**20 for k in re.findall(r"peak_kib (\d+)", child.stderr)]
+        with h5py.File(output, "r") as result:
+            found[ranks] = result["resistance/ohms"][...]
+        timings = summary["solver"]["timings_s"]
+        print(f"\n{ranks} rank(s), {PAIRS} pairs: "
+              + "  ".join(f"{stage} {value:.2f}" for stage, value in timings.items())
+              + f"  whole {seconds:.1f} s, peak per process {[round(p, 2) for p in peaks]} GB, "
+              f"max accuracy {summary['max_accuracy']:.2g}, load {os.getloadavg()[0]:.1f}")
+        benchmark.extra_info[f"ranks{ranks}_turn{turn}"] = {
+            "timings_s": timings, "whole_s": seconds, "peak_gb": peaks,
+            "load_average": os.getloadavg()[0]}
+    difference = float(np.max(np.abs(found[1] - found[2]) / found[1]))
+    benchmark.extra_info["max_relative_difference"] = difference
+    print(f"largest relative difference between 1 and 2 ranks: {difference:.2g}")
     benchmark.pedantic(lambda: None, rounds=1, iterations=1)

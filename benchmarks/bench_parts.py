@@ -71,6 +71,8 @@ def test_fixture_fault_trials(benchmark, fixture):
             f"{_share(1 <= o.rank <= 3 for o in seen)}, first as a single resistor "
             f"{_share(o.rank == 1 and o.group_size == 1 for o in seen)}, median group size "
             f"{np.median(sizes):.0f}, fault indicated {_share(o.fault_indicated for o in seen)}; "
+            "a reading flagged (none corrupted) "
+            f"{_share(bool(o.flagged) for o in outcomes)}; "
             "by mode first "
             + ", ".join(f"{m} {_share(o.rank == 1 for o in seen if o.mode == m)}"
                         for m in FAULT_MODES)

@@ -8,18 +8,26 @@
   resistors, each times U(0.5, 2)). Compared at the same ``--rtol`` (1e-10):
 
   - CLI: ``ohmgraph solve NET --changes C.csv --start-from BASE.h5 -o NEW.h5`` against a fresh
-    ``ohmgraph solve CHANGED.csv -o FRESH.h5`` of the changed network (target: 2x faster);
+    ``ohmgraph solve CHANGED -o FRESH.h5`` of the changed network (target: 2x faster), with NET
+    and CHANGED in the same format: both CSV, or both HDF5 network files from ``convert``;
   - Python session: :func:`ohmgraph.engine.variant.resolve` from the base solution against
     :func:`ohmgraph.engine.solve` of the changed network in the same process (target: 10x
-    faster), and against the fresh CLI run;
+    faster);
   - voltages: largest difference to the fresh solve.
+
+Fresh and variant runs alternate (A B A B ...; ``OHMGRAPH_VARIANT_ROUNDS`` rounds, default 3, at
+least 5 in the session); medians are reported with the load average before and after, and for
+the CLI also the CPU seconds of each child process (less disturbed by other work on the
+machine than wall time) and the median seconds of every stage.
 
 Nothing is asserted about time; the numbers are printed and stored in ``extra_info``.
 """
 
 from __future__ import annotations
 
+import json
 import os
+import resource
 import subprocess
 import sys
 import time
@@ -33,11 +41,12 @@ from conftest import RTOL, supplied_lattice
 from ohmgraph.datasets.generators import site_coordinates
 from ohmgraph.engine import solve
 from ohmgraph.engine.network import RESISTOR
-from ohmgraph.engine.variant import BranchChanges, apply_changes, resolve
+from ohmgraph.engine.variant import BranchChanges, _updated_system, apply_changes, resolve
 from ohmgraph.io.branch_table import write_branch_table
 
 VARIANT_SIZE = int(os.environ.get("OHMGRAPH_VARIANT_SIZE", "708"))
 CHANGED_FRACTION = 0.01
+ROUNDS = int(os.environ.get("OHMGRAPH_VARIANT_ROUNDS", "3"))
 
 
 def cli(*argv) -> float:
@@ -77,50 +86,145 @@ def variant_case(tmp_path_factory):
     write_branch_table(folder / "changed.csv", apply_changes(net, changes))
     pd.DataFrame({"name": net.branch_names[index], "value": changes.value}).to_csv(
         folder / "changes.csv", index=False, float_format="%.17g")
+    for name in ("base", "changed"):
+        cli("convert", folder / f"{name}.csv", "-o", folder / f"{name}_net.h5")
     return folder, net, changes
 
 
-def test_variant_cli(variant_case, benchmark):
+def load() -> str:
+    """The 1-, 5- and 15-minute load averages, for the record beside every timing."""
+    return "/".join(f"{value:.1f}" for value in os.getloadavg())
+
+
+def timed_cli(*argv) -> tuple[float, float, dict]:
+    """Wall and CPU seconds (the child's user + system) of one ``ohmgraph ... --json`` run,
+    and its stage timings."""
+    before = resource.getrusage(resource.RUSAGE_CHILDREN)
+    start = time.perf_counter()
+    done = subprocess.run([sys.executable, "-m", "ohmgraph.io.cli", *map(str, argv), "--json"],
+                          check=True, capture_output=True, text=True)
+    wall = time.perf_counter() - start
+    after = resource.getrusage(resource.RUSAGE_CHILDREN)
+    cpu = (after.ru_utime - before.ru_utime) + (after.ru_stime - before.ru_stime)
+    return wall, cpu, json.loads(done.stdout)["timings_s"]
+
+
+@pytest.mark.parametrize("suffix", ["csv", "h5"], ids=["csv", "hdf5-network-file"])
+def test_variant_cli(variant_case, suffix, benchmark):
+    """Fresh ``solve`` of the changed network and the variant run alternate (A B A B ...), both
+    reading NET in the same format: the CSV files, or the HDF5 network files of ``convert``."""
     folder, net, changes = variant_case
-    cli("solve", folder / "base.csv", "-o", folder / "base.h5", "--rtol", RTOL)
-    fresh = [cli("solve", folder / "changed.csv", "-o", folder / f"fresh{k}.h5", "--rtol", RTOL)
-             for k in range(2)]
-    variant = [cli("solve", folder / "base.csv", "--changes", folder / "changes.csv",
-                   "--start-from", folder / "base.h5", "-o", folder / f"variant{k}.h5",
-                   "--rtol", RTOL) for k in range(2)]
-    with h5py.File(folder / "fresh0.h5") as a, h5py.File(folder / "variant0.h5") as b:
+    base_net = folder / ("base.csv" if suffix == "csv" else "base_net.h5")
+    changed_net = folder / ("changed.csv" if suffix == "csv" else "changed_net.h5")
+    base = folder / f"base_{suffix}.h5"
+    cli("solve", base_net, "-o", base, "--rtol", RTOL, "--force")
+    runs = {"fresh": [], "variant": []}
+    loads = [load()]
+    for _ in range(ROUNDS):
+        runs["fresh"].append(timed_cli("solve", changed_net, "-o", folder / "fresh.h5",
+                                       "--rtol", RTOL, "--force"))
+        runs["variant"].append(timed_cli("solve", base_net, "--changes", folder / "changes.csv",
+                                         "--start-from", base, "-o", folder / "variant.h5",
+                                         "--rtol", RTOL, "--force"))
+    loads.append(load())
+    with h5py.File(folder / "fresh.h5") as a, h5py.File(folder / "variant.h5") as b:
         difference = float(np.max(np.abs(a["nodes/voltage"][...] - b["nodes/voltage"][...])))
-    ratio = min(fresh) / min(variant)
-    benchmark.extra_info.update(branches=net.n_branches, changed=changes.index.size,
-                                fresh_cli_seconds=min(fresh), variant_cli_seconds=min(variant),
-                                speedup=ratio, max_voltage_difference=difference)
-    print(f"\n{net.n_branches:,} branches, {changes.index.size:,} changed: fresh CLI "
-          f"{min(fresh):.2f} s, variant CLI {min(variant):.2f} s, {ratio:.2f}x; "
-          f"max |dV| {difference:.2e} V")
+    wall = {k: float(np.median([r[0] for r in v])) for k, v in runs.items()}
+    cpu = {k: float(np.median([r[1] for r in v])) for k, v in runs.items()}
+    stages = {k: {stage: float(np.median([r[2][stage] for r in v])) for stage in v[0][2]}
+              for k, v in runs.items()}
+    pairs = [f[0] / v[0] for f, v in zip(runs["fresh"], runs["variant"])]
+    benchmark.extra_info.update(
+        format=suffix, branches=net.n_branches, changed=changes.index.size, rounds=ROUNDS,
+        load_average=loads, fresh_wall_median=wall["fresh"], variant_wall_median=wall["variant"],
+        fresh_cpu_median=cpu["fresh"], variant_cpu_median=cpu["variant"],
+        speedup_pairs=pairs, fresh_stages=stages["fresh"], variant_stages=stages["variant"],
+        max_voltage_difference=difference)
+    print(f"\nCLI, NET as {suffix}, {net.n_branches:,} branches, {changes.index.size:,} "
+          f"changed, medians of {ROUNDS} interleaved rounds, load {loads[0]} -> {loads[1]}:\n"
+          f"  fresh   wall {wall['fresh']:.2f} s, cpu {cpu['fresh']:.2f} s\n"
+          f"  variant wall {wall['variant']:.2f} s, cpu {cpu['variant']:.2f} s\n"
+          f"  fresh/variant: wall {wall['fresh'] / wall['variant']:.2f}x (pairs "
+          f"{', '.join(f'{p:.2f}' for p in pairs)}), cpu {cpu['fresh'] / cpu['variant']:.2f}x; "
+          f"max |dV| {difference:.1e} V")
+    for stage in stages["fresh"]:
+        print(f"  {stage:>9}: fresh {stages['fresh'][stage]:.3f} s, variant "
+              f"{stages['variant'].get(stage, 0.0):.3f} s")
     benchmark.pedantic(lambda: None, rounds=1)
 
 
-def test_variant_python_session(variant_case, benchmark):
-    folder, net, changes = variant_case
-    base = solve(net, rtol=RTOL)
-    changed = apply_changes(net, changes)
+def interleaved(base, changes, rounds: int):
+    """``engine.solve`` of the changed network and ``resolve`` from ``base``, alternating for
+    ``rounds`` rounds after one warm-up of each (compiled kernels): the last of each, their
+    seconds, and the load averages before and after."""
+    changed = apply_changes(base.network, changes)
+    solve(changed, rtol=RTOL), resolve(base, changes)
     fresh_seconds, variant_seconds = [], []
-    for _ in range(3):
+    loads = [load()]
+    for _ in range(rounds):
         start = time.perf_counter()
         fresh = solve(changed, rtol=RTOL)
         fresh_seconds.append(time.perf_counter() - start)
         start = time.perf_counter()
         variant = resolve(base, changes)
         variant_seconds.append(time.perf_counter() - start)
+    loads.append(load())
+    return fresh, variant, fresh_seconds, variant_seconds, loads
+
+
+def test_variant_python_session(variant_case, benchmark):
+    """``engine.solve`` of the changed network and ``engine.variant.resolve`` from the base
+    solution alternate in one process (after one warm-up of each)."""
+    folder, net, changes = variant_case
+    base = solve(net, rtol=RTOL)
+    fresh, variant, fresh_seconds, variant_seconds, loads = interleaved(
+        base, changes, max(ROUNDS, 5))
     difference = float(np.max(np.abs(fresh.node_voltage - variant.node_voltage)))
-    ratio = min(fresh_seconds) / min(variant_seconds)
-    benchmark.extra_info.update(fresh_seconds=min(fresh_seconds),
-                                variant_seconds=min(variant_seconds), speedup=ratio,
-                                iterations=variant.iterations, fresh_iterations=fresh.iterations,
-                                relative_residual=variant.relative_residual,
-                                max_voltage_difference=difference)
-    print(f"\nPython session: fresh solve {min(fresh_seconds):.2f} s ({fresh.iterations} it), "
-          f"variant {min(variant_seconds):.2f} s ({variant.iterations} it, residual "
-          f"{variant.relative_residual:.1e}), {ratio:.2f}x; max |dV| {difference:.2e} V; "
+    fresh_median, variant_median = np.median(fresh_seconds), np.median(variant_seconds)
+    pairs = [f / v for f, v in zip(fresh_seconds, variant_seconds)]
+    benchmark.extra_info.update(
+        load_average=loads, fresh_median=fresh_median, variant_median=variant_median,
+        speedup_pairs=pairs, iterations=variant.iterations, fresh_iterations=fresh.iterations,
+        relative_residual=variant.relative_residual, max_voltage_difference=difference,
+        fresh_stages=fresh.timings, variant_stages=variant.timings)
+    print(f"\nPython session, medians of {len(pairs)} interleaved rounds, load {loads[0]} -> "
+          f"{loads[1]}: fresh solve {fresh_median:.3f} s ({fresh.iterations} it), variant "
+          f"{variant_median:.3f} s ({variant.iterations} it, residual "
+          f"{variant.relative_residual:.1e}), {fresh_median / variant_median:.2f}x (pairs "
+          f"{', '.join(f'{p:.2f}' for p in pairs)}); max |dV| {difference:.1e} V; "
           f"{variant.notes[0]}")
+    print("  fresh stages:   " + ", ".join(f"{k} {v:.3f}" for k, v in fresh.timings.items()))
+    print("  variant stages: " + ", ".join(f"{k} {v:.3f}" for k, v in variant.timings.items()))
+    benchmark.pedantic(lambda: None, rounds=1)
+
+
+@pytest.mark.parametrize("fraction", [1e-4, 1e-3, 1e-2])
+def test_variant_python_session_by_fraction(variant_case, fraction, benchmark):
+    """How the session variant's advantage depends on how many branches change (random
+    resistors times U(0.5, 2), as above): fewer changes leave a smaller starting residual, so
+    fewer CG iterations reach the same absolute target."""
+    folder, net, _ = variant_case
+    base = solve(net, rtol=RTOL)
+    rng = np.random.default_rng(12)
+    index = np.sort(rng.choice(np.flatnonzero(net.kind == RESISTOR),
+                               int(net.n_branches * fraction), replace=False))
+    changes = BranchChanges(index, net.value[index] * rng.uniform(0.5, 2.0, index.size))
+    changed = apply_changes(net, changes)
+    fresh, variant, fresh_seconds, variant_seconds, loads = interleaved(base, changes, 3)
+    difference = float(np.max(np.abs(fresh.node_voltage - variant.node_voltage)))
+    ratio = float(np.median(fresh_seconds) / np.median(variant_seconds))
+    updated = _updated_system(base, changed, index)
+    start_residual = float(np.linalg.norm(
+        updated.rhs - updated.matrix @ updated.unknowns_from_voltages(base.node_voltage))
+        / np.linalg.norm(updated.rhs))
+    benchmark.extra_info.update(fraction=fraction, changed=index.size, load_average=loads,
+                                fresh_median=float(np.median(fresh_seconds)),
+                                variant_median=float(np.median(variant_seconds)),
+                                speedup=ratio, iterations=variant.iterations,
+                                start_relative_residual=start_residual,
+                                max_voltage_difference=difference)
+    print(f"\n{index.size:,} changed ({fraction:.2%}), load {loads[0]} -> {loads[1]}: fresh "
+          f"{np.median(fresh_seconds):.3f} s, variant {np.median(variant_seconds):.3f} s "
+          f"({variant.iterations} it from relative residual {start_residual:.1e}), {ratio:.2f}x; "
+          f"max |dV| {difference:.1e} V")
     benchmark.pedantic(lambda: None, rounds=1)

@@ -194,7 +194,7 @@ def fault_trial(net: Network, template: Readings, nominal: np.ndarray, tolerance
             break
     return TrialOutcome(branch, mode, detectable, contact,
                         bool(contact >= 0 and error > 3 * sigma[contact]), rank, size,
-                        result.fault_indicated, tuple(r for r, _ in result.flagged))
+                        result.fault_indicated, tuple(flag.reading for flag in result.flagged))
 
 
 __all__ = ["probe_fixture", "fixture_readings", "Accuracy", "with_fault", "scattered",

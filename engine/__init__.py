@@ -6,6 +6,11 @@ readings against the model (comparison, adjoint sensitivities, single-fault diag
 """
 
 import importlib
+import os
+
+from .numba_cache import ensure_cache_dir
+
+ensure_cache_dir(os.path.dirname(__file__))    # before any kernel is defined (read-only installs)
 
 # ``solve`` is both a module and the function it defines: importing the function here keeps the
 # package attribute the function, whatever is imported later.

@@ -19,6 +19,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
+import numba
 import numpy as np
 import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components
@@ -79,6 +80,69 @@ def _indices(mask_or_index) -> np.ndarray:
     return np.flatnonzero(arr).astype(np.int64) if arr.dtype == bool else arr.astype(np.int64)
 
 
+# 64-bit FNV-1a (Fowler, Noll & Vo; http://www.isthe.com/chongo/tech/comp/fnv/), one step per
+# UCS-4 code unit.
+FNV_OFFSET = np.uint64(0xCBF29CE484222325)
+FNV_PRIME = np.uint64(0x100000001B3)
+
+
+def string_hashes(strings: np.ndarray, kernel: bool = True) -> np.ndarray:
+    """64-bit FNV-1a hash of every entry of a NumPy unicode array (equal strings hash equal):
+    compiled, one pass over the text in memory order (:func:`string_hashes_kernel`), or with
+    ``kernel=False`` vectorised over entries, one pass per character position
+    (:func:`string_hashes_reference`)."""
+    strings = np.ascontiguousarray(strings, dtype=str)
+    codes = strings.view(np.uint32).reshape(strings.size, strings.dtype.itemsize // 4)
+    return string_hashes_kernel(codes) if kernel else string_hashes_reference(codes)
+
+
+@numba.njit(cache=True)
+def string_hashes_kernel(codes):
+    """FNV-1a over the rows of ``codes`` (UCS-4 code units, one string per row)."""
+    hashes = np.empty(codes.shape[0], np.uint64)
+    for row in range(codes.shape[0]):
+        value = FNV_OFFSET
+        for column in range(codes.shape[1]):
+            value = (value ^ np.uint64(codes[row, column])) * FNV_PRIME
+        hashes[row] = value
+    return hashes
+
+
+def string_hashes_reference(codes: np.ndarray) -> np.ndarray:
+    """:func:`string_hashes_kernel` in NumPy, one pass per column."""
+    hashes = np.full(codes.shape[0], FNV_OFFSET, np.uint64)
+    for column in codes.T:
+        hashes ^= column
+        hashes *= FNV_PRIME
+    return hashes
+
+
+def repeated_strings(strings: np.ndarray) -> tuple[np.ndarray, int]:
+    """Indices of the entries whose text occurs more than once, and how many distinct texts do.
+
+    Sorting 64-bit hashes (:func:`string_hashes`) finds the candidates; only entries whose hash
+    repeats are compared exactly (:func:`numpy.unique`), so a hash collision costs time, never
+    a wrong answer. Same result as :func:`repeated_strings_reference`.
+    """
+    hashes = string_hashes(strings)
+    ordered = np.sort(hashes)
+    clashes = ordered[1:][ordered[1:] == ordered[:-1]]
+    if clashes.size == 0:
+        return np.empty(0, np.int64), 0
+    return _repeated_among(strings, np.flatnonzero(np.isin(hashes, clashes)))
+
+
+def repeated_strings_reference(strings: np.ndarray) -> tuple[np.ndarray, int]:
+    """:func:`repeated_strings` by sorting the text itself (:func:`numpy.unique`)."""
+    return _repeated_among(strings, np.arange(len(strings)))
+
+
+def _repeated_among(strings: np.ndarray, candidates: np.ndarray) -> tuple[np.ndarray, int]:
+    _, inverse, counts = np.unique(np.asarray(strings)[candidates], return_inverse=True,
+                                       return_counts=True)
+    return candidates[counts[inverse.reshape(-1)] > 1].astype(np.int64), int((counts > 1).sum())
+
+
 def _value_findings(net: Network) -> list:
     findings = []
     bad = _indices(~np.isfinite(net.value))
@@ -104,30 +168,42 @@ def _value_findings(net: Network) -> list:
         findings.append(Finding(WARNING, "self-loop",
                                 f"{loops.size} branch(es) start and end on the same node",
                                 nodes=np.unique(net.from_node[loops]), branches=loops))
-    _, first, counts = np.unique(net.branch_names, return_index=True, return_counts=True)
-    if np.any(counts > 1):
-        repeated = np.isin(net.branch_names, net.branch_names[first[counts > 1]])
-        dup = _indices(repeated)
+    dup, names_repeated = repeated_strings(net.branch_names)
+    if dup.size:
         findings.append(Finding(WARNING, "duplicate-name",
-                                f"{int((counts > 1).sum())} branch name(s) are used more than "
+                                f"{names_repeated} branch name(s) are used more than "
                                 f"once ({dup.size} branches)", branches=dup))
     ideal = _indices((net.kind == RESISTOR) & (net.value == 0))
     if ideal.size:
         findings.append(Finding(INFO, "ideal-connection",
                                 f"{ideal.size} zero-ohm resistor(s) are ideal connections; the "
                                 "nodes they join are merged", branches=ideal))
+    spread = spread_finding(net)
+    return findings + ([spread] if spread else [])
+
+
+def conductance_spread(net: Network) -> float | None:
+    """Largest over smallest positive finite resistance (None without such resistors)."""
     resistive = (net.kind == RESISTOR) & (net.value > 0) & np.isfinite(net.value)
-    if resistive.any():
-        with np.errstate(over="ignore"):
-            spread = float(net.value[resistive].max() / net.value[resistive].min())
-        if spread > CONDUCTANCE_SPREAD_LIMIT:
-            findings.append(Finding(
-                WARNING, "ill-conditioned",
-                f"resistances span a factor of {spread:.3g} (over {CONDUCTANCE_SPREAD_LIMIT:.0e}); "
-                "expect lost digits in the solution",
-                branches=_indices(resistive)[[int(np.argmin(net.value[resistive])),
-                                              int(np.argmax(net.value[resistive]))]]))
-    return findings
+    if not resistive.any():
+        return None
+    with np.errstate(over="ignore"):
+        return float(net.value[resistive].max() / net.value[resistive].min())
+
+
+def spread_finding(net: Network) -> Finding | None:
+    """The ``ill-conditioned`` warning when the resistances span more than
+    :data:`CONDUCTANCE_SPREAD_LIMIT`, else None."""
+    spread = conductance_spread(net)
+    if spread is None or spread <= CONDUCTANCE_SPREAD_LIMIT:
+        return None
+    resistive = _indices((net.kind == RESISTOR) & (net.value > 0) & np.isfinite(net.value))
+    return Finding(
+        WARNING, "ill-conditioned",
+        f"resistances span a factor of {spread:.3g} (over {CONDUCTANCE_SPREAD_LIMIT:.0e}); "
+        "expect lost digits in the solution",
+        branches=resistive[[int(np.argmin(net.value[resistive])),
+                            int(np.argmax(net.value[resistive]))]])
 
 
 def tree_path(net: Network, contraction: Contraction, branch: int) -> np.ndarray:
@@ -189,8 +265,20 @@ def _components(n: int, a: np.ndarray, b: np.ndarray) -> tuple[int, np.ndarray]:
     return count, labels.astype(np.int64)
 
 
-def _floating_findings(net: Network, allow_floating: bool) -> tuple[list, np.ndarray, int]:
-    count, label = _conductive_components(net)
+def _all_components(net: Network, conductive_label: np.ndarray) -> int:
+    """Connected components of the whole graph: the components of the resistors and voltage
+    sources (``conductive_label``) joined by the current sources."""
+    sources = net.kind == CURRENT_SOURCE
+    count = int(conductive_label.max()) + 1 if conductive_label.size else 0
+    if not sources.any():
+        return count
+    joined, _ = _components(count, conductive_label[net.from_node[sources]],
+                            conductive_label[net.to_node[sources]])
+    return joined
+
+
+def _floating_findings(net: Network, allow_floating: bool, count: int,
+                       label: np.ndarray) -> tuple[list, np.ndarray, int]:
     grounded = label[net.reference]
     sources = np.flatnonzero(net.kind == CURRENT_SOURCE)
     amps = np.nan_to_num(net.value[sources])
@@ -260,14 +348,13 @@ def check(net: Network, *, allow_floating: bool = False) -> CheckReport:
     topology = net if usable.all() else net.with_values(np.where(usable, net.value, 1.0))
     contraction = contract(topology)
     findings += _loop_findings(topology, contraction)
-    floating_findings, pinned, unpinned = _floating_findings(topology, allow_floating)
+    count, label_of_conductive = _conductive_components(topology)
+    floating_findings, pinned, unpinned = _floating_findings(topology, allow_floating, count,
+                                                             label_of_conductive)
     findings += floating_findings
-    n_components, _ = _components(net.n_nodes, net.from_node, net.to_node)
+    n_components = _all_components(topology, label_of_conductive)
     unknowns = contraction.n_supernodes - 1 - pinned.size
-    resistive = (net.kind == RESISTOR) & (net.value > 0) & np.isfinite(net.value)
-    with np.errstate(over="ignore"):
-        spread = (float(net.value[resistive].max() / net.value[resistive].min())
-                  if resistive.any() else None)
+    spread = conductance_spread(net)
     summary = {
         "nodes": net.n_nodes,
         "branches": net.n_branches,

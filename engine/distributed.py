@@ -124,7 +124,7 @@ def local_stamps(part: BranchPart, nodes: NodeUnknowns):
     return (rows[keep], cols[keep], values[keep]), (index[wanted], terms[wanted])
 
 
-def _gather(PETSc, vector, indices: np.ndarray) -> np.ndarray:
+def gather(PETSc, vector, indices: np.ndarray) -> np.ndarray:
     """Values of a distributed vector at global ``indices`` (collective: a VecScatter)."""
     local = PETSc.Vec().createSeq(indices.size, comm=PETSc.COMM_SELF)
     where = PETSc.IS().createGeneral(indices.astype(PETSc.IntType), comm=PETSc.COMM_SELF)
@@ -168,13 +168,13 @@ def solve_distributed(comm, part: BranchPart, own_nodes: NodeUnknowns, node_rang
     # The map entries of this slice's endpoints, numbered compactly.
     m = part.kind.size
     ends, compact = np.unique(np.concatenate([part.from_node, part.to_node]), return_inverse=True)
-    nodes = _fetch_node_map(PETSc, own_nodes, node_range, n_nodes, ends)
+    nodes = fetch_node_map(PETSc, own_nodes, node_range, n_nodes, ends)
     local_part = BranchPart(part.start, part.kind, compact[:m], compact[m:], part.value)
     (rows, cols, values), (index, terms) = local_stamps(local_part, nodes)
     size, rank = comm.Get_size(), comm.Get_rank()
     bounds = np.array([n_unknowns * r // size for r in range(size + 1)], np.int64)
     lo, hi = bounds[rank], bounds[rank + 1]
-    rows, cols, values = _to_owners(comm, bounds, rows, cols, values)
+    rows, cols, values = to_owners(comm, bounds, rows, cols, values)
     local = sp.csr_matrix((values, (rows - lo, cols)), shape=(hi - lo, n_unknowns))
     local.sum_duplicates()
     local.sort_indices()
@@ -183,7 +183,7 @@ def solve_distributed(comm, part: BranchPart, own_nodes: NodeUnknowns, node_rang
         csr=(local.indptr.astype(PETSc.IntType), local.indices.astype(PETSc.IntType),
              local.data), comm=world)
     matrix.assemble()
-    index, terms = _to_owners(comm, bounds, index, terms)
+    index, terms = to_owners(comm, bounds, index, terms)
     rhs, x = matrix.createVecRight(), matrix.createVecLeft()
     rhs.setArray(np.bincount(index - lo, terms, minlength=hi - lo).astype(np.float64))
     timings["assemble"] = time.perf_counter() - start
@@ -209,7 +209,7 @@ def solve_distributed(comm, part: BranchPart, own_nodes: NodeUnknowns, node_rang
     unknown_at = np.concatenate([nodes.unknown, own_nodes.unknown])
     needed, position = np.unique(unknown_at, return_inverse=True)
     at_needed = np.full(needed.size, np.nan)
-    at_needed[needed >= 0] = _gather(PETSc, x, needed[needed >= 0])
+    at_needed[needed >= 0] = gather(PETSc, x, needed[needed >= 0])
     potential = np.where(unknown_at >= 0, at_needed[position],
                          np.concatenate([nodes.held, own_nodes.held]))
     voltage_at = potential + np.concatenate([nodes.offset, own_nodes.offset])
@@ -228,7 +228,7 @@ def solve_distributed(comm, part: BranchPart, own_nodes: NodeUnknowns, node_rang
     _add_node_sums(PETSc, sums, part.from_node, part.to_node, current)
     forest_nodes = (np.unique(np.concatenate([forest.from_node, forest.to_node]))
                     if forest is not None else np.empty(0, np.int64))
-    excess = _gather(PETSc, sums, forest_nodes)
+    excess = gather(PETSc, sums, forest_nodes)
     if forest is not None:
         local = np.searchsorted(forest_nodes, np.concatenate([forest.from_node, forest.to_node]))
         k = forest.branches.size
@@ -265,7 +265,7 @@ def solve_distributed(comm, part: BranchPart, own_nodes: NodeUnknowns, node_rang
         power_absorbed_by_sources=float(totals[3]), finite=finite, timings=timings)
 
 
-def _fetch_node_map(PETSc, own: NodeUnknowns, node_range, n_nodes: int,
+def fetch_node_map(PETSc, own: NodeUnknowns, node_range, n_nodes: int,
                     wanted: np.ndarray) -> NodeUnknowns:
     """The map entries of the ``wanted`` nodes from the processes holding them (collective).
 
@@ -277,12 +277,12 @@ def _fetch_node_map(PETSc, own: NodeUnknowns, node_range, n_nodes: int,
         vector = PETSc.Vec().createMPI((node_range[1] - node_range[0], n_nodes),
                                        comm=PETSc.COMM_WORLD)
         vector.setArray(values)
-        fetched.append(_gather(PETSc, vector, wanted))
+        fetched.append(gather(PETSc, vector, wanted))
         vector.destroy()
     return NodeUnknowns(fetched[0].astype(np.int64), fetched[1], fetched[2])
 
 
-def _to_owners(comm, bounds: np.ndarray, rows: np.ndarray, *columns: np.ndarray):
+def to_owners(comm, bounds: np.ndarray, rows: np.ndarray, *columns: np.ndarray):
     """Send every entry to the process owning its row (``bounds[r] <= row < bounds[r + 1]``).
 
     Collective (``MPI_Alltoallv``). Returns the received ``rows`` and ``columns`` in the same order.

@@ -227,6 +227,22 @@ def _nominal_from_sources(net, v, node_net, k, held) -> np.ndarray:
 
 
 def _worst_per_net(node_net, drop, counted, k):
+    """Largest drop of every net and its node (the last such node on a tie), in linear time."""
+    worst_node = np.full(k, -1, np.int64)
+    worst_drop = np.full(k, np.nan)
+    index = np.flatnonzero(counted)
+    if index.size:
+        nets, drops = node_net[index], drop[index]
+        largest = np.full(k, -np.inf)
+        np.maximum.at(largest, nets, drops)
+        at_largest = drops == largest[nets]
+        np.maximum.at(worst_node, nets[at_largest], index[at_largest])
+        worst_drop[worst_node >= 0] = largest[worst_node >= 0]
+    return worst_node, worst_drop
+
+
+def _worst_per_net_reference(node_net, drop, counted, k):
+    """:func:`_worst_per_net` by sorting (net, then drop)."""
     worst_node = np.full(k, -1, np.int64)
     worst_drop = np.full(k, np.nan)
     index = np.flatnonzero(counted)

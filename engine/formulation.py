@@ -26,6 +26,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+import numba
 import numpy as np
 import scipy.sparse as sp
 
@@ -75,7 +76,8 @@ def supernode_graph(net: Network, contraction: Contraction) -> SupernodeGraph:
                           contraction.n_supernodes)
 
 
-def grounded_matrix(graph: SupernodeGraph, free: np.ndarray, unknown_of: np.ndarray):
+def grounded_matrix(graph: SupernodeGraph, free: np.ndarray, unknown_of: np.ndarray,
+                    kernel: bool = True):
     """The Laplacian restricted to the free supernodes (rows and columns), in CSR form.
 
     Parameters
@@ -85,7 +87,28 @@ def grounded_matrix(graph: SupernodeGraph, free: np.ndarray, unknown_of: np.ndar
         Supernode of each unknown.
     unknown_of : ndarray of int64, shape (n_supernodes,)
         Unknown index of each supernode, -1 for supernodes with a known potential.
+    kernel : bool
+        Build the CSR arrays directly (:func:`grounded_csr_kernel`, default) or through
+        scipy's coordinate format (:func:`grounded_matrix_reference`); the two give the same
+        canonical matrix (sorted column indices, parallel resistors summed).
     """
+    if not kernel:
+        return grounded_matrix_reference(graph, free, unknown_of)
+    g = graph.conductance
+    n = graph.n_supernodes
+    diagonal = np.bincount(graph.a, g, minlength=n) + np.bincount(graph.b, g, minlength=n)
+    k = free.size
+    index = np.int32 if 2 * graph.a.size + k < np.iinfo(np.int32).max else np.int64
+    indptr, indices, data = grounded_csr_kernel(
+        k, unknown_of[graph.a].astype(index), unknown_of[graph.b].astype(index), g,
+        diagonal[free])
+    matrix = sp.csr_matrix((data, indices, indptr), shape=(k, k))
+    matrix.has_sorted_indices = matrix.has_canonical_format = True     # as the kernel made it
+    return matrix
+
+
+def grounded_matrix_reference(graph: SupernodeGraph, free: np.ndarray, unknown_of: np.ndarray):
+    """:func:`grounded_matrix` through scipy's coordinate format (the plain version)."""
     g = graph.conductance
     n = graph.n_supernodes
     diagonal = np.bincount(graph.a, g, minlength=n) + np.bincount(graph.b, g, minlength=n)
@@ -96,6 +119,84 @@ def grounded_matrix(graph: SupernodeGraph, free: np.ndarray, unknown_of: np.ndar
     cols = np.concatenate([np.arange(k), ub[both], ua[both]])
     data = np.concatenate([diagonal[free], -g[both], -g[both]])
     return sp.csr_matrix((data, (rows, cols)), shape=(k, k))
+
+
+@numba.njit(cache=True)
+def grounded_csr_kernel(k, ua, ub, g, diagonal):
+    """CSR arrays of the grounded Laplacian: ``diagonal`` on the diagonal and ``-g[e]`` at
+    ``(ua[e], ub[e])`` and ``(ub[e], ua[e])`` for every branch with both ends unknown (index
+    ``>= 0``). Rows are filled by a counting pass, then each row's entries are sorted by column
+    and equal columns (parallel branches) summed, as scipy's canonical CSR form has them
+    (Gustavson, ACM TOMS 4(3), 1978: sparse transposition and ordering by counting).
+
+    Returns
+    -------
+    indptr, indices : ndarray (the dtype of ``ua``)
+    data : ndarray of float64
+    """
+    count = np.ones(k + 1, ua.dtype)
+    count[k] = 0
+    for e in range(ua.shape[0]):
+        if ua[e] >= 0 and ub[e] >= 0:
+            count[ua[e]] += 1
+            count[ub[e]] += 1
+    indptr = np.zeros(k + 1, ua.dtype)
+    for row in range(k):
+        indptr[row + 1] = indptr[row] + count[row]
+    fill = indptr[:k].copy()
+    indices = np.empty(indptr[k], ua.dtype)
+    data = np.empty(indptr[k])
+    for row in range(k):
+        indices[fill[row]] = row
+        data[fill[row]] = diagonal[row]
+        fill[row] += 1
+    for e in range(ua.shape[0]):
+        a, b = ua[e], ub[e]
+        if a >= 0 and b >= 0:
+            indices[fill[a]] = b
+            data[fill[a]] = -g[e]
+            fill[a] += 1
+            indices[fill[b]] = a
+            data[fill[b]] = -g[e]
+            fill[b] += 1
+    # Sort every row by column and sum repeated columns, compacting in place (a row is copied
+    # to scratch space first; the compacted rows never overtake the rows still to be read).
+    widest = 0
+    for row in range(k):
+        widest = max(widest, indptr[row + 1] - indptr[row])
+    columns = np.empty(widest, ua.dtype)
+    values = np.empty(widest)
+    out = 0
+    start = 0
+    for row in range(k):
+        end = indptr[row + 1]
+        width = end - start
+        if width > 16:
+            order = np.argsort(indices[start:end], kind="mergesort")
+            for i in range(width):
+                columns[i] = indices[start + order[i]]
+                values[i] = data[start + order[i]]
+        else:                               # short rows: insertion sort
+            for i in range(width):
+                c, v = indices[start + i], data[start + i]
+                j = i - 1
+                while j >= 0 and columns[j] > c:
+                    columns[j + 1] = columns[j]
+                    values[j + 1] = values[j]
+                    j -= 1
+                columns[j + 1] = c
+                values[j + 1] = v
+        row_start = out
+        for i in range(width):
+            if out > row_start and indices[out - 1] == columns[i]:
+                data[out - 1] += values[i]
+            else:
+                indices[out] = columns[i]
+                data[out] = values[i]
+                out += 1
+        start = end
+        indptr[row + 1] = out
+    return indptr, indices[:out], data[:out]
 
 
 @dataclass(frozen=True)

@@ -49,6 +49,9 @@ class SessionStats:
     max_iterations : int
     max_relative_residual : float
         The largest measured ``||A x - b|| / ||b||`` over every returned solution.
+    seed : int or None
+        Seed of a randomised back end's preconditioner (``ac-cg``), so the run can be repeated
+        exactly; None for a deterministic one.
     predicted : dict
         The numbers behind ``auto``'s choice (:class:`~ohmgraph.engine.solvers.choice.Choice`):
         predicted seconds and bytes of each back end, factor entries and flops, the budget.
@@ -64,6 +67,7 @@ class SessionStats:
     solves: int = 0
     max_iterations: int = 0
     max_relative_residual: float = 0.0
+    seed: int | None = None
     predicted: dict = field(default_factory=dict)
     notes: list = field(default_factory=list)
 
@@ -136,7 +140,7 @@ class SolveSession:
         if self._solver is not None and self._solver.method == "direct":
             return
         start = time.perf_counter()
-        choice = choose(self.matrix, solves, self.memory_budget, self._analysis)
+        choice = choose(self.matrix, solves, self.memory_budget, self._analysis, self.rtol)
         self.stats.setup_seconds += time.perf_counter() - start
         self._analysis = choice.analysis or self._analysis
         if self._solver is None or choice.method != self._solver.method:
@@ -153,6 +157,9 @@ class SolveSession:
         else:
             self._solver = SOLVERS[method](self.matrix, self.rtol)
         self.stats.setup_seconds += time.perf_counter() - start
+        self.stats.seed = getattr(self._solver, "seed", None)
+        if self.stats.seed is not None:          # stored with the reason, so a run can repeat
+            reason = f"{reason}; seed {self.stats.seed}"
         self.stats.method, self.stats.reason = method, reason
 
     def solve(self, b: np.ndarray, x0: np.ndarray | None = None) -> np.ndarray:

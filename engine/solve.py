@@ -66,10 +66,13 @@ class Solution:
     notes : list of str
     report : CheckReport
     system : ReducedSystem
-        Kept for reuse (further right-hand sides, sensitivities).
+        Kept for reuse (further right-hand sides, sensitivities); None after
+        :meth:`release_solver`.
     session : SolveSession
         The solve session of the reduced system, set up and reusable for further right-hand
-        sides (adjoint solves, sensitivities).
+        sides (adjoint solves, sensitivities); None after :meth:`release_solver`.
+    unknowns : int or None
+        Unknowns of the reduced system.
     """
 
     network: Network
@@ -92,6 +95,13 @@ class Solution:
     report: CheckReport | None = None
     system: ReducedSystem | None = None
     session: SolveSession | None = None
+    unknowns: int | None = None
+
+    def release_solver(self) -> None:
+        """Let go of the reduced system and the solve session (matrix, solver set-up and
+        supernode graph: often the largest arrays held) once no further right-hand side will
+        come."""
+        self.system = self.session = None
 
     @property
     def power_delivered(self) -> float:
@@ -115,17 +125,18 @@ class Solution:
         labels, names = net.node_labels, net.branch_names
 
         def largest(values, mask):
-            index = np.flatnonzero(mask)
-            if index.size == 0:
-                return []
-            picked = index[np.argsort(-np.abs(values[index]), kind="stable")[:top]]
+            """The ``top`` largest |values| among the branches of ``mask`` (None: all)."""
+            if mask is None:
+                picked = largest_first(np.abs(values), top)
+            else:
+                index = np.flatnonzero(mask)
+                picked = index[largest_first(np.abs(values[index]), top)]
             return [{"branch": str(names[k]), "kind": "RVI"[net.kind[k]],
                      "from": str(labels[net.from_node[k]]), "to": str(labels[net.to_node[k]]),
                      "value": float(values[k])} for k in picked]
 
         v = self.node_voltage
         low, high = int(np.argmin(v)), int(np.argmax(v))
-        every = np.ones(net.n_branches, bool)
         return {
             "nodes": net.n_nodes,
             "branches": net.n_branches,
@@ -134,7 +145,7 @@ class Solution:
             "method_reason": self.method_reason,
             "rtol": self.rtol,
             "iterations": self.iterations,
-            "unknowns": self.system.n_unknowns if self.system else None,
+            "unknowns": self.unknowns,
             "relative_residual": self.relative_residual,
             "kcl_max_residual_A": self.kcl_max_residual,
             "kcl_worst_node": str(labels[self.kcl_worst_node]),
@@ -144,7 +155,7 @@ class Solution:
             "power_dissipated_W": self.power_dissipated,
             "voltage_min": {"node": str(labels[low]), "volts": float(v[low])},
             "voltage_max": {"node": str(labels[high]), "volts": float(v[high])},
-            "largest_currents_A": largest(self.branch_current, every),
+            "largest_currents_A": largest(self.branch_current, None),
             "largest_resistor_powers_W": largest(self.branch_power, net.kind == RESISTOR),
             "source_powers_W": largest(self.branch_power,
                                        (net.kind == VOLTAGE_SOURCE) | (net.kind == CURRENT_SOURCE)),
@@ -152,6 +163,19 @@ class Solution:
             "timings_s": dict(self.timings),
             "notes": list(self.notes),
         }
+
+
+def largest_first(magnitude: np.ndarray, top: int) -> np.ndarray:
+    """Positions of the ``top`` largest entries, largest first, ties in position order: the
+    first ``top`` of ``np.argsort(-magnitude, kind="stable")``, found by a partition (linear
+    time) so that only the chosen entries are sorted."""
+    if magnitude.size <= top or np.isnan(magnitude).any():     # NaN: the plain sort puts it last
+        return np.argsort(-magnitude, kind="stable")[:top]
+    threshold = np.partition(magnitude, magnitude.size - top)[magnitude.size - top]
+    above = np.flatnonzero(magnitude > threshold)
+    tied = np.flatnonzero(magnitude == threshold)[:top - above.size]
+    chosen = np.concatenate([above, tied])
+    return chosen[np.argsort(-magnitude[chosen], kind="stable")]
 
 
 def solve(net: Network, *, method: str = "auto", rtol: float = DEFAULT_RTOL,
@@ -238,7 +262,8 @@ def finish(net: Network, report: CheckReport, system: ReducedSystem, session: So
         power_balance=float(branches.power.sum()),
         power_dissipated=float(branches.power[net.kind == RESISTOR].sum()),
         timings=timings, notes=stats.notes + _pinned_notes(net, report), report=report,
-        system=system, session=session, method_reason=stats.reason)
+        system=system, session=session, method_reason=stats.reason,
+        unknowns=system.n_unknowns)
 
 
 def _pinned_notes(net: Network, report: CheckReport) -> list:

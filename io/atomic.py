@@ -13,13 +13,20 @@ A reader never sees a half-written file, and a failure leaves no file at all:
   is an empty file for that moment;
 * this process remembers its temporary and published files: when SIGINT or SIGTERM ends the run
   (:mod:`ohmgraph.io.interrupts`), :func:`discard_run_files` removes them all, so an interrupt at
-  any stage leaves nothing behind.
+  any stage leaves nothing behind;
+* a run that changes an existing file (``--append``: read, extend, publish the new version)
+  holds :func:`exclusive` on it, so of two such runs the second reads the first's result and
+  both changes land. It is an advisory lock (``flock``) on ``.NAME.lock`` beside the file:
+  the kernel releases it when its process ends however it ends, so a killed run never blocks
+  the next one; the holder removes the lock file when done (a killed one leaves it behind,
+  unlocked and harmless, and the next run removes it).
 """
 
 from __future__ import annotations
 
 import contextlib
 import errno
+import fcntl
 import os
 from pathlib import Path
 
@@ -141,6 +148,67 @@ def atomic_output(path, force: bool = False):
             _remove(temporary)
             _RunFiles.temporaries.discard(temporary)
     checkpoint("published")
+
+
+# flock is not available on this file system: the change goes ahead without the lock.
+NO_LOCKS = {errno.ENOLCK, errno.EOPNOTSUPP, errno.ENOTSUP, errno.ENOSYS}
+
+
+def _lock_descriptor(lock: Path) -> int | None:
+    """An open descriptor of ``lock`` holding its exclusive lock (None where locks do not work).
+
+    A waiter may get the lock of a file the holder has just removed; it then tries again on the
+    current one (the lock counts only while the name still points to the locked file).
+    """
+    while True:
+        descriptor = os.open(lock, os.O_RDWR | os.O_CREAT, 0o666)
+        try:
+            try:
+                fcntl.flock(descriptor, fcntl.LOCK_EX | fcntl.LOCK_NB)
+            except BlockingIOError:
+                checkpoint("locked-out")               # another run holds it: wait for it
+                fcntl.flock(descriptor, fcntl.LOCK_EX)
+            try:
+                current = os.stat(lock).st_ino == os.fstat(descriptor).st_ino
+            except FileNotFoundError:
+                current = False
+        except OSError as error:
+            os.close(descriptor)
+            if error.errno in NO_LOCKS:
+                return None
+            raise
+        except BaseException:
+            os.close(descriptor)
+            raise
+        if current:
+            return descriptor
+        os.close(descriptor)
+
+
+@contextlib.contextmanager
+def exclusive(path):
+    """Hold the advisory lock of ``path`` for the block (module notes); runs that change the
+    same file take turns.
+
+    Raises
+    ------
+    OutputRefused
+        If the lock file cannot be created beside ``path`` (a read-only folder, for example).
+    """
+    path = Path(path)
+    lock = path.with_name(f".{path.name}.lock")
+    try:
+        descriptor = _lock_descriptor(lock)
+    except OSError as error:
+        raise OutputRefused(f"{path}: cannot be locked for the change ({reason(error)})") \
+            from None
+    try:
+        yield
+    finally:
+        if descriptor is not None:
+            with deferred():
+                _remove(lock)
+                os.close(descriptor)
 
 
 def _remove(path: Path) -> None:

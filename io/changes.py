@@ -14,10 +14,13 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
-import pandas as pd
+import pyarrow as pa
+import pyarrow.compute as pc
 
+from ohmgraph.engine.checks import CheckReport
+from ohmgraph.engine.contraction import contract
 from ohmgraph.engine.network import KIND_CODE, KIND_LETTERS, RESISTOR, Network
-from ohmgraph.engine.variant import BranchChanges
+from ohmgraph.engine.variant import BranchChanges, changed_report, values_only
 from ohmgraph.io.errors import InputError, ProblemList
 from ohmgraph.io.reader import COLUMNS, RATING_COLUMNS
 from ohmgraph.io.text_table import read_text_table
@@ -73,6 +76,7 @@ def read_changes(path, net: Network) -> ChangeFile:
         row names a branch that does not exist without ``from`` and ``to``, opens a branch that
         is not a resistor, contradicts the branch it names, or repeats a name.
     """
+    import pandas as pd           # imported on use: keeps start-up short
     path = Path(path)
     table = read_text_table(path, "change file", COLUMNS, required=("name", "value"))
     for column in COLUMNS:
@@ -82,9 +86,12 @@ def read_changes(path, net: Network) -> ChangeFile:
     table = table[(table[list(COLUMNS)] != "").any(axis=1)]
 
     problems = ProblemList(path)
-    # First branch of each named row: look the network's names up among the file's few names.
+    # First branch of each named row: look the network's names up among the file's few names
+    # (Arrow's hash lookup: about 2.5x faster than pandas' at 10^6 names, which it would first
+    # turn into Python strings).
     wanted = pd.Index(table["name"].unique())
-    hit = wanted.get_indexer(net.branch_names)
+    hit = pc.index_in(pa.array(net.branch_names), value_set=pa.array(wanted.to_numpy(str)))
+    hit = hit.fill_null(-1).to_numpy().astype(np.int64)
     found = np.flatnonzero(hit >= 0)
     first = np.full(len(wanted), -1, np.int64)
     first[hit[found][::-1]] = found[::-1]                  # the last write, the first branch
@@ -190,3 +197,17 @@ def change_note(path, changes: BranchChanges) -> str:
     return (f"{CHANGES_NOTE}{path}: {changes.index.size - changes.opened.size:,} value(s) set, "
             f"{changes.opened.size:,} resistor(s) opened, {changes.new_names.size:,} "
             "branch(es) added")
+
+
+def check_from_base(findings: list, summary: dict, net: Network, changes: BranchChanges,
+                    changed: Network) -> CheckReport | None:
+    """The changed network's check report from the check ``findings`` and ``summary`` stored
+    with the solution of ``net`` (the very network, read from that file), without a new check,
+    when the changes only set values (:func:`ohmgraph.engine.variant.changed_report` says why
+    nothing else can change); None otherwise, when the base pinned floating islands, or when
+    the file holds no check summary (written before ``/checks`` was stored)."""
+    if (not summary or any(f.code == "pinned-island" for f in findings)
+            or not values_only(net, changes)):
+        return None
+    stored = CheckReport(list(findings), dict(summary), contract(changed), np.empty(0, np.int64))
+    return changed_report(stored, net, changes, changed)

@@ -15,7 +15,7 @@ import os
 import signal
 import sys
 
-from . import atomic, interrupts
+from . import address_space, atomic, interrupts
 from .errors import EXIT_BAD_INPUT, EXIT_NO_MEMORY, EXIT_OK, OUT_OF_MEMORY, UserError
 
 # Every command and its one-line summary. ``ohmgraph --help`` lists them without importing any
@@ -91,6 +91,10 @@ def main(argv=None) -> int:
                 interrupts.checkpoint("start")
                 argv = sys.argv[1:] if argv is None else list(argv)
                 name = " ".join(["ohmgraph", *chosen_command(argv)])
+                refusal = address_space.prepare()      # before the heavy libraries load
+                if refusal is not None:
+                    print(f"{name}: error: {refusal}", file=sys.stderr)
+                    return EXIT_NO_MEMORY
                 try:
                     args = build_parser(chosen_command(argv)).parse_args(argv)
                     name = f"ohmgraph {args.command}"
@@ -113,6 +117,7 @@ def main(argv=None) -> int:
             return code
         atomic.discard_run_files()
         print(f"{name}: interrupted by {interrupt}; no output was written", file=sys.stderr)
+        interrupts.end_without_shutdown(interrupt.exit_code)
         return interrupt.exit_code
 
 

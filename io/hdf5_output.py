@@ -6,7 +6,8 @@ interpreter on closing the file. :func:`create_hdf5` therefore hands HDF5 a Pyth
 (h5py's ``fileobj`` driver) that performs every write itself: the first ``OSError`` is kept and
 the rest of the file is discarded, HDF5 finishes without noticing, and the kept error is raised
 once the file is closed. The caller writes into a temporary file
-(:func:`ohmgraph.io.atomic.atomic_output`), which is then removed.
+(:func:`ohmgraph.io.atomic.atomic_output`), which is then removed. Signals are held while HDF5
+has the file open (see :func:`create_hdf5`).
 """
 
 from __future__ import annotations
@@ -15,6 +16,8 @@ import contextlib
 import io
 
 import h5py
+
+from .interrupts import deferred
 
 
 class _FailureKeepingFile(io.RawIOBase):
@@ -76,7 +79,10 @@ def create_hdf5(path, mode: str = "w", **options):
     """
     with open(path, {"w": "w+b", "a": "r+b"}[mode], buffering=0) as raw:
         keeper = _FailureKeepingFile(raw)
-        with h5py.File(keeper, mode, **options) as h5:
+        # HDF5 calls the file object's methods from C: an interrupt raised inside one of them
+        # would be lost there and leave the library in a broken state (a crash at exit), so
+        # SIGINT and SIGTERM are held while the file is open and raised once it is closed.
+        with deferred(), h5py.File(keeper, mode, **options) as h5:
             yield h5
         keeper.flush()
     if keeper.error is not None:

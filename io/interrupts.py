@@ -9,8 +9,15 @@ Code that must not be cut in half — the publishing of a finished file and the 
 runs under :func:`deferred`: a signal arriving there is held and raised when the block ends.
 
 Python runs signal handlers between bytecodes of the main thread, so a signal that arrives in
-the middle of a long compiled call (a sparse factorisation, a numba kernel) takes effect when
-that call returns.
+the middle of a long compiled call on that thread takes effect when the call returns. The solver
+back ends therefore set up and solve in a worker thread
+(:func:`ohmgraph.engine.solvers.base.in_worker`) while the main thread waits in short timed
+joins: SuperLU and SciPy's sparse products release the GIL, so the signal is acted on within
+a poll. The abandoned worker may still be inside compiled code when the run ends; an
+interpreter shutting down around it can crash (freed objects) or fail to flush its streams, so
+:func:`end_without_shutdown` ends such a process at once (``os._exit``) once the run's clean-up
+is done. Calls that still hold the main thread until they return are listed in the README
+("When things go wrong").
 
 :func:`checkpoint` marks the stages of a run for tests: with ``OHMGRAPH_TEST_STAGES`` set it
 prints ``ohmgraph: stage NAME`` on standard error, and with ``OHMGRAPH_TEST_PAUSE=NAME`` it
@@ -20,8 +27,10 @@ stage or release two runs together.
 
 from __future__ import annotations
 
+import atexit
 import contextlib
 import os
+import select
 import signal
 import sys
 
@@ -106,4 +115,26 @@ def checkpoint(stage: str) -> None:
         return
     print(f"ohmgraph: stage {stage}", file=sys.stderr, flush=True)
     if os.environ.get("OHMGRAPH_TEST_PAUSE") == stage:
-        sys.stdin.read()
+        # Until standard input closes, or until a signal arrives where signals are held (the
+        # run then goes on to the end of the held block, as it would have without the pause).
+        while not (_State.deferring and _State.received is not None):
+            if select.select([sys.stdin], [], [], 0.05)[0]:
+                sys.stdin.read()
+                return
+
+
+def end_without_shutdown(code: int) -> None:
+    """If a worker thread is still running (abandoned by an interrupt), end the process with
+    ``code`` as soon as the interpreter starts to exit, skipping the shutdown that would free
+    the objects the worker is using. Call after the run's clean-up."""
+    from ohmgraph.engine.solvers.base import workers_unfinished
+
+    if workers_unfinished():
+        atexit.register(_exit_now, code)
+
+
+def _exit_now(code: int) -> None:
+    for stream in (sys.stdout, sys.stderr):
+        with contextlib.suppress(Exception):
+            stream.flush()
+    os._exit(code)

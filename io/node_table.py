@@ -13,7 +13,6 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
-import pandas as pd
 
 from ohmgraph.engine.network import Network
 from ohmgraph.io.errors import InputError, ProblemList
@@ -53,6 +52,7 @@ def read_node_table(path, net: Network) -> NodeTable:
         When the file cannot be read, a column is unknown or missing, a label is not a node of
         the network or repeats, or a coordinate is not a finite number.
     """
+    import pandas as pd           # imported on use: keeps start-up short
     path = Path(path)
     table = read_text_table(path, "node table", NODE_COLUMNS, required=("label",))
     if ("x" in table.columns) != ("y" in table.columns):
@@ -92,9 +92,10 @@ def read_node_table(path, net: Network) -> NodeTable:
 def node_table_by_label(stored, net: Network) -> NodeTable | None:
     """The node table of a stored solution carried over to ``net`` by label (None when the
     solution has none); nodes it does not know get no coordinates."""
+    import pandas as pd           # imported on use: keeps start-up short
     if "nodes/x" not in stored.extra and "nodes/layer" not in stored.extra:
         return None
-    where = pd.Index(stored.network.node_labels).get_indexer(net.node_labels)
+    where = pd.Index(stored.node_labels).get_indexer(net.node_labels)
     found = where >= 0
 
     def carried(name, fill):

@@ -35,6 +35,18 @@ def read_pairs(path, net: Network) -> tuple[np.ndarray, np.ndarray, np.ndarray, 
         When the file is missing, is not CSV, lacks a column, has an empty field or names a node
         the network does not have (message ``FILE:LINE: column 'b': ...``).
     """
+    a_labels, b_labels = read_pair_labels(path)
+    return a_labels, b_labels, *resolve_pair_labels(path, (a_labels, b_labels), net.label_index)
+
+
+def read_pair_labels(path) -> tuple[np.ndarray, np.ndarray]:
+    """The labels of the pairs (columns ``a`` and ``b``), checked but not resolved.
+
+    Raises
+    ------
+    InputError
+        As :func:`read_pairs`, except for unknown nodes.
+    """
     path = Path(path)
     if not path.exists():
         raise InputError(f"{path}: no such file")
@@ -64,20 +76,33 @@ def read_pairs(path, net: Network) -> tuple[np.ndarray, np.ndarray, np.ndarray, 
                          f"columns a and b; found {', '.join(map(repr, table.columns))})")
     if table.shape[0] == 0:
         raise InputError(f"{path}: no pairs after the header")
-    labels, indices = [], []
+    labels = []
     for column in PAIR_COLUMNS:
         values = table[columns[column]].astype(str).str.strip().to_numpy(dtype=str)
         empty = np.flatnonzero(values == "")
         if empty.size:
             raise InputError(f"{path}:{empty[0] + HEADER_LINES + 1}: column {column!r} is empty")
-        table_index = net.label_index
-        found = np.array([table_index.get(v, -1) for v in values.tolist()], np.int64)
+        labels.append(values)
+    return labels[0], labels[1]
+
+
+def resolve_pair_labels(path, labels, label_index) -> tuple[np.ndarray, np.ndarray]:
+    """Node indices of the pairs' labels (``label_index``: a mapping from label to index, such
+    as :attr:`Network.label_index`, or one holding only the labels asked for).
+
+    Raises
+    ------
+    InputError
+        Naming the file, line and column of the first label ``label_index`` lacks.
+    """
+    indices = []
+    for column, values in zip(PAIR_COLUMNS, labels):
+        found = np.array([label_index.get(v, -1) for v in values.tolist()], np.int64)
         unknown = np.flatnonzero(found < 0)
         if unknown.size:
             row = unknown[0]
             more = f" (and {unknown.size - 1} more unknown)" if unknown.size > 1 else ""
             raise InputError(f"{path}:{row + HEADER_LINES + 1}: column {column!r}: unknown node "
                              f"{str(values[row])!r}{more}")
-        labels.append(values)
         indices.append(found)
-    return labels[0], labels[1], indices[0], indices[1]
+    return indices[0], indices[1]

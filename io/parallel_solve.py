@@ -40,11 +40,27 @@ def share(total: int, rank: int, size: int) -> tuple[int, int]:
     return total * rank // size, total * (rank + 1) // size
 
 
+def require_network_file(path) -> None:
+    """Refuse (:class:`LaunchError`) any network file but an HDF5 one from ``convert``."""
+    if Path(path).is_file() and not is_hdf5(path):
+        raise LaunchError(f"{path}: a run under mpiexec reads an HDF5 network file; "
+                          f"write one with 'ohmgraph convert {path} -o NET.h5'")
+
+
+def read_slice(stored: StoredNetwork, rank: int, size: int):
+    """Process ``rank``'s branches and its nodes' map: ``(part, own_nodes, node_range)``."""
+    lo, hi = share(stored.n_branches, rank, size)
+    rows = stored.branches(lo, hi)
+    part = BranchPart(lo, rows.kind, rows.from_node, rows.to_node, rows.value)
+    node_range = share(stored.n_nodes, rank, size)
+    own_nodes = NodeUnknowns(*(stored.column(f"nodes/{name}", *node_range)
+                               for name in ("unknown", "held", "offset")))
+    return part, own_nodes, node_range
+
+
 def _read(args, rank: int, size: int):
     """This process's slice, the node map and (first process) the forest; checks the launch."""
-    if Path(args.network).is_file() and not is_hdf5(args.network):
-        raise LaunchError(f"{args.network}: a run under mpiexec reads an HDF5 network file; "
-                          f"write one with 'ohmgraph convert {args.network} -o NET.h5'")
+    require_network_file(args.network)
     with StoredNetwork(args.network) as stored:
         if str(args.ground) != stored.reference_label:
             raise InputError(f"{args.network}: the file was converted with reference node "
@@ -54,12 +70,7 @@ def _read(args, rank: int, size: int):
             raise InputError(f"{args.network}: the file was converted "
                              f"{'with' if stored.allow_floating else 'without'} "
                              "--allow-floating; convert again to change it")
-        lo, hi = share(stored.n_branches, rank, size)
-        rows = stored.branches(lo, hi)
-        part = BranchPart(lo, rows.kind, rows.from_node, rows.to_node, rows.value)
-        node_range = share(stored.n_nodes, rank, size)
-        own_nodes = NodeUnknowns(*(stored.column(f"nodes/{name}", *node_range)
-                                   for name in ("unknown", "held", "offset")))
+        part, own_nodes, node_range = read_slice(stored, rank, size)
         forest = _forest(stored) if rank == 0 else None
         return stored.n_nodes, stored.unknowns, part, own_nodes, node_range, forest
 
@@ -146,7 +157,7 @@ def _max():
 def _create(group, name: str, shape: int, dtype, source: h5py.Dataset | None = None):
     """An empty dataset of the solution layout (chunked, checksummed and compressed like the
     store's, :func:`ohmgraph.io.hdf5_integrity.dataset_options`)."""
-    options = dataset_options(np.empty(shape, dtype=dtype))
+    options = dataset_options(np.empty(shape, dtype=dtype), probe=False)
     options.pop("maxshape", None)
     dataset = group.create_dataset(name, shape=(shape,), dtype=dtype, **options)
     key = f"{group.name.strip('/')}/{name}"

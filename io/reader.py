@@ -44,6 +44,7 @@ import pyarrow.parquet as pq
 
 from ohmgraph.engine.checks import INFO, CheckReport, Finding, check
 from ohmgraph.engine.network import KIND_CODE, RESISTOR, Network
+from ohmgraph.io.address_space import refuse_to_read
 from ohmgraph.io.errors import InputError, ProblemList
 from ohmgraph.io.formats import EDGE_LIST, PARQUET, network_format
 from ohmgraph.io.network_file import is_hdf5, read_stored_network
@@ -68,10 +69,11 @@ NUL = "\x00"
 
 @dataclass(frozen=True)
 class _Columns:
-    """Parsed branch columns before node numbering."""
+    """Parsed branch columns, nodes numbered (:func:`_number_nodes`)."""
 
-    from_labels: pa.Array
-    to_labels: pa.Array
+    labels: pa.Array
+    from_node: np.ndarray
+    to_node: np.ndarray
     value: np.ndarray
     kind: np.ndarray
     names: pa.Array | None
@@ -179,13 +181,18 @@ def read_network_file(path, ground: str | None = "0") -> NetworkFile:
     except (OSError, EOFError) as error:      # unreadable gzip stream or a failing disk
         raise InputError(f"{path}: cannot be read ({error})") from None
     network = _build_network(path, columns, None if ground is None else str(ground))
-    return NetworkFile(path, network, _reading_findings(columns), columns.ratings)
+    findings, ratings = _reading_findings(columns), columns.ratings
+    del columns
+    # Arrow's allocator keeps freed pages for reuse; nothing later reads through Arrow, so
+    # hand them back (about 40 % of the resident memory after reading a large table).
+    pa.default_memory_pool().release_unused()
+    return NetworkFile(path, network, findings, ratings)
 
 
 def _reading_findings(columns: _Columns) -> tuple:
     if not columns.values_defaulted:
         return ()
-    count = len(columns.from_labels)
+    count = len(columns.from_node)
     return (Finding(INFO, "default-resistance",
                     f"the edge list gives no values (two fields per line, from to): each of "
                     f"its {count} branch(es) is read as a {DEFAULT_OHMS:g} ohm resistor"),)
@@ -252,6 +259,7 @@ def _reader_threads() -> bool:
 
 def _read_table(path: Path, delimiter: str) -> _Columns:
     header_line, header = _read_header(path, delimiter)
+    refuse_to_read(path, path.stat().st_size, path.suffix == ".gz")
     try:
         table = pa_csv.read_csv(
             path,
@@ -260,7 +268,7 @@ def _read_table(path: Path, delimiter: str) -> _Columns:
             parse_options=pa_csv.ParseOptions(delimiter=delimiter),
             convert_options=pa_csv.ConvertOptions(
                 column_types={column: pa.string() for column in header}))
-        return _convert(table)
+        return _convert(_take_columns(table))
     except (pa.ArrowInvalid, _Rejected):
         return _exact_table(path, delimiter, header)
 
@@ -279,13 +287,14 @@ def _read_parquet(path: Path) -> _Columns:
     except pa.ArrowException as error:
         raise InputError(f"{path}: a column cannot be read as text ({error})") from None
     try:
-        return _convert(text)
+        return _convert(_take_columns(text))
     except (pa.ArrowInvalid, _Rejected):
         return _exact_rows(path, text, header)
 
 
 def _read_edge_list(path: Path) -> _Columns:
     """Whole lines through ``pyarrow.csv`` (no delimiter, no quoting), then vectorised splitting."""
+    refuse_to_read(path, path.stat().st_size, path.suffix == ".gz")
     try:
         table = pa_csv.read_csv(
             path,
@@ -304,64 +313,116 @@ def _read_edge_list(path: Path) -> _Columns:
             raise _Rejected
         flat = pc.list_flatten(fields)
         starts = np.arange(0, len(flat), width)
-        return _convert(pa.table({name: flat.take(starts + k)
-                                  for k, name in enumerate(EDGE_LIST_FIELDS[:width])}))
+        return _convert({name: flat.take(starts + k)
+                         for k, name in enumerate(EDGE_LIST_FIELDS[:width])})
     except (pa.ArrowInvalid, _Rejected):
         return _exact_edge_list(path)
 
 
-def _convert(table: pa.Table) -> _Columns:
-    """Vectorised conversion of string columns; raises when any field is unusable."""
-    def trimmed(column):
-        return pc.utf8_trim_whitespace(table[column].combine_chunks())
+def _take_columns(table: pa.Table) -> dict:
+    """The table's columns by name; :func:`_convert` drops each once converted, so the whole
+    text table is not kept while the arrays are built (the caller keeps no reference)."""
+    return dict(zip(table.column_names, table.columns))
 
-    from_labels, to_labels = trimmed("from"), trimmed("to")
-    for labels in (from_labels, to_labels):
-        if pc.any(pc.equal(pc.utf8_length(labels), 0)).as_py():
-            raise _Rejected
-    for column in ("from", "to", "name"):
-        if column in table.column_names and pc.any(pc.match_substring(table[column], NUL)).as_py():
-            raise _Rejected
-    defaulted = "value" not in table.column_names
-    value = (np.full(len(table), DEFAULT_OHMS) if defaulted else
-             pc.cast(trimmed("value"), pa.float64()).to_numpy(zero_copy_only=False))
-    if "kind" in table.column_names:
+
+def _convert(table: dict) -> _Columns:
+    """Vectorised conversion of string columns (by name, Arrow arrays, chunked or not; each is
+    removed from ``table`` once converted); raises when any field is unusable.
+
+    Whole columns are trimmed only where trimming can matter: endpoint labels and kinds are
+    trimmed in their dictionaries (one entry per distinct text), values are parsed as they
+    stand and trimmed only when that fails.
+    """
+    def taken(column):
+        array = table.pop(column)
+        return array.combine_chunks() if isinstance(array, pa.ChunkedArray) else array
+
+    rows = len(table["from"])
+    labels, from_node, to_node = _number_nodes(taken("from"), taken("to"))
+    defaulted = "value" not in table
+    if defaulted:
+        value = np.full(rows, DEFAULT_OHMS)
+    else:
+        text = taken("value")
+        try:
+            value = pc.cast(text, pa.float64())
+        except pa.ArrowInvalid:             # surrounding spaces, or no number at all
+            value = pc.cast(pc.utf8_trim_whitespace(text), pa.float64())
+        del text
+        value = value.to_numpy(zero_copy_only=False)
+    if "kind" in table:
         spellings = pa.array(list(KIND_SPELLINGS))
-        position = pc.index_in(pc.utf8_upper(trimmed("kind")), value_set=spellings)
+        encoded = pc.dictionary_encode(taken("kind"))
+        position = pc.index_in(pc.utf8_upper(pc.utf8_trim_whitespace(encoded.dictionary)),
+                               value_set=spellings)
         if position.null_count:
             raise _Rejected
-        kind = np.asarray(list(KIND_SPELLINGS.values()), np.uint8)[position.to_numpy()]
+        codes = np.asarray(list(KIND_SPELLINGS.values()), np.uint8)[position.to_numpy()]
+        kind = codes[encoded.indices.to_numpy()]
+        del encoded
     else:
-        kind = np.full(len(table), RESISTOR, np.uint8)
-    names = trimmed("name") if "name" in table.column_names else None
+        kind = np.full(rows, RESISTOR, np.uint8)
+    names = None
+    if "name" in table:
+        names = taken("name")
+        if names.type != pa.string():
+            names = names.cast(pa.string())
+        text = _text_bytes(names)
+        if text.size and text.min() == 0:
+            raise _Rejected
+        del text                            # a view that would keep the untrimmed names
+        if _may_need_trimming(names):
+            names = pc.utf8_trim_whitespace(names)
     ratings = {}
     for column in RATING_COLUMNS:
-        if column in table.column_names:
-            text = trimmed(column)
+        if column in table:
+            text = pc.utf8_trim_whitespace(taken(column))
             text = pc.if_else(pc.equal(pc.utf8_length(text), 0), pa.scalar(None, pa.string()), text)
             ratings[column] = pc.cast(text, pa.float64()).to_numpy(zero_copy_only=False)
             given = ratings[column][~np.isnan(ratings[column])]
             if not np.all(np.isfinite(given) & (given > 0)):
                 raise _Rejected
-    return _Columns(from_labels, to_labels, value, kind, names, defaulted, ratings)
+    return _Columns(labels, from_node, to_node, value, kind, names, defaulted, ratings)
+
+
+def _number_nodes(from_labels: pa.Array, to_labels: pa.Array) -> tuple:
+    """Node labels in order of first appearance (``from`` column, then ``to``), trimmed, and
+    the ``from`` and ``to`` node of every branch; raises :class:`_Rejected` for an empty label
+    or one holding a NUL character.
+
+    The endpoints are dictionary-encoded as they stand and only the dictionary is trimmed; two
+    spellings that trim to one label are then merged (the merged label keeps the earlier first
+    appearance, so the numbering is the one trimming every field first would give).
+    """
+    endpoints = pa.concat_arrays([from_labels.cast(pa.string()), to_labels.cast(pa.string())])
+    encoded = pc.dictionary_encode(endpoints)
+    del endpoints
+    index = encoded.indices.to_numpy()
+    labels = pc.utf8_trim_whitespace(encoded.dictionary)
+    if not pc.all(pc.equal(labels, encoded.dictionary)).as_py():
+        merged = pc.dictionary_encode(labels)
+        index = merged.indices.to_numpy()[index]
+        labels = merged.dictionary
+    text = _text_bytes(labels)
+    if (pc.any(pc.equal(pc.binary_length(labels), 0)).as_py()
+            or (text.size and text.min() == 0)):
+        raise _Rejected
+    m = len(from_labels)
+    return labels, index[:m].astype(np.int64), index[m:].astype(np.int64)
 
 
 def _build_network(path: Path, columns: _Columns, ground: str | None) -> Network:
-    """Number the nodes (first appearance order over ``from`` then ``to``) and build the network."""
-    m = len(columns.from_labels)
+    """The network of numbered columns, with the reference node ``ground``."""
+    m = len(columns.from_node)
     if m == 0:
         raise InputError(f"{path}: the file holds no branches")
-    endpoints = pa.concat_arrays([columns.from_labels.cast(pa.string()),
-                                  columns.to_labels.cast(pa.string())])
-    encoded = pc.dictionary_encode(endpoints)
-    labels = _to_numpy_text(encoded.dictionary)
+    labels = _to_numpy_text(columns.labels)
     reference = np.flatnonzero(labels == ground) if ground is not None else np.arange(1)
     if reference.size == 0:
         raise InputError(f"{path}: reference node {ground!r} is not a node of the network; "
                          "name another with --ground")
-    index = encoded.indices.to_numpy().astype(np.int64)
-    return Network(labels, _branch_names(columns.names, m), columns.kind, index[:m], index[m:],
-                   columns.value, int(reference[0]))
+    return Network(labels, _branch_names(columns.names, m), columns.kind, columns.from_node,
+                   columns.to_node, columns.value, int(reference[0]))
 
 
 def _branch_names(names: pa.Array | None, m: int) -> np.ndarray:
@@ -372,13 +433,56 @@ def _branch_names(names: pa.Array | None, m: int) -> np.ndarray:
     if names is None:
         return _to_numpy_text(row_numbers())
     names = names.cast(pa.string())
-    empty = pc.equal(pc.utf8_length(names), 0)
+    empty = pc.equal(pc.binary_length(names), 0)
     if pc.any(empty).as_py():
         names = pc.if_else(empty, row_numbers(), names)
     return _to_numpy_text(names)
 
 
+def _may_need_trimming(array: pa.Array) -> bool:
+    """False when no entry starts or ends with a byte that can be part of whitespace (ASCII
+    controls and space, 0-32, or any byte of a multi-byte character, 128-255), so that
+    :func:`pyarrow.compute.utf8_trim_whitespace` would return the array unchanged."""
+    if len(array) == 0 or array.buffers()[2] is None:
+        return False
+    offsets = np.frombuffer(array.buffers()[1], np.int32, len(array) + 1, array.offset * 4)
+    data = np.frombuffer(array.buffers()[2], np.uint8)
+    filled = offsets[1:] > offsets[:-1]
+    edges = np.concatenate([data[offsets[:-1][filled]], data[offsets[1:][filled] - 1]])
+    return bool(np.any((edges <= 32) | (edges >= 128)))
+
+
+def _text_bytes(array: pa.Array) -> np.ndarray:
+    """The UTF-8 bytes of a string array's entries, end to end (a view, no copy)."""
+    if len(array) == 0:
+        return np.empty(0, np.uint8)
+    offsets = np.frombuffer(array.buffers()[1], np.int32, len(array) + 1, array.offset * 4)
+    data = array.buffers()[2]
+    if data is None:
+        return np.empty(0, np.uint8)
+    return np.frombuffer(data, np.uint8)[offsets[0]:offsets[-1]]
+
+
 def _to_numpy_text(array: pa.Array) -> np.ndarray:
+    """A NumPy unicode array of a string array without NUL characters.
+
+    ASCII text (the common case) is padded with NUL to one width by Arrow
+    (:func:`pyarrow.compute.utf8_rpad`), so its bytes form a ``(n, width)`` block that widens to
+    UCS-4 code units in one step (NumPy drops the trailing NULs); other text goes through
+    Python strings, as :func:`_to_numpy_text_reference` does.
+    """
+    array = array.cast(pa.string())
+    text = _text_bytes(array)
+    if text.size and text.max() >= 128:
+        return _to_numpy_text_reference(array)
+    width = max(1, int(pc.max(pc.binary_length(array)).as_py() or 0))
+    padded = pc.utf8_rpad(array, width, "\x00") if len(array) else array
+    block = _text_bytes(padded).reshape(len(array), width)
+    return block.astype(np.uint32).view(f"U{width}").reshape(len(array))
+
+
+def _to_numpy_text_reference(array: pa.Array) -> np.ndarray:
+    """:func:`_to_numpy_text` through Python strings (any text)."""
     return np.asarray(array.to_numpy(zero_copy_only=False), dtype=str)
 
 
@@ -499,8 +603,9 @@ class _ColumnsBuilder:
             self.names.append(fields.get("name"))
 
     def columns(self, named: bool, values_defaulted: bool = False, rated=()) -> _Columns:
-        return _Columns(pa.array(self.from_labels, pa.string()), pa.array(self.to_labels, pa.string()),
-                        np.asarray(self.values, np.float64), np.asarray(self.kinds, np.uint8),
+        labels, from_node, to_node = _number_nodes(pa.array(self.from_labels, pa.string()),
+                                                   pa.array(self.to_labels, pa.string()))
+        return _Columns(labels, from_node, to_node, np.asarray(self.values, np.float64), np.asarray(self.kinds, np.uint8),
                         pa.array(self.names, pa.string()) if named else None, values_defaulted,
                         {column: np.asarray(self.ratings[column], np.float64) for column in rated})
 

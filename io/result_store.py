@@ -22,6 +22,7 @@ Strings are fixed-length UTF-8 (readable by any HDF5 tool). The file goes throug
 
 from __future__ import annotations
 
+import contextlib
 import json
 import shutil
 from datetime import datetime, timezone
@@ -30,7 +31,7 @@ from pathlib import Path
 import h5py
 import numpy as np
 
-from ohmgraph.io.atomic import atomic_output
+from ohmgraph.io.atomic import atomic_output, exclusive
 from ohmgraph.io.errors import InputError, OutputRefused
 from ohmgraph.io.hdf5_integrity import (DIGEST_ATTRIBUTE, FILE_OPTIONS, check_attributes,
                                         check_file, dataset_options, read_dataset,
@@ -142,7 +143,9 @@ def write_results(path, name: str, columns: dict, *, units: dict | None = None,
     append : bool
         Add the group to an existing HDF5 file (such as a stored solution) instead of creating
         a new file: the file is copied, extended and renamed over the original, so it is never
-        seen half-written.
+        seen half-written. Appending runs hold the file's lock
+        (:func:`ohmgraph.io.atomic.exclusive`) from reading it to publishing it, so two at once
+        both land.
 
     Raises
     ------
@@ -151,9 +154,15 @@ def write_results(path, name: str, columns: dict, *, units: dict | None = None,
         already holds the group without ``force``), or cannot be written.
     """
     units = units or {}
+    with exclusive(path) if append else contextlib.nullcontext():
+        _write_results(path, name, columns, units, attrs, matrices,
+                       provenance(sources, command, options), force, append)
+
+
+def _write_results(path, name, columns, units, attrs, matrices, stamp, force, append) -> None:
+    """The body of :func:`write_results` (under the file's lock when appending)."""
     if append:
         refuse_existing_group(path, name, force)
-    stamp = provenance(sources, command, options)
     try:
         with atomic_output(path, force or append) as temporary:
             if append:

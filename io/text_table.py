@@ -4,10 +4,12 @@ trimmed text, the header checked against the columns a table may have."""
 from __future__ import annotations
 
 from pathlib import Path
-
-import pandas as pd
+from typing import TYPE_CHECKING
 
 from ohmgraph.io.errors import InputError
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 
 def read_text_table(path, what: str, accepted, required=()) -> pd.DataFrame:
@@ -34,6 +36,7 @@ def read_text_table(path, what: str, accepted, required=()) -> pd.DataFrame:
         When the file is missing or unreadable, or its header names an unknown column or lacks
         a required one (``FILE:1: ...``).
     """
+    import pandas as pd           # imported on use: keeps start-up short
     path = Path(path)
     if not path.is_file():
         raise InputError(f"{path}: " + ("not a file" if path.exists() else "no such file"))

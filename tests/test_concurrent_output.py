@@ -95,3 +95,51 @@ def test_without_hard_links_the_name_is_claimed_exclusively(folder, monkeypatch,
     assert "another run created it" in capsys.readouterr().err
     assert out.read_bytes() == before
     assert sorted(p.name for p in folder.iterdir()) == ["a.csv", "b.csv", "out.h5"]
+
+
+def test_two_appends_at_once_both_land(folder):
+    """Two runs adding different groups to one solution file: the second waits for the first's
+    lock (io/atomic.py: exclusive), reads the file the first published and adds to it."""
+    from ohmgraph.io.result_store import read_results
+    from solve_process import start
+
+    assert finish(start_solve(folder, "a.csv"))[0] == EXIT_OK
+    (folder / "m.csv").write_text("kind,a,b,value,accuracy\nV,mid,,7.5,1%\n")
+    first = start(folder, ["compare", "a.csv", "m.csv", "-o", "out.h5", "--append"],
+                  pause="publish")
+    lines = wait_for_stage(first, "publish")          # holds the lock with its finished copy
+    second = start(folder, ["diagnose", "a.csv", "m.csv", "-o", "out.h5", "--append"])
+    waited = wait_for_stage(second, "locked-out")
+    release(first)
+    results = [finish(first, lines), finish(second, waited)]
+    assert [code for code, _, _ in results] == [EXIT_OK, EXIT_OK], results
+    assert sorted(p.name for p in folder.iterdir()) == ["a.csv", "b.csv", "m.csv", "out.h5"]
+    solution = read_solution(folder / "out.h5")            # checks the file's checksums
+    assert solution.attrs["input_sha256"] == file_sha256(folder / "a.csv")
+    assert read_results(folder / "out.h5", "comparison")[0]["status"].tolist() == ["pass"]
+    assert read_results(folder / "out.h5", "diagnosis")[0]
+
+
+def test_a_killed_append_does_not_block_the_next(folder):
+    """The lock dies with its process (flock): a SIGKILLed append leaves at most an unlocked
+    lock file, and the next append goes ahead and removes it."""
+    import signal
+
+    from ohmgraph.io.result_store import read_results
+    from solve_process import start
+
+    assert finish(start_solve(folder, "a.csv"))[0] == EXIT_OK
+    (folder / "m.csv").write_text("kind,a,b,value,accuracy\nV,mid,,7.5,1%\n")
+    argv = ["compare", "a.csv", "m.csv", "-o", "out.h5", "--append"]
+    killed = start(folder, argv, pause="publish")
+    wait_for_stage(killed, "publish")
+    killed.send_signal(signal.SIGKILL)
+    killed.wait(timeout=60)
+    killed.watchdog.cancel()
+    assert (folder / ".out.h5.lock").exists()
+    for leftover in folder.glob(".out.h5.*.tmp"):      # SIGKILL leaves its temporary file
+        leftover.unlink()
+    code, _, err = finish(start(folder, argv))
+    assert code == EXIT_OK, err
+    assert sorted(p.name for p in folder.iterdir()) == ["a.csv", "b.csv", "m.csv", "out.h5"]
+    assert read_results(folder / "out.h5", "comparison")[0]["status"].tolist() == ["pass"]

@@ -118,3 +118,18 @@ def test_generated_mesh_drop_matches_direct_computation():
     assert drop.worst_drop[0] == pytest.approx(expected.max())
     assert drop.over[0, 0] == int(np.count_nonzero(expected > 0.009))
     assert held.sum() == 4 and drop.size[0] == 1600
+
+
+def test_worst_per_net_agrees_with_sorting():
+    from ohmgraph.engine.drop import _worst_per_net, _worst_per_net_reference
+
+    rng = np.random.default_rng(5)
+    for _ in range(300):
+        n, k = int(rng.integers(1, 40)), int(rng.integers(1, 5))
+        node_net = rng.integers(-1, k, n)
+        drop = rng.integers(0, 4, n).astype(float)         # ties on purpose
+        counted = (node_net >= 0) & (rng.random(n) < 0.8)
+        fast = _worst_per_net(node_net, drop, counted, k)
+        plain = _worst_per_net_reference(node_net, drop, counted, k)
+        np.testing.assert_array_equal(fast[0], plain[0])
+        np.testing.assert_array_equal(fast[1], plain[1])

@@ -205,3 +205,43 @@ def test_summary_counts_on_a_small_circuit():
     assert strict["unknowns"] == 4 and strict["rank"] == 3 and strict["errors"] == 1
     relaxed = check(network(island), allow_floating=True).summary
     assert relaxed["unknowns"] == 3 and relaxed["rank"] == 3 and relaxed["errors"] == 0
+
+
+def test_repeated_strings_agree_with_sorting_the_text():
+    # hashes find the candidates; np.unique on the text itself is the reference
+    from ohmgraph.engine.checks import repeated_strings, repeated_strings_reference
+
+    rng = np.random.default_rng(3)
+    for _ in range(200):
+        texts = np.array([f"R{k}" for k in rng.integers(0, 40, rng.integers(0, 60))]
+                         + ["", "Ω1", "Ω1"][:rng.integers(0, 4)], dtype=str)
+        index, count = repeated_strings(texts)
+        expected_index, expected_count = repeated_strings_reference(texts)
+        np.testing.assert_array_equal(index, expected_index)
+        assert count == expected_count
+    index, count = repeated_strings(np.array(["a", "b", "a", "c", "b", "a"]))
+    assert index.tolist() == [0, 1, 2, 4, 5] and count == 2
+
+
+def test_largest_first_is_the_head_of_a_stable_sort():
+    from ohmgraph.engine.solve import largest_first
+
+    rng = np.random.default_rng(4)
+    for trial in range(500):
+        magnitude = rng.integers(0, 4, rng.integers(0, 40)).astype(float)
+        if trial % 4 == 0 and magnitude.size:
+            magnitude[rng.integers(0, magnitude.size)] = np.nan
+        top = int(rng.integers(1, 8))
+        np.testing.assert_array_equal(largest_first(magnitude, top),
+                                      np.argsort(-magnitude, kind="stable")[:top])
+
+
+def test_string_hash_kernel_agrees_with_numpy_columns():
+    from ohmgraph.engine.checks import string_hashes
+
+    rng = np.random.default_rng(6)
+    texts = np.array([f"R{a}_{b}" for a, b in rng.integers(0, 3000, (500, 2))]
+                     + ["", "Ωλ", "a" * 40], dtype=str)
+    fast, plain = string_hashes(texts), string_hashes(texts, kernel=False)
+    np.testing.assert_array_equal(fast, plain)
+    assert fast.dtype == np.uint64 and np.unique(fast).size == np.unique(texts).size

@@ -108,9 +108,19 @@ def test_planted_fault_ranks_first_with_parts_scattered():
     values = measured(net, kinds, a, b, net.with_values(built))
     values = values + 1e-3 * np.abs(values) * rng.uniform(-1, 1, values.size)
     model, spread, bands = setup(net, kinds, a, b, values, 1e-3)
-    result = diagnose_parts(model, bands, spread.covariance, top=3)
+    result = diagnose_parts(model, bands, spread.covariance, top=3, contact_max=0.0)
     assert result.fault_indicated and not result.flagged
     best = result.ranking.hypotheses[0]
+    assert target in best.branches
+    # With the contact test on (default): the one resistance reading that sees the fault best
+    # reads high by a contact-sized offset (w = 2.44 against a 5 % limit of 2.25, a false flag
+    # as the test allows), and "no fault, contact error" then fits as well. The joint ranking
+    # keeps the planted resistor in its first group.
+    tested = diagnose_parts(model, bands, spread.covariance, top=3)
+    assert [(flag.reading, flag.test) for flag in tested.flagged] == [(28, "contact")]
+    assert tested.flagged[0].statistic == pytest.approx(2.444, abs=1e-3)
+    assert target in tested.ranking.hypotheses[0].branches
+    assert tested.ranking.hypotheses[0].left_out == (28,)
     assert target in best.branches
     assert best.estimated_ohms[0] / best.nominal_ohms[0] == pytest.approx(1.5, rel=0.05)
 
@@ -139,11 +149,32 @@ def test_contact_error_is_flagged_and_left_out():
     values[17] += 2.2
     model, spread, bands = setup(net, kinds, a, b, values, 1e-3)
     result = diagnose_parts(model, bands, spread.covariance, top=3)
-    assert [reading for reading, _ in result.flagged] == [17]
-    assert result.flagged[0][1] > result.limits["flag"]
+    assert [flag.reading for flag in result.flagged] == [17]
+    flag = result.flagged[0]
+    assert flag.test == "contact" and 0 < flag.limit < result.limits["flag"]
+    assert flag.drop > flag.limit and flag.statistic == pytest.approx(np.sqrt(flag.drop))
+    # The offset is found to within its standard uncertainty's few multiples.
+    assert abs(flag.shift - 2.2) < 3 * flag.shift_std and flag.shift_std < 0.5
     assert 17 not in result.ranking.readings_used
     assert target in result.ranking.hypotheses[0].branches
     assert result.ranking.hypotheses[0].chi2 < result.limits["single"]
+
+
+def test_resistance_read_low_is_not_a_contact_error():
+    # The same readings with 2.2 ohm taken off instead: a contact cannot lower a resistance,
+    # so only the gross-error test (two-sided, higher limit) may flag it.
+    net = mesh(5, 5, seed=9)
+    kinds, a, b = readings_on(net, 9, 16, 4)
+    faulty = changed(net, {int(resistor_candidates(net)[20]): 1e9})
+    values = measured(net, kinds, a, b, faulty)
+    values[17] -= 2.2
+    model, spread, bands = setup(net, kinds, a, b, values, 1e-3)
+    result = diagnose_parts(model, bands, spread.covariance, top=3)
+    assert result.limits["flag"] > result.limits["contact"]
+    assert all(flag.test == "gross" for flag in result.flagged)
+    assert all(flag.drop > result.limits["flag"] for flag in result.flagged)
+    held = diagnose_parts(model, bands, spread.covariance, top=3, contact_max=0.0)
+    assert held.limits["contact"] == np.inf
 
 
 def test_two_faults_are_offered_when_no_single_fault_fits():

@@ -91,3 +91,34 @@ def test_other_commands_leave_nothing_or_the_original(divider, argv, signum):
     assert messages(err) == [f"ohmgraph {argv[0]}: interrupted by {signum.name}; "
                              "no output was written"]
     assert {p.name: p.read_bytes() for p in divider.iterdir()} == before
+
+
+def test_a_signal_ends_the_wait_for_a_worker_at_once():
+    """engine/solvers/base.py: in_worker — the main thread acts on SIGINT while the worker is
+    still busy (here: waiting on an event that only the test sets afterwards)."""
+    import threading
+
+    from ohmgraph.engine.solvers.base import in_worker, workers_unfinished
+
+    release, done = threading.Event(), threading.Event()
+
+    def busy():
+        release.wait(60)
+        done.set()
+        return 7
+
+    assert in_worker(lambda: 5) == 5
+    with pytest.raises(ZeroDivisionError):
+        in_worker(lambda: 1 / 0)
+    timer = threading.Timer(0.2, os.kill, (os.getpid(), signal.SIGINT))
+    timer.start()
+    with pytest.raises(KeyboardInterrupt):
+        in_worker(busy)
+    assert not done.is_set() and workers_unfinished()
+    release.set()
+    assert done.wait(60)
+    for _ in range(100):                 # the worker's last step follows done.set()
+        if not workers_unfinished():
+            break
+        threading.Event().wait(0.05)
+    assert not workers_unfinished()

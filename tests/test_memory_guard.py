@@ -97,14 +97,16 @@ import resource, sys
 import ohmgraph.io.cli as cli
 cli.build_parser()
 in_use = int(open("/proc/self/status").read().split("VmSize:")[1].split()[0]) * 1024
-limit = in_use + int(sys.argv[1]) * 2**20
+# at least the gibibyte below which the libraries are refused at start-up (io/address_space.py)
+limit = max(in_use + int(sys.argv[1]) * 2**20, 2**30)
 resource.setrlimit(resource.RLIMIT_AS, (limit, limit))
 sys.exit(cli.main(sys.argv[2:]))
 """
 
 
 def test_a_failed_allocation_ends_with_a_message(tmp_path):
-    """``ulimit -v`` with 100 MB to spare: the 18-million-branch lattice's arrays cannot fit."""
+    """``ulimit -v`` with 100 MB to spare (and at least 1 GiB): the 18-million-branch lattice's
+    arrays cannot fit."""
     process = subprocess.run([sys.executable, "-c", ROOM_SCRIPT, "100", "generate", "grid2d",
                               "3000", "3000", "-o", "big.csv"], cwd=tmp_path,
                              capture_output=True, text=True, timeout=180)
@@ -167,3 +169,40 @@ def test_a_library_without_room_to_load_is_out_of_memory(capsys, monkeypatch):
     monkeypatch.setattr(cli.importlib, "import_module", no_room)
     assert main(["check", "net.csv"]) == EXIT_NO_MEMORY
     assert capsys.readouterr().err == f"ohmgraph check: error: {OUT_OF_MEMORY}\n"
+
+
+def test_an_address_space_too_small_for_the_libraries_is_refused_at_once(tmp_path):
+    """Below the room the libraries need, SciPy's OpenBLAS used to spin for ever while loading
+    (and pyarrow and LLVM abort): the run is refused before they load (io/address_space.py)."""
+    import resource
+
+    (tmp_path / "net.csv").write_text("name,kind,from,to,value\nv,V,a,0,1\nr,R,a,0,2\n")
+
+    def tight():
+        resource.setrlimit(resource.RLIMIT_AS, (250 * MB, 250 * MB))
+
+    process = subprocess.run([sys.executable, "-m", "ohmgraph.io.cli", "check", "net.csv"],
+                             cwd=tmp_path, capture_output=True, text=True, timeout=120,
+                             preexec_fn=tight)
+    assert process.returncode == EXIT_NO_MEMORY, process.stderr
+    assert process.stderr == ("ohmgraph check: error: the address-space limit (ulimit -v) of "
+                              "250 MB is below the 1024 MB ohmgraph's libraries need to load; "
+                              "raise it\n")
+
+
+def test_a_table_too_big_to_read_under_the_limit_is_refused(tmp_path, capsys, monkeypatch):
+    """pyarrow's CSV reader aborts the process on a failed allocation (std::bad_alloc), so a
+    table that would not fit under the address-space limit is refused before it is read."""
+    from ohmgraph.io import address_space
+
+    net = tmp_path / "net.csv"
+    net.write_text("name,kind,from,to,value\nv,V,a,0,1\n" +
+                   "".join(f"r{k},R,a,n{k},2\n" for k in range(20_000)))
+    monkeypatch.setattr(address_space, "SETTINGS", {})         # leave this process's libraries
+    monkeypatch.setattr(address_space, "limit", lambda: 2 << 30)
+    monkeypatch.setattr(address_space, "in_use", lambda: (2 << 30) - 4 * MB)
+    assert main(["solve", str(net), "-o", str(tmp_path / "out.h5")]) == EXIT_NO_MEMORY
+    assert capsys.readouterr().err == (
+        f"ohmgraph solve: error: {net}: reading it needs about 6 MB of address space, and the "
+        "limit (ulimit -v) leaves 4 MB; raise the limit or use a machine with more memory\n")
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["net.csv"]

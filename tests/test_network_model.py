@@ -59,3 +59,14 @@ def test_passive_zeroes_sources():
     assert passive.kind.tolist() == [0, 0]
     assert passive.value.tolist() == [0.0, 10.0]
     assert np.array_equal(passive.node_labels, net.node_labels)
+
+
+def test_kind_codes_of_one_character_arrays_agree_with_the_string_path():
+    from ohmgraph.engine.network import kind_codes
+
+    letters = np.random.default_rng(2).choice(list("RVIrvi"), 1000)
+    general = kind_codes(letters.tolist())                    # a list: the string functions
+    for array in (letters.astype("U1"), letters.astype("S1")):   # the table lookup
+        np.testing.assert_array_equal(kind_codes(array), general)
+    with pytest.raises(ValueError, match="unknown branch kind .*X"):
+        kind_codes(np.array(["R", "X"], dtype="S1"))

@@ -67,6 +67,12 @@ def test_diagnose_on_real_parts_flags_a_contact_error(tmp_path, capsys):
     assert code == 0
     summary = report["summary"]
     assert summary["flagged_lines"] == [16] and summary["fault_indicated"]
+    # Read high by the planted 2.2 ohm: the one-sided contact-error test flags it.
+    assert summary["flagged_tests"] == ["contact"]
+    shift, shift_std = summary["flagged_shift"][0], summary["flagged_shift_std"][0]
+    assert shift == pytest.approx(2.2, abs=3 * shift_std) and shift_std < 0.5
+    assert summary["flagged_statistic"][0] ** 2 == pytest.approx(summary["flagged_chi2_drop"][0])
+    assert summary["flagged_chi2_drop"][0] > summary["flagged_limit"][0]
     assert summary["readings_used"] == 17
     best = report["hypotheses"][0]
     assert best["branch"] == "RH_2_2" and best["faults"] == 1
@@ -76,7 +82,15 @@ def test_diagnose_on_real_parts_flags_a_contact_error(tmp_path, capsys):
     assert main(["diagnose", str(examples / "trim_coupon.csv"), str(readings), "--accuracy",
                  "0.05%+0.5mV", "--default", "1%", "--top", "2"]) == 0
     shown = capsys.readouterr().out
-    assert "FLAGGED line 16 (R TP_1_2 TP_2_2)" in shown and "fault indicated" in shown
+    assert "FLAGGED line 16 (R TP_1_2 TP_2_2): read high by +2.2 ohm" in shown
+    assert "contact-error test, one-sided" in shown and "fault indicated" in shown
+    assert "de-energise and discharge the network for resistance readings" in shown
+    # Without the contact test the same reading is caught by the two-sided gross-error test.
+    assert main(["diagnose", str(examples / "trim_coupon.csv"), str(readings), "--accuracy",
+                 "0.05%+0.5mV", "--default", "1%", "--top", "2", "--contact-max", "0"]) == 0
+    shown = capsys.readouterr().out
+    assert "FLAGGED line 16 (R TP_1_2 TP_2_2): off by +2.2 ohm" in shown
+    assert "gross-error test" in shown
 
 
 def test_show_reads_every_result_file(tmp_path, capsys):

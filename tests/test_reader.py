@@ -11,6 +11,7 @@ import gzip
 from pathlib import Path
 
 import numpy as np
+import pyarrow as pa
 import pytest
 
 from ohmgraph.engine.network import CURRENT_SOURCE, RESISTOR, VOLTAGE_SOURCE
@@ -313,3 +314,36 @@ def test_parquet_branch_table_reads_like_the_csv(tmp_path, make_network):
     got = read_network(tmp_path / "net.parquet")
     for field in ("node_labels", "branch_names", "kind", "from_node", "to_node", "value"):
         np.testing.assert_array_equal(getattr(got, field), getattr(expected, field))
+
+
+def test_spellings_that_trim_to_one_label_are_one_node(tmp_path):
+    # labels are trimmed in the endpoint dictionary; the exact pass trims every field first
+    text = ("name,kind,from,to,value\n"
+            "a,R, n2 ,n1,1\nb, r ,n1 ,0,2\nc,R,n3,  n2,3\nd,V,0,n3\t,1\ne,R,n1,n3, 4 \n")
+    path = write(tmp_path, "spaced.csv", text)
+    fast = read_network(path)
+    exact = reader._build_network(
+        path, reader._exact_table(path, ",", ["name", "kind", "from", "to", "value"]), "0")
+    assert fast.node_labels.tolist() == ["n2", "n1", "n3", "0"]
+    assert fast.node_labels.tolist() == exact.node_labels.tolist()
+    assert branch_table(fast) == branch_table(exact)
+
+
+@pytest.mark.parametrize("texts", [["n1", "", "node_12345"], ["Ω", "a", "ünï-λ"], [], [""]])
+def test_arrow_text_to_numpy_agrees_with_python_strings(texts):
+    array = pa.array(texts, pa.string())
+    fast = reader._to_numpy_text(array)
+    expected = reader._to_numpy_text_reference(array)
+    assert fast.dtype.kind == "U" and fast.tolist() == expected.tolist() == texts
+    sliced = pa.array(["skip", *texts], pa.string()).slice(1)
+    assert reader._to_numpy_text(sliced).tolist() == texts
+
+
+@pytest.mark.parametrize("texts, may", [(["a", "bc", ""], False), (["a ", "b"], True),
+                                        (["\tx"], True), (["x\x1f"], True), (["xλ"], True),
+                                        (["\u00a0x"], True), ([], False), ([""], False)])
+def test_trimming_is_skipped_only_where_it_cannot_change_anything(texts, may):
+    array = pa.array(["pad", *texts], pa.string()).slice(1)
+    assert reader._may_need_trimming(array) == may
+    if not may:                             # Arrow's trim is the reference
+        assert pa.compute.utf8_trim_whitespace(array).to_pylist() == texts

@@ -71,6 +71,10 @@ class Hypothesis:
         network seen by a reading).
     max_residual : float
         Largest ``|measured - predicted| / band`` left over.
+    left_out : tuple of int
+        Readings the hypothesis was fitted without (flagged ones; see
+        :func:`ohmgraph.engine.readings.gls.diagnose_parts`, whose ``chi2`` then includes the
+        penalty of leaving them out).
     """
 
     branches: np.ndarray
@@ -82,6 +86,7 @@ class Hypothesis:
     chi2_short: float
     chi2_value: float
     max_residual: float
+    left_out: tuple = ()
 
     @property
     def explains_all(self) -> bool:

@@ -22,10 +22,12 @@ of ``n`` degrees of freedom at ``1 - alpha`` (``alpha``: ``significance``, defau
 generalised least-squares fit is the same as giving it a free offset (the mean-shift outlier
 model; Cook & Weisberg, *Residuals and Influence in Regression*, 1982, §2.2), which has a
 closed form with ``gamma = Sigma^{-1} d`` and ``eta_i = (Sigma^{-1})_ii``, for every candidate
-and every reading at once. A reading is flagged when leaving it out lowers the best cost by
-more than the chi-square quantile of one degree of freedom at ``1 - alpha / n`` (Bonferroni over
-the ``n`` readings), confirmed by an exact re-ranking without it; the ranking is then shown
-without the flagged readings (at most ``max_flagged``).
+and every reading at once. The most promising readings are re-ranked exactly without them; a
+reading is flagged when the drop of the best cost passes one of the tests of :mod:`.contact`
+(a gross error on any reading; a contact error on a resistance reading read high, with a lower
+limit), the largest drop minus limit first (at most ``max_flagged``). The ranking shown puts the
+hypotheses fitted without the flagged readings, their cost plus the limits passed (a penalised
+likelihood), together with those fitted on every reading.
 
 *Two faults*: when no single fault fits (best cost above the quantile of ``n - 1`` degrees of
 freedom), every pair among the best ``pair_pool`` single faults is fitted with both values free.
@@ -40,7 +42,7 @@ log-ratios are fitted by bounded trust-region least squares (``scipy.optimize.le
 from __future__ import annotations
 
 import time
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 from scipy.linalg import cho_solve, cholesky, solve_triangular
@@ -48,16 +50,20 @@ from scipy.optimize import least_squares
 from scipy.stats import chi2 as chi2_distribution
 
 from .bands import ReadingBands
-from .diagnosis import SCREEN_CHUNK, SHORT_RATIO, Diagnosis, _Evaluator, rank_candidates
+from .contact import (CONTACT_KINDS, DEFAULT_CONTACT_MAX_OHMS, contact_drop, contact_limit,
+                      gross_limit, mean_shift)
+from .diagnosis import (SCREEN_CHUNK, SHORT_RATIO, Diagnosis, _Evaluator, predicted_change,
+                        rank_candidates)
 from .model import POWERED, ReadingModel
 from .sensitivity import resistor_candidates
 
 DEFAULT_SIGNIFICANCE = 0.01
+DEFAULT_CONTACT_SIGNIFICANCE = 0.05
 PAIR_POOL = 50
 MAX_FLAGGED = 3
 TINY = 1e-12
 SEPARATION = 3.0          # standard deviations: faults closer in every reading are one group
-FLAG_TRIES = 3            # readings re-ranked per flagging round
+FLAG_TRIES = 5            # readings re-ranked per flagging round
 DEFAULT_MIN_CHANGE = 0.1
 
 
@@ -154,6 +160,40 @@ class _GLSEvaluator(_Evaluator):
 
 
 @dataclass(frozen=True)
+class FlaggedReading:
+    """A reading left out because a shift of that reading alone explains the readings better.
+
+    Attributes
+    ----------
+    reading : int
+        Index of the reading.
+    test : {"contact", "gross"}
+        ``contact``: a resistance reading read high (one-sided test); ``gross``: any reading,
+        either sign.
+    drop : float
+        Best cost of the hypotheses with all readings minus the best with an offset on this one
+        (the likelihood-ratio statistic of the mean-shift model; for ``contact`` the offset
+        held within ``(0, contact_max]``).
+    statistic : float
+        ``sign(shift) sqrt(drop)``, compared with ``sqrt(limit)`` (one-sided for ``contact``).
+    limit : float
+        The limit ``drop`` exceeded (:mod:`.contact`).
+    shift, shift_std : float
+        Estimated offset of the reading (measured minus what the best hypothesis and the other
+        readings imply; reading units) and its standard uncertainty (``|shift| / sqrt(drop)``,
+        the fault refitted).
+    """
+
+    reading: int
+    test: str
+    drop: float
+    statistic: float
+    limit: float
+    shift: float
+    shift_std: float
+
+
+@dataclass(frozen=True)
 class PairHypothesis:
     """Two resistors changed at once.
 
@@ -187,19 +227,22 @@ class PartsDiagnosis:
         Single-fault ranking on the readings kept (flagged ones left out).
     first_ranking : Diagnosis
         The ranking on every usable reading, before any was flagged.
-    flagged : list of (int, float)
-        Reading index and how much leaving it out lowered the best cost, in flagging order.
+    flagged : list of FlaggedReading
+        In flagging order.
     significance : float
     fault_indicated : bool
         The cost of "no fault" on the kept readings exceeds its chi-square quantile.
     single_fits : bool
         The best single fault's cost is within the quantile of ``n - 1`` degrees of freedom.
     limits : dict
-        The chi-square quantiles used (``no_fault``, ``single``, ``flag``).
+        The limits used: chi-square quantiles ``no_fault``, ``single``, ``flag`` (gross error)
+        and ``contact`` (the square of the one-sided normal quantile), of the last round.
     pairs : list of PairHypothesis
         Best two-fault hypotheses (only when no single fault fits).
     timings : dict
     notes : list of str
+    contact_significance : float
+        ``alpha`` of the contact-error test (0: not run).
     """
 
     ranking: Diagnosis
@@ -212,6 +255,7 @@ class PartsDiagnosis:
     pairs: list = field(default_factory=list)
     timings: dict = field(default_factory=dict)
     notes: list = field(default_factory=list)
+    contact_significance: float = DEFAULT_CONTACT_SIGNIFICANCE
 
 
 def _rank(model, used, deviation, bands, covariance, candidates, options):
@@ -232,10 +276,67 @@ def _best(diagnosis: Diagnosis) -> float:
     return min(best, diagnosis.baseline_chi2)
 
 
+def _change(model: ReadingModel, ranking: Diagnosis) -> np.ndarray:
+    """Predicted change of every reading under the best hypothesis of ``ranking`` (zero when
+    "no fault" fits best)."""
+    if ranking.hypotheses and ranking.hypotheses[0].chi2 < ranking.baseline_chi2:
+        best = ranking.hypotheses[0]
+        return predicted_change(model, int(best.branches[0]), float(best.estimated_ohms[0]))
+    return np.zeros(model.readings.n)
+
+
+def _flag_one(rank, kept, deviation, part_covariance, bands, candidates, evaluator, ranking,
+              settings, limits):
+    """The reading whose offset most improves the penalised fit, or None.
+
+    Each reading ``j`` is a joint hypothesis (best fault, offset on ``j``); it beats the best
+    hypothesis without an offset when the drop of the best cost exceeds the limit of its test
+    (:mod:`.contact`: gross error on any reading, contact error on a resistance reading read
+    high). The deletion bounds pick ``FLAG_TRIES`` readings to re-rank exactly; of the tests
+    passed, the one with the largest drop minus limit (the best penalised cost) is flagged.
+    """
+    significance, contact_significance, contact_max = settings
+    model = evaluator.model
+    parts = part_covariance[np.ix_(kept, kept)]
+    covariance = parts + np.diag(bands.instrument_std[kept] ** 2)
+    eligible = np.isin(model.readings.kind[kept], CONTACT_KINDS)
+    gross = gross_limit(kept.size, significance)
+    contact = contact_limit(parts, bands.instrument[kept], eligible,
+                            contact_significance if contact_max > 0 else 0.0)
+    limits["flag"], limits["contact"] = gross, contact
+    best = _best(ranking)
+    margin = (best - evaluator.deletion_bounds(candidates)
+              - np.where(eligible, min(gross, contact), gross))
+    found, score = None, 0.0
+    # The bounds relax the fault size, so the few most promising readings are re-ranked.
+    for position in np.argsort(-margin, kind="stable")[:FLAG_TRIES]:
+        if margin[position] <= 0:
+            break
+        trial = np.delete(kept, position)
+        trial_evaluator, trial_ranking = rank(trial)
+        drop = best - _best(trial_ranking)
+        shift = mean_shift(deviation[kept] - _change(model, trial_ranking)[kept], covariance,
+                           position)
+        tests = [("gross", drop, gross)]
+        if eligible[position]:
+            tests.append(("contact", contact_drop(drop, shift, contact_max), contact))
+        for test, value, limit in tests:
+            if value - limit > score:
+                score = value - limit
+                flag = FlaggedReading(
+                    int(kept[position]), test, float(value),
+                    float(np.copysign(np.sqrt(max(value, 0.0)), shift)), float(limit), shift,
+                    float(abs(shift) / np.sqrt(drop)) if drop > 0 else np.inf)
+                found = (flag, trial, trial_evaluator, trial_ranking)
+    return found
+
+
 def diagnose_parts(model: ReadingModel, bands: ReadingBands, part_covariance: np.ndarray, *,
                    top: int = 10, short_ratio: float = SHORT_RATIO,
                    min_change: float = DEFAULT_MIN_CHANGE,
                    significance: float = DEFAULT_SIGNIFICANCE, max_flagged: int = MAX_FLAGGED,
+                   contact_significance: float = DEFAULT_CONTACT_SIGNIFICANCE,
+                   contact_max: float = DEFAULT_CONTACT_MAX_OHMS,
                    pair_pool: int = PAIR_POOL, pairs: int = 5, screen: int = 64,
                    max_exact: int = 8192) -> PartsDiagnosis:
     """Rank single faults by generalised least squares, flag unexplained readings, try pairs.
@@ -260,6 +361,11 @@ def diagnose_parts(model: ReadingModel, bands: ReadingBands, part_covariance: np
         ``alpha`` of the chi-square tests.
     max_flagged : int
         Most readings flagged (0: none).
+    contact_significance : float
+        Family-wise ``alpha`` of the one-sided contact-error test over the resistance readings
+        (0: no contact test; readings are then flagged by the gross-error test only).
+    contact_max : float
+        Largest resistance a poor contact is taken to add (ohms; default 5).
     pair_pool, pairs : int
         Two-fault hypotheses among the best ``pair_pool`` single faults; ``pairs`` shown.
     screen, max_exact : int
@@ -283,34 +389,31 @@ def diagnose_parts(model: ReadingModel, bands: ReadingBands, part_covariance: np
                           solves={"adjoint": 0, "self_resistance": 0},
                           notes=["nothing to diagnose"])
         return PartsDiagnosis(empty, empty, [], significance, False, True, limits,
-                              notes=notes + ["nothing to diagnose"])
+                              notes=notes + ["nothing to diagnose"],
+                              contact_significance=contact_significance)
 
     start = time.perf_counter()
     options = (short_ratio, min_change, max(top, pair_pool), screen, max_exact)
-    evaluator, ranking = _rank(model, used, deviation, bands, covariance, candidates, options)
+
+    def rank(kept):
+        return _rank(model, kept, deviation, bands, covariance, candidates, options)
+
+    evaluator, ranking = rank(used)
     first = ranking
     timings["rank"] = time.perf_counter() - start
     start = time.perf_counter()
-    flagged, kept = [], used
+    flagged, kept, penalty = [], used, 0.0
     while len(flagged) < max_flagged and kept.size > 2:
-        limit = float(chi2_distribution.ppf(1.0 - significance / kept.size, 1))
-        limits["flag"] = limit
-        without = evaluator.deletion_bounds(candidates)
-        best, found = _best(ranking), None
-        # The bounds relax the fault size, so the few most promising readings are re-ranked.
-        for reading in np.argsort(without, kind="stable")[:FLAG_TRIES]:
-            if best - without[reading] <= limit:
-                break
-            trial = np.delete(kept, reading)
-            trial_evaluator, trial_ranking = _rank(model, trial, deviation, bands, covariance,
-                                                   candidates, options)
-            drop = best - _best(trial_ranking)
-            if drop > limit and (found is None or drop > found[0]):
-                found = (drop, int(kept[reading]), trial, trial_evaluator, trial_ranking)
+        found = _flag_one(rank, kept, deviation, part_covariance, bands, candidates, evaluator,
+                          ranking, (significance, contact_significance, contact_max), limits)
         if found is None:
             break
-        drop, reading, kept, evaluator, ranking = found
-        flagged.append((reading, float(drop)))
+        flag, kept, evaluator, trial_ranking = found
+        # Penalised cost of the offsets: the limit, plus what holding a contact offset within
+        # its range gives back.
+        penalty += flag.limit + (_best(ranking) - _best(trial_ranking)) - flag.drop
+        ranking = trial_ranking
+        flagged.append(flag)
     timings["flag"] = time.perf_counter() - start
 
     limits["no_fault"] = float(chi2_distribution.ppf(1.0 - significance, kept.size))
@@ -323,10 +426,39 @@ def diagnose_parts(model: ReadingModel, bands: ReadingBands, part_covariance: np
         pool = ranking.hypotheses[:pair_pool]
         pair_hypotheses = _fit_pairs(evaluator, pool, pairs)
         timings["pairs"] = time.perf_counter() - start
-    ranking.hypotheses = ranking.hypotheses[:top]
+    joint = _joint(first.hypotheses, ranking.hypotheses, flagged, penalty, top)
     first.hypotheses = first.hypotheses[:top]
+    ranking = replace(ranking, hypotheses=joint)
+    limits["penalty"] = penalty
     return PartsDiagnosis(ranking, first, flagged, significance, bool(fault_indicated),
-                          single_fits, limits, pair_hypotheses, timings, notes)
+                          single_fits, limits, pair_hypotheses, timings, notes,
+                          contact_significance)
+
+
+def _joint(all_readings: list, kept: list, flagged: list, penalty: float, top: int) -> list:
+    """The hypotheses fitted without the flagged readings (their cost plus ``penalty``) and
+    those fitted on every reading, ranked together by penalised cost; a resistor is shown in
+    its best group only."""
+    if not flagged:
+        return kept[:top]
+    left_out = tuple(flag.reading for flag in flagged)
+    entries = sorted([(h.chi2 + penalty, 0, i, h) for i, h in enumerate(kept)]
+                     + [(h.chi2, 1, i, h) for i, h in enumerate(all_readings)],
+                     key=lambda entry: entry[:3])
+    shown, seen = [], set()
+    for cost, source, _, h in entries:
+        if len(shown) == top:
+            break
+        members = [m for m, branch in enumerate(h.branches) if int(branch) not in seen]
+        if not members or int(h.branches[0]) in seen:
+            continue
+        seen.update(int(h.branches[m]) for m in members)
+        shown.append(replace(h, branches=h.branches[members],
+                             kinds=[h.kinds[m] for m in members],
+                             nominal_ohms=h.nominal_ohms[members],
+                             estimated_ohms=h.estimated_ohms[members], chi2=float(cost),
+                             left_out=left_out if source == 0 else ()))
+    return shown
 
 
 class _PairModel:
@@ -416,5 +548,6 @@ def _fit_pairs(evaluator: _GLSEvaluator, pool: list, count: int) -> list:
     return results[:count]
 
 
-__all__ = ["diagnose_parts", "PartsDiagnosis", "PairHypothesis", "DEFAULT_SIGNIFICANCE",
-           "PAIR_POOL", "MAX_FLAGGED"]
+__all__ = ["diagnose_parts", "PartsDiagnosis", "FlaggedReading",
+           "PairHypothesis", "DEFAULT_SIGNIFICANCE", "DEFAULT_CONTACT_SIGNIFICANCE",
+           "CONTACT_KINDS", "PAIR_POOL", "MAX_FLAGGED"]

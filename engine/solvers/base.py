@@ -11,11 +11,20 @@ gradient calls BLAS dot products on vectors of 10^4 to 10^6 entries; OpenBLAS sp
 over threads, and on two busy cores that made whole solves 3 to 20 times slower (the core type
 OpenBLAS picks made no difference); SuperLU's block solves gain too. Numbers in
 ``benchmarks/README.md``.
+
+Set-up and solves run in a worker thread while the calling (main) thread waits in short timed
+joins (:func:`in_worker`): Python runs signal handlers only in the main thread and only between
+bytecodes, so a SIGINT arriving during a factorisation run on the main thread would wait for
+the factorisation to end. SuperLU (``splu`` and its solves) and SciPy's sparse products release
+the GIL, so with the work elsewhere the main thread acts on the signal within a poll (the
+abandoned worker ends with the process). Back ends whose library must stay on the main thread
+(``petsc``: MPI) set :attr:`SPDSolver.worker_thread` to False.
 """
 
 from __future__ import annotations
 
 import functools
+import threading
 import time
 from abc import ABC, abstractmethod
 from dataclasses import dataclass
@@ -38,6 +47,51 @@ def _blas_threads():
 def single_threaded_blas():
     """Context manager that limits every loaded BLAS library to one thread."""
     return _blas_threads().limit(limits=1, user_api="blas")
+
+
+# Seconds between the main thread's checks on a worker (signal handlers run between them too).
+WORKER_POLL = 0.05
+# Matrices with fewer unknowns are set up and solved on the calling thread: their calls take
+# milliseconds, less than starting a thread would add to each of their many small solves.
+WORKER_MIN_UNKNOWNS = 20_000
+
+
+_UNFINISHED: set = set()          # completion events of workers not finished yet
+
+
+def in_worker(function, *args):
+    """``function(*args)`` run in a daemon thread while the main thread waits in timed waits,
+    so that a signal handler raising in the main thread ends the wait at once.
+
+    Off the main thread (nothing to keep responsive) the call is made directly. Exceptions of
+    ``function`` are raised here. (The wait is on an event, not ``Thread.join``: a join cut
+    short by an exception can mark a running thread as stopped.)
+    """
+    if threading.current_thread() is not threading.main_thread():
+        return function(*args)
+    outcome, finished = {}, threading.Event()
+
+    def work():
+        try:
+            outcome["value"] = function(*args)
+        except BaseException as error:          # handed to the waiting thread
+            outcome["error"] = error
+        finally:
+            finished.set()
+            _UNFINISHED.discard(finished)
+
+    _UNFINISHED.add(finished)
+    threading.Thread(target=work, name="ohmgraph-solver", daemon=True).start()
+    while not finished.wait(WORKER_POLL):
+        pass
+    if "error" in outcome:
+        raise outcome["error"]
+    return outcome["value"]
+
+
+def workers_unfinished() -> bool:
+    """Whether a worker of :func:`in_worker` is still running (its caller was interrupted)."""
+    return any(not event.is_set() for event in list(_UNFINISHED))
 
 
 class SolverFailed(RuntimeError):
@@ -102,14 +156,20 @@ class SPDSolver(ABC):
     """Set up once for a symmetric positive-definite matrix, solve many right-hand sides."""
 
     method: str = ""
+    worker_thread: bool = True      # set up and solve in a worker thread (module notes)
 
     def __init__(self, matrix, rtol: float = DEFAULT_RTOL):
         self.matrix = sp.csr_matrix(matrix)
         self.rtol = float(rtol)
         start = time.perf_counter()
         with single_threaded_blas():
-            self._setup()
+            self._run(self._setup)
         self.setup_seconds = time.perf_counter() - start
+
+    def _run(self, function, *args):
+        if self.worker_thread and self.matrix.shape[0] >= WORKER_MIN_UNKNOWNS:
+            return in_worker(function, *args)
+        return function(*args)
 
     @abstractmethod
     def _setup(self) -> None:
@@ -134,7 +194,7 @@ class SPDSolver(ABC):
             x, iterations = np.zeros_like(b), 0
         else:
             with single_threaded_blas():
-                x, iterations = self._solve(b, x0)
+                x, iterations = self._run(self._solve, b, x0)
         elapsed = time.perf_counter() - start
         residual = relative_residual(self.matrix, x, b) if b.size else 0.0
         target = max(self.rtol, DIRECT_RESIDUAL_LIMIT) if self.method == "direct" else self.rtol

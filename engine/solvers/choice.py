@@ -18,11 +18,27 @@ the analysis included, makes ``direct`` clearly dearer than ``amg-cg``, or clear
 the budget, the analysis is skipped and ``amg-cg`` chosen. When neither back end is predicted to
 fit the budget, :class:`~.base.SolverFailed` says so rather than exceed it.
 
+``ac-cg`` (approximate Cholesky + CG, :mod:`.ac_cg`) is a candidate for grounded Laplacians
+(nonpositive off-diagonal entries, diagonally dominant rows: what ``assemble`` builds). It is
+predicted from ``nnz(A)``: a factorisation cost per entry and, per right-hand side, an iteration
+count that grows with the digits asked for (``AC_ITERATIONS_PER_DECADE`` times
+``-log10(rtol)``) times a cost per entry and iteration. The iterative candidate is the cheaper of
+``amg-cg`` and ``ac-cg`` that fits the budget; it stands against ``direct`` as ``amg-cg`` alone
+did before. When ac-cg is predicted cheaper than amg-cg at its floor complexity (its least) and
+than the least a factorisation could cost (:func:`direct_floor`: its analysis and per-entry terms),
+on at least ``SCREEN_MIN_UNKNOWNS`` unknowns, neither the screen nor the analysis is made.
+
 The choice is a :class:`Choice`: the method, the reason in words and the numbers behind it, so a
 caller can show and store why a method was used.
 
 Calibration
 -----------
+``ac-cg`` (2026-12-03, same machine, process CPU seconds because the load average was 5 to 7):
+the three systems of ``benchmarks/bench_peers.py`` (a 1000 x 1000 lattice with log-uniform
+conductances, a two-layer mesh, a 3-nearest-neighbour graph; about 10^6 unknowns and 5 x 10^6
+entries each) and the small random graphs of ``tests/test_ac_cg.py``: factorisation 185-320 ns
+per entry, 5.0-6.6 ns per entry and iteration, 29-31 iterations at rtol 1e-8.
+
 Every constant below was measured on the development machine (2 cores shared with other work,
 BLAS on one thread, 2026-12-03) on reduced systems of ``ohmgraph.datasets.generators``: lattices
 of 10^4 to 2.5 x 10^5 unknowns, two-layer meshes of 5 x 10^4 and 2 x 10^5, 4-nearest-neighbour
@@ -40,7 +56,7 @@ import numpy as np
 from scipy.sparse.csgraph import breadth_first_order
 
 from ..memory import default_memory_budget
-from .base import SolverFailed
+from .base import DEFAULT_RTOL, SolverFailed
 from .symbolic import FactorAnalysis, column_counts
 
 # direct (SuperLU in the analysed order), seconds and bytes
@@ -68,6 +84,27 @@ AMG_BYTES_PER_ENTRY = 20.0              # peak bytes: measured 14-20
 # Barabási–Albert ones 38-348 above within a factor of 2.
 COMPLEXITY_FLOOR = 2.2
 COMPLEXITY_SLOPE = 1.7
+
+# amg-cg is relatively cheaper on matrices of even weights and degrees: ac-cg's prediction is
+# divided by min(1, AMG_EVEN_BASE + AMG_EVEN_SLOPE * irregularity) (amg-cg's own, calibrated
+# on uniform lattices among others, stays), irregularity = the mean within-row
+# standard deviation of log10 conductance + AMG_DEGREE_WEIGHT * (delta - 1) (delta: the degree
+# spread above). Measured (CPU seconds per 10^6 entries, rtol 1e-8, one right-hand side): a
+# uniform lattice (irregularity 0.01) 0.21, the two-layer mesh (0.21) 0.31, the 3-NN graph
+# (0.47) 0.51, the lattice of log-uniform conductances (0.47) 0.49; ac-cg 0.33-0.41 on all four.
+AMG_EVEN_BASE = 0.43
+AMG_EVEN_SLOPE = 1.22
+AMG_DEGREE_WEIGHT = 6.0
+VARIATION_ROWS = 50_000                 # rows sampled for the weight variation
+
+# ac-cg (approximate Cholesky + CG), per entry of A
+AC_SETUP_SECONDS = 2.2e-7
+AC_ITERATION_SECONDS = 4.6e-9
+AC_ITERATIONS_PER_DECADE = 3.9          # 29-31 iterations at rtol 1e-8
+# Peak bytes: the edge pool, the factor, the permuted matrix and CG's vectors. Engine solve of
+# a 700 x 700 lattice: ac-cg added 193 MB, amg-cg 212 MB; scaled to amg-cg's model (44 B per
+# entry at the floor complexity).
+AC_BYTES_PER_ENTRY = 40.0
 
 # The screen: used when the analysis would cost more than SCREEN_SHARE of amg-cg's cheapest
 # prediction, on at least SCREEN_MIN_UNKNOWNS unknowns; skips the analysis when the sampled
@@ -116,6 +153,15 @@ def direct_prediction(matrix, factor_nonzeros: float, flops: float, solves: int)
     return seconds, DIRECT_BYTES_PER_FACTOR_ENTRY * factor_nonzeros + DIRECT_BYTES_PER_ENTRY * entries
 
 
+def direct_floor(matrix, solves: int) -> float:
+    """The least ``direct`` can cost, its analysis included, whatever the factor: the
+    per-entry terms, and per right-hand side a factor of at least ``nnz(A) / 2`` entries."""
+    n, entries = matrix.shape[0], matrix.nnz
+    return ((ANALYSIS_SECONDS_PER_ENTRY + FACTOR_SECONDS_PER_ENTRY) * entries
+            + solves * (SOLVE_SECONDS_PER_FACTOR_ENTRY * entries / 2
+                        + SOLVE_SECONDS_PER_UNKNOWN * n))
+
+
 def operator_complexity(matrix, factor_nonzeros: float | None = None,
                         flops: float | None = None) -> float:
     """Predicted multigrid operator complexity (see the constants above); the floor when the
@@ -134,6 +180,56 @@ def amg_prediction(matrix, solves: int, complexity: float) -> tuple:
     work = matrix.nnz * complexity
     seconds = work * (AMG_SETUP_SECONDS + solves * AMG_ITERATIONS * AMG_ITERATION_SECONDS)
     return seconds, AMG_BYTES_PER_ENTRY * work
+
+
+def amg_evenness(matrix) -> float:
+    """The factor (at most 1) by which amg-cg is cheaper, relative to ac-cg, on a matrix of
+    even conductances and degrees (see the constants above)."""
+    from .ac_factor import weight_variation_kernel
+
+    n = matrix.shape[0]
+    if n == 0:
+        return 1.0
+    degree = np.diff(matrix.indptr).astype(np.float64) - 1.0
+    spread = n * float(degree @ degree) / max(float(degree.sum()) ** 2, 1.0)
+    within = weight_variation_kernel(matrix.indptr, matrix.indices, matrix.data,
+                                     max(1, n // VARIATION_ROWS))
+    irregularity = within + AMG_DEGREE_WEIGHT * max(spread - 1.0, 0.0)
+    return min(1.0, AMG_EVEN_BASE + AMG_EVEN_SLOPE * irregularity)
+
+
+def ac_prediction(matrix, solves: int, rtol: float = DEFAULT_RTOL) -> tuple:
+    """``(seconds, bytes)`` of the ac-cg factorisation and ``solves`` right-hand sides."""
+    iterations = AC_ITERATIONS_PER_DECADE * max(-math.log10(max(rtol, 1e-16)), 1.0)
+    seconds = matrix.nnz * (AC_SETUP_SECONDS + solves * iterations * AC_ITERATION_SECONDS)
+    return seconds, AC_BYTES_PER_ENTRY * matrix.nnz
+
+
+def grounded_laplacian(matrix) -> bool:
+    """Whether ac-cg applies: nonpositive off-diagonal entries, diagonally dominant rows."""
+    from .ac_factor import grounded_laplacian_kernel
+
+    return bool(grounded_laplacian_kernel(matrix.indptr, matrix.indices, matrix.data))
+
+
+def _iterative(matrix, solves: int, rtol: float, complexity: float, laplacian: bool,
+               budget: float, predicted: dict, evenness: float = 1.0) -> tuple:
+    """The cheaper of amg-cg and (for a grounded Laplacian) ac-cg among those within the
+    budget: ``(method, seconds, bytes)``, their predictions recorded in ``predicted``; the
+    smaller in bytes when neither fits (the caller refuses it)."""
+    amg_s, amg_b = amg_prediction(matrix, solves, complexity)
+    predicted.update(amg_seconds=amg_s, amg_bytes=amg_b, amg_complexity=complexity,
+                     amg_evenness=evenness)
+    candidates = [("amg-cg", amg_s, amg_b)]
+    if laplacian:
+        ac_s, ac_b = ac_prediction(matrix, solves, rtol)
+        ac_s /= evenness
+        predicted.update(ac_seconds=ac_s, ac_bytes=ac_b)
+        candidates.append(("ac-cg", ac_s, ac_b))
+    fitting = [c for c in candidates if c[2] <= budget]
+    if not fitting:
+        return min(candidates, key=lambda c: c[2])
+    return min(fitting, key=lambda c: c[1])
 
 
 def sampled_factor(matrix) -> tuple[float, float] | None:
@@ -171,18 +267,19 @@ def _budget(memory_budget: float | None) -> float:
     return math.inf if budget is None else float(budget)
 
 
-def _refuse_over_budget(predicted: dict, budget: float) -> None:
-    """Raise :class:`~.base.SolverFailed` when amg-cg, the only candidate left, is predicted
-    over the budget too."""
-    if predicted["amg_bytes"] > budget:
+def _refuse_over_budget(predicted: dict, iterative: tuple, budget: float) -> None:
+    """Raise :class:`~.base.SolverFailed` when the iterative back end, the only candidate
+    left, is predicted over the budget too."""
+    method, _, needed = iterative
+    if needed > budget:
         raise SolverFailed(f"neither back end fits the memory budget of {_gb(budget)}: direct "
-                           f"would need about {_gb(predicted['direct_bytes'])}, amg-cg about "
-                           f"{_gb(predicted['amg_bytes'])}; raise the budget (--memory-budget)")
+                           f"would need about {_gb(predicted['direct_bytes'])}, {method} about "
+                           f"{_gb(needed)}; raise the budget (--memory-budget)")
 
 
 def choose(matrix, solves: int = 1, memory_budget: float | None = None,
-           analysis: FactorAnalysis | None = None) -> Choice:
-    """Pick ``direct`` or ``amg-cg`` for ``matrix`` and ``solves`` right-hand sides.
+           analysis: FactorAnalysis | None = None, rtol: float = DEFAULT_RTOL) -> Choice:
+    """Pick ``direct``, ``amg-cg`` or ``ac-cg`` for ``matrix`` and ``solves`` right-hand sides.
 
     Parameters
     ----------
@@ -195,11 +292,13 @@ def choose(matrix, solves: int = 1, memory_budget: float | None = None,
         :func:`ohmgraph.engine.memory.default_memory_budget`).
     analysis : FactorAnalysis, optional
         The symbolic analysis of ``matrix`` from an earlier choice, reused.
+    rtol : float
+        The relative residual asked for (ac-cg's iterations grow with its digits).
 
     Raises
     ------
     SolverFailed
-        When neither back end is predicted to fit the memory budget.
+        When no back end is predicted to fit the memory budget.
     """
     n, entries = matrix.shape[0], matrix.nnz
     solves = max(int(solves), 1)
@@ -208,8 +307,22 @@ def choose(matrix, solves: int = 1, memory_budget: float | None = None,
         return Choice("direct", "an empty system", {"unknowns": 0})
     predicted = {"unknowns": n, "matrix_nonzeros": entries, "solves": solves,
                  "memory_budget_bytes": budget if math.isfinite(budget) else None}
-    cheapest_amg, _ = amg_prediction(matrix, solves, COMPLEXITY_FLOOR)
-    if (analysis is None and ANALYSIS_SECONDS_PER_ENTRY * entries > SCREEN_SHARE * cheapest_amg
+    laplacian = grounded_laplacian(matrix)
+    evenness = amg_evenness(matrix)
+    _, cheapest, _ = _iterative(matrix, solves, rtol, COMPLEXITY_FLOOR, laplacian, math.inf, {},
+                                evenness)
+    floor = direct_floor(matrix, solves)
+    if analysis is None and n >= SCREEN_MIN_UNKNOWNS:
+        quick = dict(predicted, direct_floor_seconds=floor)
+        iterative = _iterative(matrix, solves, rtol, COMPLEXITY_FLOOR, laplacian, budget, quick,
+                               evenness)
+        method, seconds, needed = iterative
+        # amg-cg at the floor complexity is its least; only ac-cg's prediction is final here
+        if method == "ac-cg" and seconds < floor and needed <= budget:
+            return Choice(method, f"predicted {seconds:.3g} s for {solves} right-hand side(s), "
+                          f"less than a factorisation's least ({floor:.3g} s: its analysis and "
+                          "a pass over the matrix)", quick)
+    if (analysis is None and ANALYSIS_SECONDS_PER_ENTRY * entries > SCREEN_SHARE * cheapest
             and n >= SCREEN_MIN_UNKNOWNS):
         sample = sampled_factor(matrix)
         if sample is not None:
@@ -217,35 +330,36 @@ def choose(matrix, solves: int = 1, memory_budget: float | None = None,
             direct_s, direct_b = direct_prediction(matrix, factor_nonzeros, flops, solves)
             direct_s += ANALYSIS_SECONDS_PER_ENTRY * entries
             complexity = operator_complexity(matrix, factor_nonzeros, flops)
-            amg_s, amg_b = amg_prediction(matrix, solves, complexity)
-            if direct_s > SCREEN_MARGIN * amg_s or direct_b > SCREEN_MARGIN * budget:
-                predicted.update(sampled=True, factor_nonzeros=factor_nonzeros,
-                                 factor_flops=flops, direct_seconds=direct_s,
-                                 direct_bytes=direct_b, amg_seconds=amg_s, amg_bytes=amg_b,
-                                 amg_complexity=complexity)
-                _refuse_over_budget(predicted, budget)
-                return Choice("amg-cg", f"sampled factor estimate: direct about {direct_s:.3g} s "
-                              f"and {_gb(direct_b)}, amg-cg {amg_s:.3g} s for {solves} "
-                              "right-hand side(s)", predicted)
+            screened = dict(predicted, sampled=True, factor_nonzeros=factor_nonzeros,
+                            factor_flops=flops, direct_seconds=direct_s, direct_bytes=direct_b)
+            iterative = _iterative(matrix, solves, rtol, complexity, laplacian, budget, screened,
+                                   evenness)
+            method, seconds, _ = iterative
+            if direct_s > SCREEN_MARGIN * seconds or direct_b > SCREEN_MARGIN * budget:
+                _refuse_over_budget(screened, iterative, budget)
+                return Choice(method, f"sampled factor estimate: direct about {direct_s:.3g} s "
+                              f"and {_gb(direct_b)}, {method} {seconds:.3g} s for {solves} "
+                              "right-hand side(s)", screened)
     if analysis is None:
         analysis = column_counts(matrix)
     direct_s, direct_b = direct_prediction(matrix, analysis.factor_nonzeros, analysis.flops,
                                            solves)
     complexity = operator_complexity(matrix, analysis.factor_nonzeros, analysis.flops)
-    amg_s, amg_b = amg_prediction(matrix, solves, complexity)
     predicted.update(sampled=False, factor_nonzeros=analysis.factor_nonzeros,
-                     factor_flops=analysis.flops, direct_seconds=direct_s, direct_bytes=direct_b,
-                     amg_seconds=amg_s, amg_bytes=amg_b, amg_complexity=complexity)
+                     factor_flops=analysis.flops, direct_seconds=direct_s, direct_bytes=direct_b)
+    iterative = _iterative(matrix, solves, rtol, complexity, laplacian, budget, predicted,
+                           evenness)
+    method, seconds, _ = iterative
     if direct_b > budget:
-        _refuse_over_budget(predicted, budget)
-        return Choice("amg-cg", f"the factor ({analysis.factor_nonzeros} entries) would need "
+        _refuse_over_budget(predicted, iterative, budget)
+        return Choice(method, f"the factor ({analysis.factor_nonzeros} entries) would need "
                       f"{_gb(direct_b)}, over the memory budget of {_gb(budget)}", predicted,
                       analysis)
-    if direct_s <= amg_s:
-        return Choice("direct", f"predicted {direct_s:.3g} s against {amg_s:.3g} s for amg-cg "
-                      f"({solves} right-hand side(s), factor of {analysis.factor_nonzeros} "
-                      f"entries, {_gb(direct_b)})", predicted, analysis)
-    return Choice("amg-cg", f"predicted {amg_s:.3g} s against {direct_s:.3g} s for direct "
+    if direct_s <= seconds:
+        return Choice("direct", f"predicted {direct_s:.3g} s against {seconds:.3g} s for "
+                      f"{method} ({solves} right-hand side(s), factor of "
+                      f"{analysis.factor_nonzeros} entries, {_gb(direct_b)})", predicted, analysis)
+    return Choice(method, f"predicted {seconds:.3g} s against {direct_s:.3g} s for direct "
                   f"({solves} right-hand side(s), factor of {analysis.factor_nonzeros} entries)",
                   predicted, analysis)
 

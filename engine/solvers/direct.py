@@ -79,9 +79,11 @@ class DirectSolver(SPDSolver):
         return self._factors
 
     def preconditioner(self, matrix=None):
-        """The factorisation's solve (exact for this set-up's matrix; ``matrix`` is not used)."""
+        """The factorisation's solve (exact for this set-up's matrix; ``matrix`` is not used),
+        in the unknowns' own order like :meth:`_solve`."""
         n = self.matrix.shape[0]
-        return spla.LinearOperator((n, n), matvec=self._lu.solve, dtype=np.float64)
+        return spla.LinearOperator((n, n), matvec=lambda b: self._solve(np.ravel(b))[0],
+                                   dtype=np.float64)
 
     def _solve(self, b, x0=None):
         # One call for a block. With the BLAS on one thread a Fortran-ordered block beats column

@@ -58,6 +58,7 @@ class PetscSolver(SPDSolver):
     """CG + BoomerAMG (GAMG without hypre) through PETSc on this process alone."""
 
     method = "petsc"
+    worker_thread = False           # PETSc and MPI calls stay on the main thread
 
     def _setup(self) -> None:
         PETSc = petsc_module()

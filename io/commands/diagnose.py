@@ -2,15 +2,17 @@
 
 from __future__ import annotations
 
+import argparse
 import html
 
 import numpy as np
 
+from ohmgraph.engine.readings.contact import DEFAULT_CONTACT_MAX_OHMS
 from ohmgraph.engine.readings.diagnosis import SHORT_RATIO, diagnose
-from ohmgraph.engine.readings.gls import (DEFAULT_MIN_CHANGE, DEFAULT_SIGNIFICANCE, MAX_FLAGGED,
-                                         diagnose_parts)
+from ohmgraph.engine.readings.gls import (DEFAULT_CONTACT_SIGNIFICANCE, DEFAULT_MIN_CHANGE,
+                                         DEFAULT_SIGNIFICANCE, MAX_FLAGGED, diagnose_parts)
 from ohmgraph.engine.readings.model import compare
-from ohmgraph.io.commands.argtypes import fraction, whole_number
+from ohmgraph.io.commands.argtypes import finite_float, fraction, whole_number
 from ohmgraph.io.commands.part_options import (add_band_arguments, band_rule_text, model_bands,
                                                percent, read_part_tolerances)
 from ohmgraph.io.commands.reading_model import (counting_solves, feedback, model_readings,
@@ -22,10 +24,21 @@ from ohmgraph.io.errors import EXIT_OK, InputError
 from ohmgraph.io.html_summary import (add_html_argument, page, reading_table_html, table_html,
                                       write_page)
 from ohmgraph.io.jsonout import dumps
-from ohmgraph.io.numbers import quantity, significant
+from ohmgraph.io.numbers import digits_beside, quantity, significant
 from ohmgraph.io.provenance import provenance_record
 
 CHI2_DIGITS = 4
+UNITS = {"V": "V", "R": "ohm", "I": "A"}
+RECHECK = ("caution: before probing again, de-energise and discharge the network for "
+           "resistance readings (common practice) and follow local safety rules")
+
+
+def _ohms(text: str) -> float:
+    """A resistance of 0 or more (0: no contact-error test)."""
+    value = finite_float(text)
+    if value < 0:
+        raise argparse.ArgumentTypeError(f"{text!r} must be 0 or more")
+    return value
 
 
 def register(subparsers) -> None:
@@ -52,6 +65,14 @@ def register(subparsers) -> None:
     parser.add_argument("--max-flagged", type=whole_number(0), default=MAX_FLAGGED,
                         metavar="N", help="most readings flagged as unexplained (default "
                                           f"{MAX_FLAGGED}; 0: none)")
+    parser.add_argument("--contact-significance", type=fraction,
+                        default=DEFAULT_CONTACT_SIGNIFICANCE, metavar="P",
+                        help="with part tolerances: chance that a clean resistance reading is "
+                             "flagged as read high by a poor probe contact (default "
+                             f"{DEFAULT_CONTACT_SIGNIFICANCE:g})")
+    parser.add_argument("--contact-max", type=_ohms, default=DEFAULT_CONTACT_MAX_OHMS,
+                        metavar="OHMS", help="largest resistance a poor probe contact is taken "
+                        f"to add (default {DEFAULT_CONTACT_MAX_OHMS:g} ohm; 0: no contact test)")
     parser.add_argument("--top", type=whole_number(1), default=10, metavar="K",
                         help="number of hypotheses to rank (default 10)")
     parser.add_argument("--short-ratio", type=fraction, default=SHORT_RATIO, metavar="F",
@@ -96,8 +117,9 @@ def _describe(kind: str, nominal: float, estimated: float) -> str:
 
 def _ranking_lines(net, result, band_word: str) -> list:
     lines = [f"{'rank':>4} {'chi2':>10} {'fits':>4}  hypothesis"]
+    marked = any(hypothesis.left_out for hypothesis in result.hypotheses)
     for rank, hypothesis in enumerate(result.hypotheses, start=1):
-        fits = "yes" if hypothesis.explains_all else "no"
+        fits = ("yes" if hypothesis.explains_all else "no") + ("*" * bool(hypothesis.left_out))
         for member, branch in enumerate(hypothesis.branches):
             head = (f"{rank:>4} {significant(hypothesis.chi2, CHI2_DIGITS):>10} {fits:>4}  "
                     if member == 0
@@ -108,6 +130,10 @@ def _ranking_lines(net, result, band_word: str) -> list:
         if hypothesis.branches.size > 1:
             lines.append(" " * 22 + f"(the readings cannot tell these {hypothesis.branches.size} "
                                     "apart)")
+    if marked:
+        lines.append("*: fitted without the flagged reading(s); its chi2 includes the penalty "
+                     "for leaving them out (the limits of their tests), so that both kinds of "
+                     "hypothesis rank together")
     tied = result.tied_with_best()
     if tied > 1:
         lines.append(f"caution: {tied} hypotheses fit within chi2 + 1 of the best; at this "
@@ -136,6 +162,25 @@ def _reading_name(table, reading: int) -> str:
     return f"line {table.lines[reading]} ({kind} {a}{' ' + b if b else ''})"
 
 
+def _flag_line(table, flag, result) -> str:
+    """Why a reading is flagged: its offset, the statistic and the limit of its test."""
+    unit = UNITS[str(table.readings.kind[flag.reading])]
+    digits = digits_beside(flag.shift, flag.shift_std)
+    offset = (f"{significant(flag.shift, digits, sign=True)} {unit} "
+              f"(standard uncertainty {significant(flag.shift_std, 2)} {unit})")
+    statistic = (f"w = {flag.statistic:+.3g} against {np.sqrt(flag.limit):.3g}; "
+                 f"leaving it out lowers the best chi2 by {flag.drop:.4g}")
+    if flag.test == "contact":
+        why = (f"read high by {offset}, as a poor probe contact would (contact-error test, "
+               f"one-sided, family-wise significance {result.contact_significance:g}: "
+               f"{statistic})")
+    else:
+        why = (f"off by {offset}, which no hypothesis explains (gross-error test at "
+               f"significance {result.significance:g} over the readings: {statistic})")
+    return (f"FLAGGED {_reading_name(table, flag.reading)}: {why}. Check its probe contact "
+            "and take it again")
+
+
 def _format_parts(net, table, result, bands) -> str:
     ranking, limits = result.ranking, result.limits
     alpha = f"{result.significance:g}"
@@ -144,13 +189,11 @@ def _format_parts(net, table, result, bands) -> str:
              "instrument's accuracy (both uniform within their limits)",
              f"chi-square of the model as it is: {result.first_ranking.baseline_chi2:.4g} over "
              f"{result.first_ranking.readings_used.size} reading(s)"]
-    for reading, drop in result.flagged:
-        lines.append(f"FLAGGED {_reading_name(table, reading)}: no hypothesis explains it; "
-                     f"leaving it out lowers the best chi2 by {drop:.4g} (limit "
-                     f"{limits['flag']:.4g}). Check its probe contact and take it again")
+    lines += [_flag_line(table, flag, result) for flag in result.flagged]
     if result.flagged:
         lines.append(f"without the flagged reading(s): chi-square of the model as it is "
                      f"{ranking.baseline_chi2:.4g} over {ranking.readings_used.size} reading(s)")
+        lines.append(RECHECK)
     if result.fault_indicated:
         lines.append(f"fault indicated: {ranking.baseline_chi2:.4g} > {limits['no_fault']:.4g}, "
                      f"the chi-square limit at significance {alpha}")
@@ -225,6 +268,16 @@ def _emit(args, columns, attrs, sources, text, readings, flagged=()) -> None:
         print(text)
 
 
+def _flag_attrs(table, flagged) -> dict:
+    """The flagged readings as parallel arrays (line, test, drop, statistic, limit, offset)."""
+    numbers = {name: np.array([getattr(f, field) for f in flagged], np.float64)
+               for name, field in (("flagged_chi2_drop", "drop"),
+                                   ("flagged_statistic", "statistic"), ("flagged_limit", "limit"),
+                                   ("flagged_shift", "shift"), ("flagged_shift_std", "shift_std"))}
+    return {"flagged_lines": np.array([table.lines[f.reading] for f in flagged], np.int64),
+            "flagged_tests": [f.test for f in flagged], **numbers}
+
+
 def _run_parts(args, net, table, model, tolerance, sources) -> int:
     bands, spread = model_bands(args, model, tolerance, covariance=True)
     comparison = compare(model, bands.band)
@@ -234,7 +287,9 @@ def _run_parts(args, net, table, model, tolerance, sources) -> int:
         result = diagnose_parts(model, bands, spread.covariance, top=args.top,
                                 short_ratio=args.short_ratio, min_change=args.min_change,
                                 significance=args.significance,
-                                max_flagged=args.max_flagged)
+                                max_flagged=args.max_flagged,
+                                contact_significance=args.contact_significance,
+                                contact_max=args.contact_max)
     ranking = result.ranking
     columns = hypothesis_columns(net, ranking, result.pairs)
     attrs = {"fit": "generalised least squares", "band_rule": band_rule_text(bands),
@@ -244,8 +299,9 @@ def _run_parts(args, net, table, model, tolerance, sources) -> int:
              "baseline_chi2_all_readings": result.first_ranking.baseline_chi2,
              "fault_indicated": result.fault_indicated, "single_fault_fits": result.single_fits,
              "chi2_limits": result.limits,
-             "flagged_lines": np.array([table.lines[r] for r, _ in result.flagged], np.int64),
-             "flagged_chi2_drop": np.array([drop for _, drop in result.flagged], np.float64),
+             "contact_significance": result.contact_significance,
+             "contact_max_ohms": args.contact_max,
+             **_flag_attrs(table, result.flagged),
              "readings": int(model.readings.n),
              "readings_outside_band": int((~comparison.passed).sum()),
              "readings_used": int(ranking.readings_used.size),
@@ -256,5 +312,5 @@ def _run_parts(args, net, table, model, tolerance, sources) -> int:
              "notes": model.notes + result.notes + ranking.notes}
     _emit(args, columns, attrs, sources, _format_parts(net, table, result, bands),
           reading_columns(table, model, comparison, bands),
-          [int(table.lines[r]) for r, _ in result.flagged])
+          [int(table.lines[flag.reading]) for flag in result.flagged])
     return EXIT_OK

@@ -20,10 +20,11 @@ from ohmgraph.engine.solvers import DEFAULT_RTOL, SOLVERS, SolverFailed
 from ohmgraph.io.atomic import refuse_existing, refuse_input
 from ohmgraph.io.commands.argtypes import add_memory_budget, positive_float, whole_number
 from ohmgraph.io.csv_table import write_csv
-from ohmgraph.io.errors import EXIT_OK, InputError, NotWellPosed, SolverError
+from ohmgraph.io.errors import EXIT_OK, InputError, NotWellPosed, SolverError, UserError
 from ohmgraph.io.formats import require_format
 from ohmgraph.io.jsonout import dumps
 from ohmgraph.io.memory_guard import refuse_if_too_big
+from ohmgraph.io.mpi_launch import launched_rank, launched_size
 from ohmgraph.io.numbers import UNCERTAINTY_DIGITS, digits_for, quantity, significant
 from ohmgraph.io.pairs import read_pairs
 from ohmgraph.io.progress import Feedback, format_seconds
@@ -111,7 +112,20 @@ def register(subparsers) -> None:
 
 
 def run(args) -> int:
-    """Run ``resistance``; return the exit code (see :mod:`ohmgraph.io.errors`)."""
+    """Run ``resistance``; return the exit code (see :mod:`ohmgraph.io.errors`).
+
+    Under ``mpiexec`` with more than one process, or ``--pairs`` with ``--method petsc``, the
+    query runs on the distributed matrix (:mod:`ohmgraph.io.parallel_resistance`); only the
+    first process prints an error.
+    """
+    size = launched_size()
+    if size is not None and (size > 1 or (args.method == "petsc" and args.pairs)):
+        try:
+            return _run_distributed(args)
+        except UserError as error:
+            if launched_rank() != 0:
+                return error.exit_code
+            raise
     if args.output is not None:
         if args.between or args.kirchhoff:
             raise InputError("-o writes a table: use it with --pairs, --to-reference or "
@@ -157,6 +171,17 @@ def run(args) -> int:
             return _pairs(args, solver, a_labels, b_labels, a_idx, b_idx, feedback)
     except SolverFailed as error:
         raise SolverError(f"{args.network}: {error}") from error
+
+
+def _run_distributed(args) -> int:
+    from ohmgraph.io.mpi_launch import mpi_world
+    from ohmgraph.io.parallel_resistance import run_distributed_pairs
+
+    def emit(columns, summary):
+        return _emit_table(args, columns,
+                           {**summary, "accuracy_meaning": PAIR_ACCURACY[summary["method"]]})
+
+    return run_distributed_pairs(args, mpi_world(), emit)
 
 
 def _nodes(args, net, labels, option) -> np.ndarray:

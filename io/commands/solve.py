@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import time
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import replace
 
 from ohmgraph.engine.drop import DEFAULT_THRESHOLDS, supply_drop
@@ -17,14 +18,16 @@ from ohmgraph.io.formats import HDF5, require_format
 from ohmgraph.io.interrupts import checkpoint
 from ohmgraph.io.jsonout import dumps
 from ohmgraph.io.memory_guard import refuse_if_too_big
+from ohmgraph.io.network_file import is_hdf5
 from ohmgraph.io.mpi_launch import launched_rank, launched_size
 from ohmgraph.engine.variant import apply_changes
-from ohmgraph.io.changes import CHANGES_NOTE, change_note, read_changes
+from ohmgraph.io.changes import CHANGES_NOTE, change_note, check_from_base, read_changes
 from ohmgraph.io.node_table import node_table_by_label, read_node_table
 from ohmgraph.io.progress import Feedback, format_seconds
 from ohmgraph.io.reader import RATING_COLUMNS, NetworkFile, read_network_file
 from ohmgraph.io.solution_view import format_solution, solution_summary
-from ohmgraph.io.store import file_sha256, read_solution, voltages_by_label, write_solution
+from ohmgraph.io.store import (file_sha256, read_solution, read_warm_start, voltages_by_label,
+                               write_solution)
 
 
 def register(subparsers) -> None:
@@ -76,19 +79,22 @@ def register(subparsers) -> None:
     parser.set_defaults(run=run)
 
 
-def read_inputs(args, base) -> tuple[NetworkFile, list]:
-    """The network file (network, reader's findings, ratings): taken from ``BASE.h5`` when NET
-    is the very file it was solved from (same SHA-256, same reference node, no change file
-    applied then), else read from NET; and the notes saying which."""
-    if (base is not None and base.attrs.get("input_sha256") == file_sha256(args.network)
+def read_inputs(args, base) -> tuple[NetworkFile, list, bool]:
+    """The network file (network, reader's findings, ratings), the notes saying where it came
+    from, and whether it is the very network ``BASE.h5`` was solved from (same SHA-256, same
+    reference node, no change file applied then). That network is taken from ``BASE.h5``,
+    which is faster to read than a text file; an HDF5 network file (``convert``) is read
+    itself, faster still."""
+    same = (base is not None and base.attrs.get("input_sha256") == file_sha256(args.network)
             and base.attrs["reference"] == args.ground
-            and not any(note.startswith(CHANGES_NOTE) for note in base.attrs.get("notes", []))):
+            and not any(note.startswith(CHANGES_NOTE) for note in base.attrs.get("notes", [])))
+    if same and not is_hdf5(args.network):
         ratings = {name: base.extra[f"branches/{name}"] for name in RATING_COLUMNS
                    if f"branches/{name}" in base.extra}
         return (NetworkFile(args.network, base.network, (), ratings),
                 [f"network taken from {args.start_from}: {args.network} is unchanged since "
-                 "(same SHA-256)"])
-    return read_network_file(args.network, ground=args.ground), []
+                 "(same SHA-256)"], True)
+    return read_network_file(args.network, ground=args.ground), [], same
 
 
 def run(args) -> int:
@@ -113,10 +119,17 @@ def run(args) -> int:
     require_format(args.output, (HDF5,), role="-o")
     checkpoint("read")
     start = time.perf_counter()
-    base = read_solution(args.start_from) if args.start_from else None
-    read, notes = read_inputs(args, base)
+    base = None
+    if args.start_from:
+        # NET in HDF5 is read itself, so only what a warm start needs is read from BASE.h5;
+        # a text NET may be the file BASE.h5 was solved from, whose network BASE.h5 holds
+        base = (read_warm_start(args.start_from) if is_hdf5(args.network)
+                else read_solution(args.start_from))
+    read, notes, same_as_base = read_inputs(args, base)
+    change_file = None
     if args.changes:
         change_file = read_changes(args.changes, read.network)
+        original = read.network
         read = replace(read, network=apply_changes(read.network, change_file.changes),
                        ratings=change_file.changed_ratings(read.network, read.ratings))
         notes.append(change_note(args.changes, change_file.changes))
@@ -137,7 +150,15 @@ def run(args) -> int:
 
     checkpoint("check")
     start = time.perf_counter()
-    report = read.check(allow_floating=args.allow_floating)
+    # NET is the very network BASE.h5 was solved from: its stored check may serve
+    report = (check_from_base(base.findings, base.check_summary, original, change_file.changes,
+                              net)
+              if change_file is not None and same_as_base else None)
+    if report is None:
+        report = read.check(allow_floating=args.allow_floating)
+    else:
+        notes.append(f"check of {args.start_from} kept: only values changed (resistance "
+                     "spread recomputed)")
     check_seconds = time.perf_counter() - start
     if not report.solvable:
         print(dumps(report_to_dict(report, net, args.network)) if args.json
@@ -145,6 +166,11 @@ def run(args) -> int:
         return EXIT_FAILED
 
     checkpoint("solve")
+    # The input's SHA-256 (provenance) in another thread while the solver runs on this one:
+    # hashlib releases the interpreter lock and the file is still in the page cache.
+    hashing = ThreadPoolExecutor(1)
+    input_sha256 = hashing.submit(file_sha256, args.network)
+    hashing.shutdown(wait=False)
     feedback.stage(f"checked in {format_seconds(check_seconds)}; assembling, choosing the solver "
                    f"({args.method}), setting it up and solving", net.n_nodes)
     try:
@@ -155,6 +181,7 @@ def run(args) -> int:
         raise SolverError(f"{args.network}: {error}") from error
     solution.timings = {"read": read_seconds, **solution.timings, "check": check_seconds}
     solution.notes += notes
+    solution.release_solver()           # nothing here solves again: free it before storing
     start = time.perf_counter()
     drop = supply_drop(net, solution.node_voltage, nominal=args.nominal,
                        thresholds=args.drop_thresholds)
@@ -164,7 +191,7 @@ def run(args) -> int:
     feedback.stage(f"solved ({solution.method}, relative residual "
                    f"{solution.relative_residual:.1e}); writing {args.output}", net.n_nodes)
     store_seconds = write_solution(args.output, solution, input_path=args.network,
-                                   force=args.force, extra=extra)
+                                   force=args.force, extra=extra, input_sha256=input_sha256)
     summary = solution_summary(solution, {"store": store_seconds}, drop)
     if args.json:
         print(dumps({"output": str(args.output), **summary}))
