@@ -6,6 +6,9 @@ size for the across-resistor estimate (default 150: median relative error about
 0.674 * sqrt(2/150) = 7.8 %), checked against exact pair solves on ``OHMGRAPH_BENCH_CHECKED``
 random resistors (default 60). The comparison with ``networkx.resistance_distance`` runs on a
 lattice of at most 40 x 40 = 1,600 nodes (3 pairs), where that dense method still runs.
+``test_pairs_from_csv_stage_by_stage`` times what ``ohmgraph resistance NET.csv --pairs PAIRS.csv
+-o OUT.csv`` does, stage by stage, on the lattice with 100 supply pads (zeroed, they ground it
+through 100 nodes) written as CSV (the whole command: ``farm-bench`` on the same files).
 
 Each benchmark prints its measured numbers; nothing here asserts a time.
 """
@@ -13,7 +16,9 @@ Each benchmark prints its measured numbers; nothing here asserts a time.
 from __future__ import annotations
 
 import os
+import resource
 import time
+from pathlib import Path
 
 import networkx as nx
 import numpy as np
@@ -23,6 +28,10 @@ from ohmgraph.datasets.generators import grid2d
 from ohmgraph.engine.network import RESISTOR
 from ohmgraph.engine.resistance import ResistanceSolver
 from ohmgraph.engine.solve import solve
+from ohmgraph.io.branch_table import write_branch_table
+from ohmgraph.io.pairs import read_pairs
+from ohmgraph.io.reader import read_network
+from ohmgraph.io.result_table import write_result_table
 
 SIZE = int(os.environ.get("OHMGRAPH_BENCH_SIZE", "1000"))
 PAIRS = int(os.environ.get("OHMGRAPH_BENCH_PAIRS", "1000"))
@@ -119,3 +128,40 @@ def test_against_networkx(benchmark):
           f"(set-up included), networkx.resistance_distance {networkx_seconds:.2f} s; "
           f"ratio {networkx_seconds / ours_seconds:.0f}x; max |difference| "
           f"{np.max(np.abs(values - reference)):.1e} ohm")
+
+
+def test_pairs_from_csv_stage_by_stage(benchmark, tmp_path: Path):
+    net_path, pairs_path = tmp_path / "net.csv", tmp_path / "pairs.csv"
+    write_branch_table(net_path, grid2d(SIZE, SIZE, 1.0, pads=100, seed=1))
+    rng = np.random.default_rng(1)
+    x = rng.integers(0, SIZE, (4, PAIRS))
+    pairs_path.write_text("a,b\n" + "".join(f"{p}_{q},{r}_{s}\n" for p, q, r, s in x.T))
+    stages = {}
+
+    def clock(name, function, *args, **kwargs):
+        start = time.perf_counter()
+        out = function(*args, **kwargs)
+        stages[name] = time.perf_counter() - start
+        return out
+
+    def query():
+        net = clock("read", read_network, net_path)
+        solver = clock("grounding and checks", ResistanceSolver, net)
+        labels_a, labels_b, a, b = clock("read pairs", read_pairs, pairs_path, net)
+        clock("factorisation", solver.prepare, a.size)
+        clock("reach check", solver.factor_pairs)
+        result = clock("pairs (delta included)", solver.pairs_by_index, a, b)
+        clock("write", write_result_table, tmp_path / "out.csv", "resistance",
+              {"a": labels_a, "b": labels_b, "ohms": result.ohms, "accuracy": result.accuracy},
+              force=True)
+        return solver, result
+
+    solver, result = benchmark.pedantic(query, rounds=1, iterations=1)
+    benchmark.extra_info.update(stages, delta=solver.factor_delta,
+                                worst_bound=float(result.accuracy.max()))
+    peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1e6
+    print(f"\n{PAIRS} pairs on the {SIZE} x {SIZE} lattice from CSV, by stage (load "
+          f"{os.getloadavg()[0]:.1f}): " + ", ".join(f"{k} {v:.2f} s" for k, v in stages.items())
+          + f"; total {sum(stages.values()):.1f} s, peak {peak:.2f} GB (this process); "
+          f"{result.method}, delta {solver.factor_delta:.2g}, worst bound "
+          f"{result.accuracy.max():.2g}")

@@ -89,6 +89,24 @@ def test_pairs_to_csv_and_hdf5(small, tmp_path, capsys):
         assert group.attrs["pairs"] == 4
 
 
+def test_many_pairs_state_bounds_rounded_up_to_two_digits(lattice, tmp_path, capsys):
+    rng = np.random.default_rng(5)
+    x = rng.integers(0, SIDE, (4, 60))
+    pairs = tmp_path / "pairs.csv"
+    pairs.write_text("a,b\n" + "".join(f"{p}_{q},{r}_{s}\n" for p, q, r, s in x.T))
+    out = tmp_path / "out.csv"
+    code, printed, err = run(capsys, "resistance", lattice, "--pairs", pairs, "-o", out, "--json",
+                             "--method", "direct")
+    assert code == 0, err
+    summary = json.loads(printed)
+    assert summary["method"] == "factor reach" and 0 < summary["factor_delta"] < 1e-8
+    text = pd.read_csv(out, dtype=str)["accuracy"]
+    # two significant digits, each at least the engine's bound (rounded up, never down)
+    assert all(len(t.split("e")[0].replace(".", "").lstrip("0")) <= 2 for t in text)
+    stated = text.astype(float).to_numpy()
+    assert np.all(stated >= summary["factor_delta"]) and stated.max() < 1e-8
+
+
 def test_to_reference_and_across_resistors(small, capsys):
     code, out, _ = run(capsys, "resistance", small, "--to-reference", "a", "b", "--json")
     rows = json.loads(out)["rows"]

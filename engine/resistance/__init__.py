@@ -1,5 +1,6 @@
 """Effective resistance: pairs and batches (:mod:`.pairs`), their accuracy (:mod:`.accuracy`),
-progress reports (:mod:`.progress`), sparse forward solves from the factor (:mod:`.reach`), every
+progress reports (:mod:`.progress`), sparse forward solves from the factor (:mod:`.reach`) and
+their bound (:mod:`.factor_bound`), every
 resistor and the Kirchhoff index (:mod:`.sketch`), and Kron reduction onto terminals
 (:mod:`.kron`)."""
 

@@ -41,8 +41,10 @@ conductances and of the value. With a factorisation it is typically 1e-11 to 1e-
 nodes; with an iterative solve it follows ``rtol``.
 
 *Factor reach* values (:meth:`ResistanceSolver.factor_pairs`) have no residual of their own:
-their accuracy is the first-order bound with the residual of a full solve of a check pair
-standing in, an estimate rather than a bound.
+their bound combines the factor's backward error in the energy norm, bounded once per
+factorisation (``δ``, one solve), with each forward solve's own rounding
+(:mod:`ohmgraph.engine.resistance.factor_bound`); about 2e-9 on a 10^6-node lattice grounded
+through 100 pads.
 """
 
 from __future__ import annotations
@@ -61,6 +63,7 @@ from ..network import RESISTOR, Network
 from ..session import SolveSession
 from ..solvers import DEFAULT_RTOL
 from .accuracy import ASSEMBLY, MARGIN, UNIT_ROUNDOFF, ResidualMeter
+from .factor_bound import assembly_rho, factor_rho, loewner_delta, pair_bounds
 from .kron import kron_reduction
 from .progress import Tracker, first_then_blocks
 from .reach import FactorPairs
@@ -123,6 +126,12 @@ class ResistanceSolver:
         Relative residual every solve must reach.
     memory_budget : float, optional
         Bytes the solver's set-up may use (None: the default, :mod:`ohmgraph.engine.memory`).
+    ground_at : {"reference", "strongest"}
+        Which supernode of each island is grounded (no resistance depends on it):
+        ``"reference"``, the reference's in its island and the first elsewhere; ``"strongest"``,
+        the one with the largest total conductance in each island (on a supply mesh, the pads
+        merged by their zeroed sources), which keeps the factor-reach bound small
+        (:mod:`ohmgraph.engine.resistance.factor_bound`: it grows with the distance to ground).
 
     Raises
     ------
@@ -131,7 +140,7 @@ class ResistanceSolver:
     """
 
     def __init__(self, net: Network, method: str = "auto", rtol: float = DEFAULT_RTOL, *,
-                 memory_budget: float | None = None):
+                 memory_budget: float | None = None, ground_at: str = "reference"):
         start = time.perf_counter()
         passive = net.passive()
         resistors = passive.kind == RESISTOR
@@ -152,7 +161,10 @@ class ResistanceSolver:
                                     shape=(n_super, n_super))
         conductance = (conductance + conductance.T).tocsr()   # parallel conductances add up
         self.n_islands, self.island = connected_components(conductance, directed=False)
-        self.ground = self._grounds(net.reference)
+        if ground_at not in ("reference", "strongest"):
+            raise ValueError(f"ground_at must be 'reference' or 'strongest', not {ground_at!r}")
+        self.ground = self._grounds(net.reference, conductance if ground_at == "strongest"
+                                    else None)
         unknown_of = np.full(n_super, -1, np.int64)
         grounded = np.zeros(n_super, bool)
         grounded[self.ground] = True
@@ -170,14 +182,22 @@ class ResistanceSolver:
         self.preparation_seconds = time.perf_counter() - start
         self._factor_pairs = None          # built on first use (see factor_pairs)
         self._factor_checked = False
-        self._factor_residual = 0.0
+        # δ of the factor (engine/resistance/factor_bound.py), set by the first factor-reach query
+        self.factor_delta = float("nan")
 
     # ------------------------------------------------------------------ set-up helpers
-    def _grounds(self, reference: int) -> np.ndarray:
-        """One grounded supernode per island: the reference's in its island, else the first."""
+    def _grounds(self, reference: int, conductance=None) -> np.ndarray:
+        """One grounded supernode per island: the reference's in its island, else the first;
+        with ``conductance`` (the supernode conductance matrix), the one with the largest total
+        conductance in each island."""
         n_super = self.graph.n_supernodes
         first = np.full(self.n_islands, n_super, np.int64)
         np.minimum.at(first, self.island, np.arange(n_super))
+        if conductance is not None:
+            total = np.asarray(conductance.sum(axis=1)).ravel()
+            order = np.lexsort((np.arange(n_super), -total, self.island))   # strongest first
+            starts = np.searchsorted(self.island[order], np.arange(self.n_islands))
+            return order[starts]
         ref = self.supernode[reference]
         first[self.island[ref]] = ref
         return first
@@ -424,8 +444,9 @@ class ResistanceSolver:
         """The sparse-forward-solve shortcut (:class:`~ohmgraph.engine.resistance.reach.FactorPairs`), or None.
 
         Available when the shared solver is a direct factorisation in LDLᵀ form. On first use it
-        is checked against a full solve of one pair, and the factorisation's relative residual on
-        that solve (``||r||_1 / ||d||_1``) is kept to estimate the accuracy of its values.
+        is checked against a full solve of one pair; the first query it serves bounds the
+        factor's backward error in the energy norm (:attr:`factor_delta`, one more solve;
+        :mod:`ohmgraph.engine.resistance.factor_bound`).
         """
         if self.session.factors is None or self.free.size < 2:
             return None
@@ -442,32 +463,43 @@ class ResistanceSolver:
         rhs[into, 0], rhs[out, 0] = 1.0, -1.0
         x = self.solve_block(rhs)
         full = float(self.meter.energy_estimates(rhs, x)[0][0])
-        shortcut = float(reach.energies(into, out)[0])
+        shortcut = float(reach.forward(into, out, dense=False)[0][0])
         if abs(shortcut - full) > REACH_CHECK_LIMIT * abs(full):
             self.stats.notes.append(f"factor reach disagreed with a full solve ({shortcut!r} vs "
                                     f"{full!r}); pair values by full solves")
             return None
-        self._factor_residual = float(self.meter.residual_l1(rhs, x)[0] / 2.0)
         self._factor_pairs = reach
         return reach
 
-    def _pairs_by_reach(self, reach, keys, tracker: Tracker):
-        """Each distinct pair by one sparse forward solve from the factor (engine/resistance/reach.py).
+    def _loewner_delta(self, reach) -> float:
+        """``δ`` with ``(1-δ) A ⪯ L D Lᵀ ⪯ (1+δ) A`` for the factors in use
+        (:mod:`ohmgraph.engine.resistance.factor_bound`): ``ρ`` from the factors and the
+        assembly, one solve of ``A x = ρ`` and its residual."""
+        rho = factor_rho(reach.lower, self.session.factors.U.tocsc(),
+                         reach.pivot)[reach.position]
+        rho += assembly_rho(self.matrix, self.meter.rounding)
+        rhs = rho[:, None]
+        x = self.solve_block(rhs)
+        return loewner_delta(float(x.max()), float(self.meter.residual_l1(rhs, x)[0]),
+                             float(self.ground_distance.max()))
 
-        Accuracy is estimated, not bounded: the first-order bound ``||r||_1 sqrt(D / R)`` with the
-        factorisation's relative residual measured on the check pair standing in for ``||r||_1``.
-        """
+    def _pairs_by_reach(self, reach, keys, tracker: Tracker):
+        """Each distinct pair by one sparse forward solve from the factor
+        (engine/resistance/reach.py), with the rigorous bound of
+        :func:`~ohmgraph.engine.resistance.factor_bound.pair_bounds`."""
+        if not self.factor_delta >= 0.0:                   # once per factorisation
+            self.factor_delta = self._loewner_delta(reach)
         count = keys.shape[1]
-        values = np.empty(count)
+        values, rounding = np.empty(count), np.empty(count)
+        visited = np.empty(count, np.int64)
         into, out = self.unknown_of[keys[0]], self.unknown_of[keys[1]]
         for part in first_then_blocks(count, REACH_BATCH):
             tracker.block()
-            values[part] = reach.energies(into[part], out[part])
+            values[part], rounding[part], visited[part] = reach.forward(into[part], out[part])
             self.stats.solves += part.stop - part.start
             tracker.done(part.stop - part.start)
-        worst = self.ground_distance[self.island[keys[0]]]
-        bounds = 2.0 * self._factor_residual * np.sqrt(worst / values)
-        return values, bounds + ASSEMBLY + UNIT_ROUNDOFF
+        distance = self.ground_distance[self.island[keys[0]]]
+        return values, pair_bounds(values, rounding, visited, self.factor_delta, distance)
 
     def _terminal_green(self, terminals: np.ndarray, tracker: Tracker | None = None):
         """The grounded Green's function among ``terminals`` (supernode indices).

@@ -44,7 +44,9 @@ PAIR_ACCURACY = {
     "pair solves": "relative error bound; covers the rounding of the conductances, the solve, "
                    "the residuals and the value",
     "terminal reduction": EXACT_ACCURACY,
-    "factor reach": "relative error estimate (first order, from one check solve's residual)",
+    "factor reach": "relative error bound; covers the rounding of the conductances, the "
+                    "factorisation (its backward error in the energy norm), the forward solve "
+                    "and the value",
     "trivial": "exact",
 }
 
@@ -140,8 +142,12 @@ def run(args) -> int:
         _nodes(args, net, args.between[0], "--between")     # an unknown label: InputError
         net = net.with_reference(args.between[0])
     try:
+        # --pairs grounds the strongest node of each island (a tighter factor-reach bound)
+        # unless --ground names one; the other queries ground the reference (or --between's A).
+        strongest = bool(args.pairs) and args.ground is None
         solver = ResistanceSolver(net, method=args.method, rtol=args.rtol,
-                                  memory_budget=args.memory_budget)
+                                  memory_budget=args.memory_budget,
+                                  ground_at="strongest" if strongest else "reference")
     except ValueError as error:
         raise NotWellPosed(f"{args.network}: not well-posed: {error}") from None
     feedback = Feedback("ohmgraph resistance", args.quiet)
@@ -213,13 +219,27 @@ def _between(args, net, solver) -> int:
 def _pairs(args, solver, a_labels, b_labels, a_idx, b_idx, feedback) -> int:
     result = solver.pairs_by_index(a_idx, b_idx, progress=feedback.progress,
                                    announce=feedback.announce)
-    columns = {"a": a_labels, "b": b_labels, "ohms": result.ohms, "accuracy": result.accuracy}
+    accuracy = _bound_up(result.accuracy)
+    columns = {"a": a_labels, "b": b_labels, "ohms": result.ohms, "accuracy": accuracy}
     summary = {"pairs": int(a_idx.size), "method": result.method, "solves": result.solves,
                "seconds": result.seconds, "infinite": int(np.isinf(result.ohms).sum()),
-               "max_accuracy": float(result.accuracy.max(initial=0.0)),
+               "max_accuracy": float(accuracy.max(initial=0.0)),
                "accuracy_meaning": PAIR_ACCURACY[result.method],
+               **({"factor_delta": solver.factor_delta} if result.method == "factor reach"
+                  else {}),
                "solver": _solver_summary(solver)}
     return _emit_table(args, columns, summary)
+
+
+def _bound_up(values: np.ndarray) -> np.ndarray:
+    """Error bounds rounded UP to :data:`UNCERTAINTY_DIGITS` significant digits: still bounds,
+    without the noise digits (0 and inf kept)."""
+    out = np.array(values, dtype=np.float64)
+    live = np.isfinite(out) & (out > 0)
+    scale = 10.0 ** (np.floor(np.log10(out[live])) - (UNCERTAINTY_DIGITS - 1))
+    rounded = np.ceil(out[live] / scale * (1.0 - 1e-12)) * scale
+    out[live] = np.where(rounded >= out[live], rounded, np.nextafter(rounded, np.inf))
+    return out
 
 
 def _across(args, net, solver, feedback) -> int:
