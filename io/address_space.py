@@ -73,7 +73,29 @@ def prepare() -> str | None:
     if ceiling < MIN_ADDRESS_SPACE:
         return (f"the address-space limit (ulimit -v) of {ceiling / 2**20:.0f} MB is below the "
                 f"{MIN_ADDRESS_SPACE / 2**20:.0f} MB ohmgraph's libraries need to load; raise it")
+    try:
+        reserve_blas_buffers()
+    except (ImportError, OSError, MemoryError):
+        return (f"the address-space limit (ulimit -v) of {ceiling / 2**20:.0f} MB leaves no room "
+                "for the numerical libraries' work buffers; raise it")
     return None
+
+
+def reserve_blas_buffers() -> None:
+    """Have NumPy's and SciPy's OpenBLAS take their work buffer now, while there is room.
+
+    OpenBLAS allocates a buffer on a thread's first BLAS call that needs one, retries a failed
+    allocation for ever (``blas_memory_alloc``: a run under a 1 GiB limit spun in SuperLU's
+    ``dtrsv`` for ten minutes, 2026-12-03), and keeps the buffer in its pool for every later
+    call. One call of each library before the input is read leaves a later shortfall to
+    allocations that fail cleanly (``MemoryError``, the out-of-memory exit).
+    """
+    import numpy as np
+    from scipy.linalg import blas
+
+    square = np.eye(256)                    # large enough to pass OpenBLAS's small-matrix path
+    square @ square                         # NumPy's OpenBLAS (dgemm)
+    blas.dtrsv(square, np.ones(256))        # SciPy's OpenBLAS (dtrsv, as SuperLU calls it)
 
 
 def refuse_to_read(path, size: int, gzipped: bool) -> None:

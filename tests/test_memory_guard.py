@@ -206,3 +206,23 @@ def test_a_table_too_big_to_read_under_the_limit_is_refused(tmp_path, capsys, mo
         f"ohmgraph solve: error: {net}: reading it needs about 6 MB of address space, and the "
         "limit (ulimit -v) leaves 4 MB; raise the limit or use a machine with more memory\n")
     assert sorted(p.name for p in tmp_path.iterdir()) == ["net.csv"]
+
+
+def test_a_factorisation_short_of_room_under_the_limit_does_not_hang(tmp_path):
+    """Under 1 GiB of address space SuperLU's first BLAS call found no room for OpenBLAS's work
+    buffer and OpenBLAS retried for ever (measured: 10 minutes at full CPU on this 300 x 300
+    lattice); with the buffers taken at start-up (io/address_space.py) the run ends, solved or
+    refused with the out-of-memory exit."""
+    import resource
+
+    write_branch_table(tmp_path / "net.csv", grid2d(300, 300, 1.0, pads=9, loads=9000))
+
+    def gibibyte():
+        resource.setrlimit(resource.RLIMIT_AS, (1 << 30, 1 << 30))
+
+    process = subprocess.run([sys.executable, "-m", "ohmgraph.io.cli", "solve", "net.csv", "-o",
+                              "out.h5", "-q", "--method", "direct"], cwd=tmp_path,
+                             capture_output=True, text=True, timeout=60, preexec_fn=gibibyte)
+    assert process.returncode in (EXIT_OK, EXIT_NO_MEMORY), process.stderr
+    solved = process.returncode == EXIT_OK
+    assert (tmp_path / "out.h5").exists() == solved
