@@ -155,10 +155,14 @@ def _max():
 
 
 def _create(group, name: str, shape: int, dtype, source: h5py.Dataset | None = None):
-    """An empty dataset of the solution layout (chunked, checksummed and compressed like the
-    store's, :func:`ohmgraph.io.hdf5_integrity.dataset_options`)."""
+    """An empty dataset of the solution layout (chunked and checksummed like the store's,
+    :func:`ohmgraph.io.hdf5_integrity.dataset_options`; compressed unless it holds solved
+    float64 values, which the single-process store also leaves uncompressed)."""
     options = dataset_options(np.empty(shape, dtype=dtype), probe=False)
     options.pop("maxshape", None)
+    if np.dtype(dtype) == np.float64:   # solved values: gzip does not pay (hdf5_integrity notes)
+        for key in ("compression", "compression_opts", "shuffle"):
+            options.pop(key, None)
     dataset = group.create_dataset(name, shape=(shape,), dtype=dtype, **options)
     key = f"{group.name.strip('/')}/{name}"
     if key in UNITS:
