@@ -130,10 +130,12 @@ def end_without_shutdown(code: int) -> None:
     from ohmgraph.engine.solvers.base import workers_unfinished
 
     if workers_unfinished():
-        atexit.register(_exit_now, code)
+        atexit.register(exit_now, code)
 
 
-def _exit_now(code: int) -> None:
+def exit_now(code: int) -> None:
+    """End the process with ``code`` at once, standard output and error flushed first, without
+    the interpreter's shutdown."""
     for stream in (sys.stdout, sys.stderr):
         with contextlib.suppress(Exception):
             stream.flush()

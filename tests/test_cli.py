@@ -82,3 +82,21 @@ def test_single_process_start_up_does_not_load_the_mpi_stack(tmp_path):
                           timeout=120)
     assert done.returncode == 0, done.stderr
     assert done.stdout.strip().splitlines()[-1] == "[]"
+
+
+def test_the_executable_ends_with_the_code_and_every_line_written(tmp_path):
+    """``entry`` ends the process at once (no interpreter shutdown): what the command printed
+    to a pipe is flushed first, and its exit code is the process's."""
+    net = tmp_path / "net.csv"
+    net.write_text("name,kind,from,to,value\nV1,V,a,0,5\nR1,R,a,b,10\nR2,R,b,0,20\n")
+    run = [sys.executable, "-c", "import sys; from ohmgraph.io.cli import entry; "
+           "sys.argv[0] = 'ohmgraph'; entry()"]
+    solved = subprocess.run([*run, "solve", str(net), "-o", str(tmp_path / "out.h5")],
+                            capture_output=True, text=True, timeout=120)
+    assert solved.returncode == 0, solved.stderr
+    assert f"{net} -> {tmp_path / 'out.h5'}" in solved.stdout
+    assert "time (s)" in solved.stdout.splitlines()[-1]        # the summary's last line
+    refused = subprocess.run([*run, "solve", str(net), "-o", str(tmp_path / "out.h5")],
+                             capture_output=True, text=True, timeout=120)
+    assert refused.returncode == 3
+    assert "already exists" in refused.stderr
