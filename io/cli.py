@@ -161,8 +161,13 @@ def entry() -> None:
     once (standard streams flushed), without the interpreter's shutdown. Every output file is
     closed and published before :func:`main` returns, and the shutdown's freeing of a large
     run's objects one by one took 0.15-0.37 s after a 1000 x 1000 grid's solve (benchmarks/
-    README.md). :func:`main` itself returns its code, for callers in Python."""
-    interrupts.exit_now(main())
+    README.md). Under MPI (mpi4py or petsc4py loaded) the shutdown stays: it finalises MPI and
+    PETSc, without which ``mpiexec`` reports the rank as ended improperly. :func:`main` itself
+    returns its code, for callers in Python."""
+    code = main()
+    if {"mpi4py", "petsc4py"} & set(sys.modules):
+        sys.exit(code)
+    interrupts.exit_now(code)
 
 
 if __name__ == "__main__":
