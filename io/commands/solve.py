@@ -11,6 +11,7 @@ from ohmgraph.engine.solve import solve
 from ohmgraph.engine.solvers import DEFAULT_RTOL, SOLVERS, SolverFailed
 from ohmgraph.io.commands.argtypes import add_memory_budget, finite_float, positive_float
 from ohmgraph.io.drop_view import drop_datasets, thresholds_type
+from ohmgraph.io.ahead import loading_ahead
 from ohmgraph.io.atomic import refuse_existing, refuse_input
 from ohmgraph.io.check_view import format_report, report_to_dict
 from ohmgraph.io.errors import EXIT_FAILED, EXIT_OK, SolverError, UserError
@@ -134,6 +135,12 @@ def run(args) -> int:
     refuse_input(args.output, [args.network, args.nodes, args.changes, args.start_from])
     refuse_existing(args.output, args.force)
     require_format(args.output, (HDF5,), role="-o")
+    with loading_ahead(args.network):
+        return _solve_here(args)
+
+
+def _solve_here(args) -> int:
+    """``solve`` on this one process."""
     checkpoint("read")
     start = time.perf_counter()
     base = None
