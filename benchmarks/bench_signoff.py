@@ -9,7 +9,9 @@
 
   - CLI: ``ohmgraph solve NET --changes C.csv --start-from BASE.h5 -o NEW.h5`` against a fresh
     ``ohmgraph solve CHANGED -o FRESH.h5`` of the changed network (target: 2x faster), with NET
-    and CHANGED in the same format: both CSV, or both HDF5 network files from ``convert``;
+    and CHANGED in the same format: both CSV, or both HDF5 network files from ``convert``; from
+    a BASE.h5 solved without and with ``--keep-setup`` (whose extra time and file size are
+    printed too);
   - Python session: :func:`ohmgraph.engine.variant.resolve` from the base solution against
     :func:`ohmgraph.engine.solve` of the changed network in the same process (target: 10x
     faster);
@@ -111,45 +113,61 @@ def timed_cli(*argv) -> tuple[float, float, dict]:
 
 @pytest.mark.parametrize("suffix", ["csv", "h5"], ids=["csv", "hdf5-network-file"])
 def test_variant_cli(variant_case, suffix, benchmark):
-    """Fresh ``solve`` of the changed network and the variant run alternate (A B A B ...), both
+    """Fresh ``solve`` of the changed network, the variant from a base solved without and with
+    ``--keep-setup``, and the two base solves alternate (A B C D E A B C D E ...), every run
     reading NET in the same format: the CSV files, or the HDF5 network files of ``convert``."""
     folder, net, changes = variant_case
     base_net = folder / ("base.csv" if suffix == "csv" else "base_net.h5")
     changed_net = folder / ("changed.csv" if suffix == "csv" else "changed_net.h5")
-    base = folder / f"base_{suffix}.h5"
-    cli("solve", base_net, "-o", base, "--rtol", RTOL, "--force")
-    runs = {"fresh": [], "variant": []}
+    bases = {"variant": folder / f"base_{suffix}.h5", "kept": folder / f"base_kept_{suffix}.h5"}
+    commands = {
+        "fresh": ("solve", changed_net, "-o", folder / "fresh.h5"),
+        **{name: ("solve", base_net, "--changes", folder / "changes.csv", "--start-from", base,
+                  "-o", folder / f"{name}.h5") for name, base in bases.items()},
+        "base": ("solve", base_net, "-o", bases["variant"]),
+        "base_kept": ("solve", base_net, "-o", bases["kept"], "--keep-setup"),
+    }
+    for name in ("base", "base_kept"):
+        cli(*commands[name], "--rtol", RTOL, "--force")
+    runs = {name: [] for name in commands}
     loads = [load()]
     for _ in range(ROUNDS):
-        runs["fresh"].append(timed_cli("solve", changed_net, "-o", folder / "fresh.h5",
-                                       "--rtol", RTOL, "--force"))
-        runs["variant"].append(timed_cli("solve", base_net, "--changes", folder / "changes.csv",
-                                         "--start-from", base, "-o", folder / "variant.h5",
-                                         "--rtol", RTOL, "--force"))
+        for name, argv in commands.items():
+            runs[name].append(timed_cli(*argv, "--rtol", RTOL, "--force"))
     loads.append(load())
-    with h5py.File(folder / "fresh.h5") as a, h5py.File(folder / "variant.h5") as b:
-        difference = float(np.max(np.abs(a["nodes/voltage"][...] - b["nodes/voltage"][...])))
+    with (h5py.File(folder / "fresh.h5") as a, h5py.File(folder / "variant.h5") as b,
+          h5py.File(folder / "kept.h5") as c):
+        difference = {name: float(np.max(np.abs(a["nodes/voltage"][...]
+                                                - h5["nodes/voltage"][...])))
+                      for name, h5 in (("variant", b), ("kept", c))}
+        kept_reason = c.attrs["method_reason"]
+    sizes = {name: os.path.getsize(path) for name, path in bases.items()}
     wall = {k: float(np.median([r[0] for r in v])) for k, v in runs.items()}
     cpu = {k: float(np.median([r[1] for r in v])) for k, v in runs.items()}
-    stages = {k: {stage: float(np.median([r[2][stage] for r in v])) for stage in v[0][2]}
+    stages = {k: {stage: float(np.median([r[2].get(stage, 0.0) for r in v]))
+                  for stage in dict.fromkeys(st for r in v for st in r[2])}
               for k, v in runs.items()}
-    pairs = [f[0] / v[0] for f, v in zip(runs["fresh"], runs["variant"])]
+    pairs = {name: [f[0] / v[0] for f, v in zip(runs["fresh"], runs[name])]
+             for name in ("variant", "kept")}
     benchmark.extra_info.update(
         format=suffix, branches=net.n_branches, changed=changes.index.size, rounds=ROUNDS,
-        load_average=loads, fresh_wall_median=wall["fresh"], variant_wall_median=wall["variant"],
-        fresh_cpu_median=cpu["fresh"], variant_cpu_median=cpu["variant"],
-        speedup_pairs=pairs, fresh_stages=stages["fresh"], variant_stages=stages["variant"],
-        max_voltage_difference=difference)
+        load_average=loads, wall_median=wall, cpu_median=cpu, stages=stages,
+        speedup_pairs=pairs, max_voltage_difference=difference, base_file_bytes=sizes,
+        kept_reason=kept_reason)
     print(f"\nCLI, NET as {suffix}, {net.n_branches:,} branches, {changes.index.size:,} "
-          f"changed, medians of {ROUNDS} interleaved rounds, load {loads[0]} -> {loads[1]}:\n"
-          f"  fresh   wall {wall['fresh']:.2f} s, cpu {cpu['fresh']:.2f} s\n"
-          f"  variant wall {wall['variant']:.2f} s, cpu {cpu['variant']:.2f} s\n"
-          f"  fresh/variant: wall {wall['fresh'] / wall['variant']:.2f}x (pairs "
-          f"{', '.join(f'{p:.2f}' for p in pairs)}), cpu {cpu['fresh'] / cpu['variant']:.2f}x; "
-          f"max |dV| {difference:.1e} V")
-    for stage in stages["fresh"]:
-        print(f"  {stage:>9}: fresh {stages['fresh'][stage]:.3f} s, variant "
-              f"{stages['variant'].get(stage, 0.0):.3f} s")
+          f"changed, medians of {ROUNDS} interleaved rounds, load {loads[0]} -> {loads[1]}:")
+    for name in commands:
+        print(f"  {name:>9} wall {wall[name]:.2f} s, cpu {cpu[name]:.2f} s")
+    for name in ("variant", "kept"):
+        print(f"  fresh/{name}: wall {wall['fresh'] / wall[name]:.2f}x (pairs "
+              f"{', '.join(f'{p:.2f}' for p in pairs[name])}), cpu "
+              f"{cpu['fresh'] / cpu[name]:.2f}x; max |dV| {difference[name]:.1e} V")
+    print(f"  base file {sizes['variant'] / 1e6:.1f} MB, with the kept set-up "
+          f"{sizes['kept'] / 1e6:.1f} MB; base run {wall['base']:.2f} s, with --keep-setup "
+          f"{wall['base_kept']:.2f} s; the kept variant's set-up: {kept_reason}")
+    for stage in dict.fromkeys(st for name in commands for st in stages[name]):
+        print(f"  {stage:>10}: " + ", ".join(f"{name} {stages[name].get(stage, 0.0):.3f}"
+                                             for name in commands))
     benchmark.pedantic(lambda: None, rounds=1)
 
 

@@ -15,6 +15,14 @@ owns, for one symmetric positive-definite matrix:
   :class:`~ohmgraph.engine.solvers.SolverFailed` is raised with the shortfall;
 * the statistics (:class:`SessionStats`), returned to the caller and stored with results.
 
+A session may be given a set-up kept from an earlier run (``kept=``, a
+:class:`~ohmgraph.engine.solvers.kept.KeptSetup`, for example read back from a solution
+file): it is used for the first set-up when its fingerprint fits the matrix (same unknowns,
+free nodes and sparsity pattern; values may differ) and the method asked for allows it, and
+otherwise ignored with a note. Its solves are proven like any other; one that misses ``rtol``
+sets up afresh (then the usual fallback applies). :meth:`SolveSession.kept_setup` exports the
+set-up in use for keeping.
+
 Nothing downstream of a session ever sees an unproven vector.
 """
 
@@ -29,6 +37,7 @@ import scipy.sparse as sp
 from .memory import default_memory_budget
 from .solvers import DEFAULT_RTOL, SOLVERS, SolveInfo, SolverFailed, SPDSolver, shortfall
 from .solvers.choice import choose, direct_fallback_allowed
+from .solvers.kept import KeptSetup, fingerprint, mismatch
 
 
 @dataclass
@@ -86,6 +95,12 @@ class SolveSession:
     memory_budget : float, optional
         Bytes a set-up may use (``auto`` and the direct fallback keep within it); None for the
         default, half the available memory (:func:`ohmgraph.engine.memory.default_memory_budget`).
+    kept : KeptSetup, optional
+        A set-up kept from an earlier run, used for the first set-up when it fits (module
+        notes); whether it was used, and why not, is in ``stats.notes``.
+    placement : tuple of int arrays
+        What the unknowns stand for (for a network: free supernodes and the node-to-supernode
+        map), part of the fingerprint a kept set-up is matched by and exported with.
 
     Raises
     ------
@@ -94,7 +109,8 @@ class SolveSession:
     """
 
     def __init__(self, matrix, method: str = "auto", rtol: float = DEFAULT_RTOL, *,
-                 memory_budget: float | None = None):
+                 memory_budget: float | None = None, kept: KeptSetup | None = None,
+                 placement: tuple = ()):
         if method != "auto" and method not in SOLVERS:
             raise ValueError(f"unknown method {method!r} (expected auto, {', '.join(SOLVERS)})")
         self.matrix = sp.csr_matrix(matrix)
@@ -110,6 +126,29 @@ class SolveSession:
         self.on_solved = None
         self._solver: SPDSolver | None = None
         self._analysis = None     # the symbolic analysis of the factor, once made
+        self.placement = placement
+        self._kept = None         # the kept set-up, while it fits and has not failed
+        self._adopted: KeptSetup | None = None      # the kept set-up the back end was built from
+        if kept is not None:
+            self._consider(kept)
+
+    def _consider(self, kept: KeptSetup) -> None:
+        """Keep ``kept`` for the first set-up if it fits this matrix and method; else a note."""
+        back_end = SOLVERS.get(kept.method)
+        here = fingerprint(self.matrix, self.placement)
+        if back_end is None or not back_end.keeps_setup:
+            why = f"the {kept.method} back end cannot use a kept set-up here"
+        elif self.requested not in ("auto", kept.method):
+            why = f"{self.requested} was asked for"
+        else:
+            why = mismatch(kept.fingerprint, here)
+        if why is None and kept.settings != back_end.settings:
+            why = "it was made with other settings"
+        if why is not None:
+            self.stats.notes.append(f"kept {kept.method} set-up not used: {why}")
+            return
+        self._kept = kept
+        self._kept_same_values = kept.fingerprint.get("values_sha256") == here["values_sha256"]
 
     @property
     def method(self) -> str:
@@ -133,6 +172,9 @@ class SolveSession:
         With ``auto`` the choice may switch an iterative set-up to a factorisation for a larger
         query (never back: a factorisation serves every later query).
         """
+        if self._solver is None and self._kept is not None:
+            self._set_up_kept(solves)
+            return
         if self.requested != "auto":
             if self._solver is None:
                 self._set_up(self.requested, "asked for")
@@ -151,6 +193,7 @@ class SolveSession:
             self.stats.predicted = dict(choice.predicted)
 
     def _set_up(self, method: str, reason: str) -> None:
+        self._adopted = None
         start = time.perf_counter()
         if method == "direct" and self._analysis is not None:
             self._solver = SOLVERS[method](self.matrix, self.rtol, order=self._analysis.order)
@@ -161,6 +204,37 @@ class SolveSession:
         if self.stats.seed is not None:          # stored with the reason, so a run can repeat
             reason = f"{reason}; seed {self.stats.seed}"
         self.stats.method, self.stats.reason = method, reason
+
+    def _set_up_kept(self, solves: int) -> None:
+        kept, self._kept = self._kept, None
+        start = time.perf_counter()
+        try:
+            self._solver = SOLVERS[kept.method](self.matrix, self.rtol, kept=kept)
+        except (ValueError, KeyError, IndexError) as error:
+            self.stats.setup_seconds += time.perf_counter() - start
+            self.stats.notes.append(f"kept {kept.method} set-up not used: it cannot be rebuilt "
+                                    f"({error})")
+            self.expect(solves)
+            return
+        self.stats.setup_seconds += time.perf_counter() - start
+        self._adopted = kept
+        which = ("built for this very matrix" if self._kept_same_values else
+                 "built for a matrix of the same unknowns and pattern, other values; this "
+                 "matrix on its finest level")
+        self.stats.method = kept.method
+        self.stats.reason = f"kept set-up rebuilt ({which})"
+
+    def kept_setup(self) -> KeptSetup | None:
+        """The set-up in use as plain arrays with the fingerprint of this matrix (or, when it
+        was itself rebuilt from a kept set-up, that one), for a later session to rebuild; None
+        when the back end cannot export its set-up (only ``amg-cg`` can) or none is made."""
+        if self._adopted is not None:
+            return self._adopted
+        if self._solver is None or not self._solver.keeps_setup:
+            return None
+        exported = self._solver.export_setup()
+        return KeptSetup(exported.method, exported.settings, exported.arrays,
+                         fingerprint(self.matrix, self.placement))
 
     def solve(self, b: np.ndarray, x0: np.ndarray | None = None) -> np.ndarray:
         """Solve ``A x = b`` for one column (shape ``(n,)``) or a block (shape ``(n, r)``).
@@ -181,6 +255,14 @@ class SolveSession:
         if self._solver is None:
             self.expect(1 if b.ndim == 1 else b.shape[1])
         x, info = self._solver.solve(b, x0)
+        if not info.converged and self._adopted is not None:
+            self.stats.notes.append(
+                f"the kept set-up reached relative residual {info.relative_residual:.3g} after "
+                f"{info.iterations} iterations (rtol {self.rtol:g}); set up afresh")
+            self.stats.solve_seconds += info.solve_seconds
+            self._solver = self._adopted = None
+            self.expect(1 if b.ndim == 1 else b.shape[1])
+            x, info = self._solver.solve(b, x0)
         if not info.converged and self._solver.method != "direct":
             allowed, why, self._analysis = direct_fallback_allowed(
                 self.matrix, self.memory_budget, self._analysis)

@@ -103,6 +103,13 @@ class Solution:
         come."""
         self.system = self.session = None
 
+    def kept_setup(self):
+        """The solver set-up as plain arrays with the fingerprint of the reduced matrix
+        (:meth:`SolveSession.kept_setup <ohmgraph.engine.session.SolveSession.kept_setup>`),
+        to be stored with the solution and rebuilt by a later :func:`solve` (``kept_setup=``);
+        None when the back end cannot export its set-up or the solver was released."""
+        return None if self.session is None else self.session.kept_setup()
+
     @property
     def power_delivered(self) -> float:
         """Power delivered by the sources that supply power (W, the sum of ``-p`` over sources
@@ -181,7 +188,7 @@ def largest_first(magnitude: np.ndarray, top: int) -> np.ndarray:
 def solve(net: Network, *, method: str = "auto", rtol: float = DEFAULT_RTOL,
           allow_floating: bool = False, report: CheckReport | None = None,
           memory_budget: float | None = None,
-          start_voltage: np.ndarray | None = None) -> Solution:
+          start_voltage: np.ndarray | None = None, kept_setup=None) -> Solution:
     """Solve a network: every node voltage and every branch current, voltage and power.
 
     Parameters
@@ -202,6 +209,11 @@ def solve(net: Network, *, method: str = "auto", rtol: float = DEFAULT_RTOL,
         Node voltages to start an iterative solver from (a warm start, for example a stored
         solution of a nearby network; NaN where unknown). The result is held to ``rtol`` all
         the same.
+    kept_setup : KeptSetup, optional
+        A solver set-up kept with an earlier solution (:meth:`Solution.kept_setup`), used
+        instead of a new set-up when it was made for a reduced system of the same unknowns
+        (free supernodes, node-to-supernode map) and sparsity pattern — the same network or one
+        with some resistor or source values changed — and otherwise ignored with a note.
 
     Raises
     ------
@@ -223,7 +235,9 @@ def solve(net: Network, *, method: str = "auto", rtol: float = DEFAULT_RTOL,
     system = assemble(net, report.contraction, report.pinned_nodes)
     timings["assemble"] = time.perf_counter() - start
 
-    session = SolveSession(system.matrix, method, rtol, memory_budget=memory_budget)
+    session = SolveSession(system.matrix, method, rtol, memory_budget=memory_budget,
+                           kept=kept_setup,
+                           placement=(system.free, system.contraction.supernode))
     x0 = None if start_voltage is None else system.unknowns_from_voltages(start_voltage)
     x = session.solve(system.rhs, x0)
     return finish(net, report, system, session, x, rtol, timings)

@@ -15,6 +15,8 @@ reads the file):
   and branch indices involved, concatenated with ``*_offsets`` to split them), with the check
   summary as attributes;
 * ``/timings``: seconds per stage as attributes;
+* optional, with ``--keep-setup``: ``/setup``, the solver's set-up (multigrid levels) with the
+  fingerprint of the reduced matrix it was built for (:mod:`ohmgraph.io.setup_store`);
 * root attributes: provenance (tool version, input file name and SHA-256, creation time) and
   the evidence of the solve (method, tolerance, iterations, residuals, power balance).
 
@@ -51,6 +53,7 @@ from ohmgraph.io.hdf5_integrity import (FILE_OPTIONS, check_attributes, dataset_
 from ohmgraph.io.hdf5_output import create_hdf5
 from ohmgraph.io.interrupts import checkpoint
 from ohmgraph.io.layout import LAYOUT_VERSION, check_layout_version
+from ohmgraph.io.setup_store import write_setup
 
 REQUIRED_DATASETS = (
     "nodes/label", "nodes/voltage",
@@ -317,7 +320,7 @@ def _root_attrs(solution: Solution, input_path, input_sha256=None) -> dict:
 
 
 def write_solution(path, solution: Solution, *, input_path=None, force: bool = False,
-                   extra: dict | None = None, input_sha256=None) -> float:
+                   extra: dict | None = None, input_sha256=None, setup=None) -> float:
     """Store a solution in a new HDF5 file, atomically.
 
     Parameters
@@ -335,6 +338,9 @@ def write_solution(path, solution: Solution, *, input_path=None, force: bool = F
         Replace an existing file.
     extra : dict, optional
         Optional datasets by name (keys of :data:`OPTIONAL_DATASETS`).
+    setup : KeptSetup, optional
+        The solver set-up to keep (:meth:`Solution.kept_setup
+        <ohmgraph.engine.solve.Solution.kept_setup>`), written as ``/setup``.
 
     Returns
     -------
@@ -374,6 +380,8 @@ def write_solution(path, solution: Solution, *, input_path=None, force: bool = F
             report = solution.report
             _write_findings(h5.create_group("checks"), report.findings if report else [],
                             report.summary if report else {})
+            if setup is not None:
+                write_setup(h5, setup)
             timings = h5.create_group("timings", track_order=True)
             timings.attrs["units"] = "s"
             for stage, seconds in solution.timings.items():

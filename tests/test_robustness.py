@@ -374,6 +374,8 @@ REFUSED = [
      "not an ohmgraph solution file"),
     ("solve net.csv -o sol.h5 --start-from sol.h5 --force", EXIT_BAD_INPUT,
      "is also the input file"),
+    ("solve net.csv -o out.h5 --keep-setup --changes chg_missing.csv --start-from sol.h5",
+     EXIT_BAD_INPUT, "nowhere"),
     ("diff sol.h5 foreign.h5", EXIT_BAD_INPUT, "not an ohmgraph solution file"),
     ("diff sol.h5 sol.h5 --map out.png", EXIT_BAD_INPUT, "no node coordinates"),
     ("diff sol.h5 sol.h5 --map out.gif", EXIT_BAD_INPUT, "unknown picture type"),

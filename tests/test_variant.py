@@ -287,3 +287,15 @@ def test_warm_start_read_matches_the_whole_read_and_refuses_other_files(tmp_path
                      "-o", tmp_path / "b.h5")
     assert code == 2 and "missing dataset /nodes/voltage" in text
     assert not (tmp_path / "b.h5").exists()
+
+
+def test_change_file_finds_branches_by_name_in_any_script(tmp_path):
+    """Names are matched as UTF-8 bytes: non-ASCII names and names that share a prefix."""
+    from ohmgraph.io.changes import read_changes
+
+    net = Network.from_arrays(["a", "a", "b", "a"], ["0", "b", "0", "0"], [1.0, 2.0, 3.0, 1.0],
+                              kinds=["R", "R", "R", "V"], names=["Rø1", "R1", "R10", "V1"])
+    (tmp_path / "c.csv").write_text("name,value\nR10,4\nRø1,5\n", encoding="utf-8")
+    changes = read_changes(tmp_path / "c.csv", net).changes
+    assert dict(zip(net.branch_names[changes.index].tolist(), changes.value.tolist())) == {
+        "R10": 4.0, "Rø1": 5.0}

@@ -3,6 +3,13 @@
 Conjugate gradient (Hestenes & Stiefel, 1952) preconditioned by one V-cycle of classical
 (Ruge–Stüben) algebraic multigrid (J. W. Ruge & K. Stüben, "Algebraic multigrid", in *Multigrid
 Methods*, SIAM Frontiers in Applied Mathematics 3, 1987) from pyamg.
+
+The hierarchy can be kept (:meth:`AmgCgSolver.export_setup`: every level's interpolation
+``P_k`` and coarse operator ``A_k``, ``k >= 1``, as CSR arrays; ``R_k = P_k^T``) and rebuilt
+in another process (``AmgCgSolver(matrix, rtol, kept=...)``) as a pyamg ``MultilevelSolver``
+assembled from its levels, the coarsest refactorised; the finest level is the matrix given,
+so a nearby matrix (the same network with some resistor values changed) gets the cycle of
+:meth:`AmgCgSolver.preconditioner` with that matrix.
 """
 
 from __future__ import annotations
@@ -13,7 +20,15 @@ import numpy as np
 import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 
-from .base import SPDSolver, column_by_column
+from .base import DEFAULT_RTOL, SPDSolver, column_by_column
+from .kept import KeptSetup
+
+# The settings a kept hierarchy must have been built with (they decide its levels and how
+# the cycle uses them); stored with it.
+SETTINGS = {"coarsening": "Ruge-Stueben, second pass", "strength": "classical",
+            "theta": 0.25, "interpolation": "direct", "presmoother": "gauss_seidel forward",
+            "postsmoother": "gauss_seidel backward", "coarse_solver": "splu", "max_coarse": 500,
+            "cycle": "V"}
 
 
 class AmgCgSolver(SPDSolver):
@@ -30,24 +45,68 @@ class AmgCgSolver(SPDSolver):
     * one forward Gauss–Seidel sweep before and one backward sweep after each coarse correction,
       which makes the V-cycle a symmetric positive-definite preconditioner as CG needs;
     * sparse LU on the coarsest level (at most ``max_coarse`` unknowns).
+
+    Parameters
+    ----------
+    matrix : sparse matrix
+    rtol : float
+    kept : KeptSetup, optional
+        A hierarchy from :meth:`export_setup` to rebuild instead of setting up (its finest
+        level becomes ``matrix``); the caller has checked that it fits ``matrix``
+        (:func:`~ohmgraph.engine.solvers.kept.mismatch`).
     """
 
     method = "amg-cg"
+    keeps_setup = True
+    settings = SETTINGS
     max_iterations = 500
-    max_coarse = 500
+    # A rebuilt hierarchy that needs more iterations than this serves worse than a new set-up
+    # (a fresh one needs 10 to 20 at rtol 1e-10 to 1e-12 on the benchmark lattices).
+    kept_max_iterations = 100
+    max_coarse = SETTINGS["max_coarse"]
+
+    def __init__(self, matrix, rtol: float = DEFAULT_RTOL, *, kept: KeptSetup | None = None):
+        if kept is not None and (kept.method != self.method or kept.settings != SETTINGS):
+            raise ValueError(f"a kept {kept.method} set-up with settings {kept.settings} cannot "
+                             f"serve {self.method} with {SETTINGS}")
+        self._kept = kept
+        if kept is not None:
+            self.max_iterations = self.kept_max_iterations
+        super().__init__(matrix, rtol)
 
     def _setup(self) -> None:
         import pyamg
 
         if self.matrix.shape[0] == 0:
             return
-        self._hierarchy = pyamg.ruge_stuben_solver(
-            self.matrix, strength=("classical", {"theta": 0.25}),
-            CF=("RS", {"second_pass": True}), interpolation="direct",
-            presmoother=("gauss_seidel", {"sweep": "forward"}),
-            postsmoother=("gauss_seidel", {"sweep": "backward"}),
-            max_coarse=self.max_coarse, coarse_solver="splu")
+        if self._kept is not None:
+            self._hierarchy = _rebuilt(self.matrix, self._kept.arrays)
+            self._kept = None          # its arrays now belong to the hierarchy
+        else:
+            self._hierarchy = pyamg.ruge_stuben_solver(
+                self.matrix, strength=("classical", {"theta": SETTINGS["theta"]}),
+                CF=("RS", {"second_pass": True}), interpolation="direct",
+                presmoother=("gauss_seidel", {"sweep": "forward"}),
+                postsmoother=("gauss_seidel", {"sweep": "backward"}),
+                max_coarse=self.max_coarse, coarse_solver="splu")
         self._preconditioner = self._hierarchy.aspreconditioner(cycle="V")
+
+    def export_setup(self) -> KeptSetup:
+        """The hierarchy as plain arrays (without a fingerprint: the session adds it):
+        ``sizes`` (unknowns per level), and for every level ``k`` but the finest
+        ``A{k}/data``, ``A{k}/indices``, ``A{k}/indptr`` and for every level but the coarsest
+        ``P{k}/...`` (CSR, ``P_k`` of shape ``sizes[k] x sizes[k+1]``)."""
+        levels = self._hierarchy.levels if self.matrix.shape[0] else []
+        arrays = {"sizes": np.array([level.A.shape[0] for level in levels], np.int64)}
+        for k, level in enumerate(levels):
+            for name, operator in (("A", level.A if k else None),
+                                   ("P", getattr(level, "P", None) if k < len(levels) - 1
+                                    else None)):
+                if operator is not None:
+                    operator = sp.csr_matrix(operator)
+                    for part in ("data", "indices", "indptr"):
+                        arrays[f"{name}{k}/{part}"] = getattr(operator, part)
+        return KeptSetup(self.method, dict(SETTINGS), arrays)
 
     def preconditioner(self, matrix=None):
         """One V-cycle of the hierarchy; for a nearby ``matrix``, the same cycle with the
@@ -79,3 +138,40 @@ class AmgCgSolver(SPDSolver):
 
     def _solve(self, b, x0=None):
         return column_by_column(self._solve_column, b, x0)
+
+
+def _rebuilt(matrix, arrays: dict):
+    """A pyamg ``MultilevelSolver`` from :meth:`AmgCgSolver.export_setup`'s arrays, with
+    ``matrix`` on the finest level, the same smoothers and an LU of the coarsest level.
+
+    Raises
+    ------
+    ValueError
+        When the arrays do not make a hierarchy for ``matrix`` (sizes that do not chain).
+    """
+    import pyamg
+    from pyamg.relaxation.smoothing import change_smoothers
+
+    sizes = [int(n) for n in arrays["sizes"]]
+    if not sizes or sizes[0] != matrix.shape[0]:
+        raise ValueError(f"the kept hierarchy starts at {sizes[:1]} unknowns, the matrix has "
+                         f"{matrix.shape[0]}")
+
+    def csr(name, shape):
+        operator = sp.csr_matrix((arrays[f"{name}/data"], arrays[f"{name}/indices"],
+                                  arrays[f"{name}/indptr"]), shape=shape)
+        operator.check_format(full_check=True)      # indices in range: pyamg's kernels trust them
+        return operator
+
+    levels = []
+    for k, n in enumerate(sizes):
+        level = pyamg.MultilevelSolver.Level()
+        level.A = sp.csr_matrix(matrix) if k == 0 else csr(f"A{k}", (n, n))
+        if k < len(sizes) - 1:
+            level.P = csr(f"P{k}", (n, sizes[k + 1]))
+            level.R = level.P.T.tocsr()
+        levels.append(level)
+    hierarchy = pyamg.MultilevelSolver(levels, coarse_solver=SETTINGS["coarse_solver"])
+    change_smoothers(hierarchy, ("gauss_seidel", {"sweep": "forward"}),
+                     ("gauss_seidel", {"sweep": "backward"}))
+    return hierarchy

@@ -170,6 +170,10 @@ class SPDSolver(ABC):
 
     method: str = ""
     worker_thread: bool = True      # set up and solve in a worker thread (module notes)
+    # Whether the back end can export its set-up as plain arrays (``export_setup()``) and be
+    # rebuilt from them (``kept=``), :mod:`.kept`.
+    keeps_setup: bool = False
+    settings: dict = {}             # what a kept set-up must have been made with
 
     def __init__(self, matrix, rtol: float = DEFAULT_RTOL):
         self.matrix = sp.csr_matrix(matrix)

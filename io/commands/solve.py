@@ -26,6 +26,7 @@ from ohmgraph.io.changes import CHANGES_NOTE, change_note, check_from_base, read
 from ohmgraph.io.node_table import node_table_by_label, read_node_table
 from ohmgraph.io.progress import Feedback, format_seconds
 from ohmgraph.io.reader import RATING_COLUMNS, NetworkFile, read_network_file
+from ohmgraph.io.setup_store import read_setup
 from ohmgraph.io.solution_view import format_solution, solution_summary
 from ohmgraph.io.store import (file_sha256, read_solution, read_warm_start, voltages_by_label,
                                write_solution)
@@ -72,6 +73,10 @@ def register(subparsers) -> None:
                         help="stored solution of a nearby network to start the solver from "
                              "(matched by node label; its node table is kept when --nodes is "
                              "not given)")
+    parser.add_argument("--keep-setup", action="store_true",
+                        help="store the solver's set-up (amg-cg: the multigrid levels) in OUT.h5, "
+                             "so that a later --start-from OUT.h5 of the same network, or of "
+                             "one with only values changed, skips setting it up again")
     parser.add_argument("--force", action="store_true", help="overwrite OUT.h5 if it exists")
     parser.add_argument("--json", action="store_true", help="print the summary as JSON")
     parser.add_argument("-q", "--quiet", action="store_true",
@@ -96,6 +101,18 @@ def read_inputs(args, base) -> tuple[NetworkFile, list, bool]:
                 [f"network taken from {args.start_from}: {args.network} is unchanged since "
                  "(same SHA-256)"], True)
     return read_network_file(args.network, ground=args.ground), [], same
+
+
+def read_kept_setup(start_from, notes: list):
+    """The solver set-up kept in ``BASE.h5`` (None, with a note, when it holds none or it
+    cannot be read) and the seconds its reading took (None without ``--start-from``)."""
+    if not start_from:
+        return None, None
+    start = time.perf_counter()
+    kept, note = read_setup(start_from)
+    if note is not None:
+        notes.append(note)
+    return kept, time.perf_counter() - start
 
 
 def run(args) -> int:
@@ -150,6 +167,7 @@ def _solve_here(args) -> int:
         if nodes is None:
             nodes = node_table_by_label(base, net)
     read_seconds = time.perf_counter() - start
+    kept, kept_seconds = read_kept_setup(args.start_from, notes)
     refuse_if_too_big(net, args.method, args.network)
     feedback = Feedback("ohmgraph solve", args.quiet)
     feedback.stage(f"read {net.n_branches:,} branches in {format_seconds(read_seconds)}; "
@@ -183,10 +201,17 @@ def _solve_here(args) -> int:
     try:
         solution = solve(net, method=args.method, rtol=args.rtol,
                          allow_floating=args.allow_floating, report=report,
-                         start_voltage=start_voltage, memory_budget=args.memory_budget)
+                         start_voltage=start_voltage, memory_budget=args.memory_budget,
+                         kept_setup=kept)
     except SolverFailed as error:
         raise SolverError(f"{args.network}: {error}") from error
     solution.timings = {"read": read_seconds, **solution.timings, "check": check_seconds}
+    if kept_seconds is not None:
+        solution.timings["read_setup"] = kept_seconds
+    setup = solution.kept_setup() if args.keep_setup else None
+    if args.keep_setup and setup is None:
+        notes.append(f"--keep-setup: the {solution.method} set-up cannot be kept (only "
+                     "amg-cg's can)")
     solution.notes += notes
     solution.release_solver()           # nothing here solves again: free it before storing
     start = time.perf_counter()
@@ -198,7 +223,8 @@ def _solve_here(args) -> int:
     feedback.stage(f"solved ({solution.method}, relative residual "
                    f"{solution.relative_residual:.1e}); writing {args.output}", net.n_nodes)
     store_seconds = write_solution(args.output, solution, input_path=args.network,
-                                   force=args.force, extra=extra, input_sha256=input_sha256)
+                                   force=args.force, extra=extra, input_sha256=input_sha256,
+                                   setup=setup)
     summary = solution_summary(solution, {"store": store_seconds}, drop)
     if args.json:
         print(dumps({"output": str(args.output), **summary}))
