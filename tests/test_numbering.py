@@ -69,6 +69,16 @@ def test_labels_whose_hashes_agree_in_the_stored_bits_are_told_apart():
         assert labels == [first, second, "x"]
 
 
+def test_guesses_counted():
+    # from: a, b, c, d all new (hashed); to: b hashed, c is the label after b (guess), c again
+    # (the previous entry's label), then a hashed
+    from_labels, to_labels = pa.array(["a", "b", "c", "d"]), pa.array(["b", "c", "c", "a"])
+    numbered = number_labels(*reader._string_buffers(from_labels),
+                             *reader._string_buffers(to_labels))
+    assert numbered.guessed == 2
+    assert numbered.to_index.tolist() == [1, 2, 2, 0]
+
+
 def test_empty_table_and_one_row():
     assert _agree([], []) == []
     assert _agree(["a"], ["a"]) == ["a"]
