@@ -4,8 +4,8 @@ Arrow's ``dictionary_encode`` of the two columns end to end (``_encode_endpoints
 both from the same Arrow string columns to the labels and two int64 index arrays.
 
 The grids of ``grid_table.py`` (``OHMGRAPH_VS_SIDES``, default ``1000,2000``; the CSV files are
-kept in ``OHMGRAPH_VS_DATA`` as by ``bench_vs_script.py``) and the open pg1 network when it is
-present. The two run in turn, reference then kernel, ``OHMGRAPH_NUMBERING_ROUNDS`` times
+kept in ``OHMGRAPH_VS_DATA`` as by ``bench_vs_script.py``), in the file's row order and with
+the rows shuffled (seeded; no locality left), and the open pg1 network when it is present. The two run in turn, reference then kernel, ``OHMGRAPH_NUMBERING_ROUNDS`` times
 (default 7); the table gives median wall seconds and median CPU seconds of the calling thread
 (``time.thread_time``: less disturbed by other work on a shared machine) and the median
 per-round ratio. Nothing here asserts a time.
@@ -20,6 +20,7 @@ import os
 import statistics
 import time
 
+import numpy as np
 import pyarrow as pa
 import pyarrow.csv as pa_csv
 import pytest
@@ -29,6 +30,7 @@ from conftest import PG1
 from ohmgraph.io import reader
 
 ROUNDS = int(os.environ.get("OHMGRAPH_NUMBERING_ROUNDS", "7"))
+SHUFFLE_SEED = 1
 
 
 def endpoint_columns(path) -> tuple[pa.Array, pa.Array]:
@@ -69,9 +71,14 @@ def compare(benchmark, name, from_labels, to_labels) -> None:
     benchmark.pedantic(reader._encode_endpoints, (from_labels, to_labels), rounds=1)
 
 
+@pytest.mark.parametrize("order", ["file", "shuffled"])
 @pytest.mark.parametrize("side", SIDES)
-def test_grid(benchmark, data_folder, side):  # noqa: F811 -- the imported fixture
-    compare(benchmark, f"grid {side}", *endpoint_columns(grid_csv(data_folder, side)))
+def test_grid(benchmark, data_folder, side, order):  # noqa: F811 -- the imported fixture
+    from_labels, to_labels = endpoint_columns(grid_csv(data_folder, side))
+    if order == "shuffled":              # no locality left: the kernel's worst case
+        rows = pa.array(np.random.default_rng(SHUFFLE_SEED).permutation(len(from_labels)))
+        from_labels, to_labels = from_labels.take(rows), to_labels.take(rows)
+    compare(benchmark, f"grid {side}, rows in {order} order", from_labels, to_labels)
 
 
 @pytest.mark.skipif(not PG1.exists(), reason=f"{PG1} not present")

@@ -23,7 +23,8 @@ Surrounding spaces are trimmed from every field. Node labels are arbitrary text.
 
 Reading takes a fast path: multi-threaded ``pyarrow.csv``, vectorised ``pyarrow.compute``
 conversions, and node numbering in order of first appearance (``from`` column, then ``to``) by
-``pyarrow.compute.dictionary_encode``. When the fast path rejects anything, an exact pass over the
+a compiled kernel on Arrow's buffers (:mod:`ohmgraph.engine.numbering`; reference:
+``pyarrow.compute.dictionary_encode``). When the fast path rejects anything, an exact pass over the
 physical lines finds every problem and reports it as ``FILE:LINE: column 'value': 'abc' is not a
 number``; if the exact pass finds none, the network is built from its results instead.
 """
