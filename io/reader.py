@@ -23,7 +23,8 @@ Surrounding spaces are trimmed from every field. Node labels are arbitrary text.
 
 Reading takes a fast path: multi-threaded ``pyarrow.csv``, vectorised ``pyarrow.compute``
 conversions, and node numbering in order of first appearance (``from`` column, then ``to``) by
-``pyarrow.compute.dictionary_encode``. When the fast path rejects anything, an exact pass over the
+a compiled kernel on Arrow's buffers (:mod:`ohmgraph.engine.numbering`; reference:
+``pyarrow.compute.dictionary_encode``). When the fast path rejects anything, an exact pass over the
 physical lines finds every problem and reports it as ``FILE:LINE: column 'value': 'abc' is not a
 number``; if the exact pass finds none, the network is built from its results instead.
 """
@@ -44,6 +45,7 @@ import pyarrow.parquet as pq
 
 from ohmgraph.engine.checks import INFO, CheckReport, Finding, check
 from ohmgraph.engine.network import KIND_CODE, RESISTOR, Network
+from ohmgraph.engine.numbering import number_labels
 from ohmgraph.io.address_space import refuse_to_read
 from ohmgraph.io.errors import InputError, ProblemList
 from ohmgraph.io.formats import EDGE_LIST, PARQUET, network_format
@@ -390,25 +392,67 @@ def _number_nodes(from_labels: pa.Array, to_labels: pa.Array) -> tuple:
     the ``from`` and ``to`` node of every branch; raises :class:`_Rejected` for an empty label
     or one holding a NUL character.
 
-    The endpoints are dictionary-encoded as they stand and only the dictionary is trimmed; two
-    spellings that trim to one label are then merged (the merged label keeps the earlier first
-    appearance, so the numbering is the one trimming every field first would give).
+    The endpoints are numbered as they stand (:func:`_encode_endpoints`) and only the distinct
+    labels are trimmed; two spellings that trim to one label are then merged (the merged label
+    keeps the earlier first appearance, so the numbering is the one trimming every field first
+    would give).
     """
-    endpoints = pa.concat_arrays([from_labels.cast(pa.string()), to_labels.cast(pa.string())])
-    encoded = pc.dictionary_encode(endpoints)
-    del endpoints
-    index = encoded.indices.to_numpy()
-    labels = pc.utf8_trim_whitespace(encoded.dictionary)
-    if not pc.all(pc.equal(labels, encoded.dictionary)).as_py():
+    dictionary, from_node, to_node = _encode_endpoints(from_labels.cast(pa.string()),
+                                                       to_labels.cast(pa.string()))
+    labels = pc.utf8_trim_whitespace(dictionary)
+    if not pc.all(pc.equal(labels, dictionary)).as_py():
         merged = pc.dictionary_encode(labels)
-        index = merged.indices.to_numpy()[index]
+        renumber = merged.indices.to_numpy().astype(np.int64)
+        from_node, to_node = renumber[from_node], renumber[to_node]
         labels = merged.dictionary
     text = _text_bytes(labels)
     if (pc.any(pc.equal(pc.binary_length(labels), 0)).as_py()
             or (text.size and text.min() == 0)):
         raise _Rejected
+    return labels, from_node, to_node
+
+
+def _encode_endpoints(from_labels: pa.Array, to_labels: pa.Array) -> tuple:
+    """The distinct endpoint texts in order of first appearance (``from``, then ``to``) and the
+    ``from`` and ``to`` number (int64) of every branch: the compiled numbering of
+    :func:`ohmgraph.engine.numbering.number_labels` on the columns' own offsets and bytes (no
+    concatenation, no Python strings), or :func:`_encode_endpoints_reference` for columns it
+    does not take (null entries, more than 2 GiB of text together)."""
+    if (from_labels.null_count or to_labels.null_count
+            or _text_span(from_labels) + _text_span(to_labels) >= 2**31):
+        return _encode_endpoints_reference(from_labels, to_labels)
+    numbered = number_labels(*_string_buffers(from_labels), *_string_buffers(to_labels))
+    dictionary = pa.StringArray.from_buffers(len(numbered.offsets) - 1,
+                                             pa.py_buffer(numbered.offsets),
+                                             pa.py_buffer(numbered.text))
+    return dictionary, numbered.from_index, numbered.to_index
+
+
+def _encode_endpoints_reference(from_labels: pa.Array, to_labels: pa.Array) -> tuple:
+    """:func:`_encode_endpoints` by ``pyarrow.compute.dictionary_encode`` of the two columns
+    end to end."""
+    endpoints = pa.concat_arrays([from_labels, to_labels])
+    encoded = pc.dictionary_encode(endpoints)
+    del endpoints
+    index = encoded.indices.to_numpy()
     m = len(from_labels)
-    return labels, index[:m].astype(np.int64), index[m:].astype(np.int64)
+    return encoded.dictionary, index[:m].astype(np.int64), index[m:].astype(np.int64)
+
+
+def _string_buffers(array: pa.Array) -> tuple:
+    """The int32 offsets (``len(array) + 1``, a view) and the whole byte buffer of a string
+    array (entry ``k`` is ``data[offsets[k]:offsets[k + 1]]``)."""
+    if len(array) == 0:
+        return np.zeros(1, np.int32), np.empty(0, np.uint8)
+    _, offsets, data = array.buffers()
+    return (np.frombuffer(offsets, np.int32, len(array) + 1, array.offset * 4),
+            np.frombuffer(data, np.uint8) if data is not None else np.empty(0, np.uint8))
+
+
+def _text_span(array: pa.Array) -> int:
+    """Bytes of text the entries of a string array span."""
+    offsets, _ = _string_buffers(array)
+    return int(offsets[-1]) - int(offsets[0])
 
 
 def _build_network(path: Path, columns: _Columns, ground: str | None) -> Network:
@@ -443,10 +487,9 @@ def _may_need_trimming(array: pa.Array) -> bool:
     """False when no entry starts or ends with a byte that can be part of whitespace (ASCII
     controls and space, 0-32, or any byte of a multi-byte character, 128-255), so that
     :func:`pyarrow.compute.utf8_trim_whitespace` would return the array unchanged."""
-    if len(array) == 0 or array.buffers()[2] is None:
+    offsets, data = _string_buffers(array)
+    if data.size == 0:
         return False
-    offsets = np.frombuffer(array.buffers()[1], np.int32, len(array) + 1, array.offset * 4)
-    data = np.frombuffer(array.buffers()[2], np.uint8)
     filled = offsets[1:] > offsets[:-1]
     edges = np.concatenate([data[offsets[:-1][filled]], data[offsets[1:][filled] - 1]])
     return bool(np.any((edges <= 32) | (edges >= 128)))
@@ -454,13 +497,8 @@ def _may_need_trimming(array: pa.Array) -> bool:
 
 def _text_bytes(array: pa.Array) -> np.ndarray:
     """The UTF-8 bytes of a string array's entries, end to end (a view, no copy)."""
-    if len(array) == 0:
-        return np.empty(0, np.uint8)
-    offsets = np.frombuffer(array.buffers()[1], np.int32, len(array) + 1, array.offset * 4)
-    data = array.buffers()[2]
-    if data is None:
-        return np.empty(0, np.uint8)
-    return np.frombuffer(data, np.uint8)[offsets[0]:offsets[-1]]
+    offsets, data = _string_buffers(array)
+    return data[offsets[0]:offsets[-1]]
 
 
 def _to_numpy_text(array: pa.Array) -> np.ndarray:
