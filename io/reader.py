@@ -42,6 +42,7 @@ import pyarrow as pa
 import pyarrow.compute as pc
 import pyarrow.csv as pa_csv
 import pyarrow.parquet as pq
+from numba.core.errors import NumbaError
 
 from ohmgraph.engine.checks import INFO, CheckReport, Finding, check
 from ohmgraph.engine.network import KIND_CODE, RESISTOR, Network
@@ -417,11 +418,15 @@ def _encode_endpoints(from_labels: pa.Array, to_labels: pa.Array) -> tuple:
     ``from`` and ``to`` number (int64) of every branch: the compiled numbering of
     :func:`ohmgraph.engine.numbering.number_labels` on the columns' own offsets and bytes (no
     concatenation, no Python strings), or :func:`_encode_endpoints_reference` for columns it
-    does not take (null entries, more than 2 GiB of text together)."""
+    does not take (null entries, more than 2 GiB of text together) or when the installed numba
+    cannot compile it (its prefetch is built on numba's extension API)."""
     if (from_labels.null_count or to_labels.null_count
             or _text_span(from_labels) + _text_span(to_labels) >= 2**31):
         return _encode_endpoints_reference(from_labels, to_labels)
-    numbered = number_labels(*_string_buffers(from_labels), *_string_buffers(to_labels))
+    try:
+        numbered = number_labels(*_string_buffers(from_labels), *_string_buffers(to_labels))
+    except NumbaError:          # a numba that cannot build the kernel's prefetch intrinsic
+        return _encode_endpoints_reference(from_labels, to_labels)
     dictionary = pa.StringArray.from_buffers(len(numbered.offsets) - 1,
                                              pa.py_buffer(numbered.offsets),
                                              pa.py_buffer(numbered.text))

@@ -124,3 +124,17 @@ def test_columns_with_null_entries_take_the_reference():
         reader._encode_endpoints_reference(from_labels, to_labels)
     with pytest.raises(pa.ArrowInvalid):
         reader._encode_endpoints(from_labels, to_labels)
+
+
+def test_a_numba_that_cannot_build_the_kernel_falls_back_to_arrow(monkeypatch):
+    from numba.core.errors import NumbaError
+
+    def unbuildable(*_):
+        raise NumbaError("no llvm.prefetch here")
+
+    monkeypatch.setattr(reader, "number_labels", unbuildable)
+    from_labels = pa.array(["a", "b", "c"], pa.string())
+    to_labels = pa.array(["b", "0", "a"], pa.string())
+    labels, from_node, to_node = reader._encode_endpoints(from_labels, to_labels)
+    assert labels.to_pylist() == ["a", "b", "c", "0"]
+    assert from_node.tolist() == [0, 1, 2] and to_node.tolist() == [1, 3, 0]
