@@ -173,3 +173,25 @@ def test_solver_failed_when_no_fallback_applies(make_network, monkeypatch):
     with pytest.raises(SolverFailed, match="over the memory budget of 1e-06 GB"):
         solve(make_network(3, n_nodes=1000, extra_resistors=1000), method="amg-cg",
               memory_budget=1000)
+
+
+@pytest.mark.parametrize("side, max_coarse", [(40, 50), (40, 500), (6, 500)],
+                         ids=["four levels", "two levels", "one level"])
+def test_amg_v_cycle_is_pyamgs_own_to_the_last_bit(side, max_coarse):
+    # Reference: pyamg's MultilevelSolver.aspreconditioner(cycle="V") on the same hierarchy.
+    import pyamg
+    import scipy.sparse as sp
+
+    from ohmgraph.engine.solvers.amg_cg import v_cycle_operator
+
+    matrix = (pyamg.gallery.poisson((side, side), format="csr")
+              + sp.diags(np.r_[1.0, np.zeros(side * side - 1)])).tocsr()
+    hierarchy = pyamg.ruge_stuben_solver(
+        matrix, CF=("RS", {"second_pass": True}), interpolation="direct",
+        presmoother=("gauss_seidel", {"sweep": "forward"}),
+        postsmoother=("gauss_seidel", {"sweep": "backward"}), max_coarse=max_coarse,
+        coarse_solver="splu")
+    b = np.random.default_rng(side).standard_normal(matrix.shape[0])
+    expected = hierarchy.aspreconditioner(cycle="V") @ b
+    np.testing.assert_array_equal(v_cycle_operator(hierarchy) @ b, expected)
+    assert np.abs(expected).max() > 0
