@@ -6,8 +6,9 @@ will need and to load numba's compiled-code machinery in a background thread, so
 reading, checking and set-up stages do not wait for them. It is only an optimisation: whatever
 fails here is done again, and reported, where it is first needed.
 
-The default modules: pandas, which pyarrow imports on its first conversion of Python objects
-or arrays (0.1 s), and pyamg (the multigrid set-up).
+numba's machinery is loaded first, as the reader's node numbering is the first kernel to run;
+then the default modules: pandas, which pyarrow imports on its first conversion of Python
+objects or arrays (0.1 s), and pyamg (the multigrid set-up).
 """
 
 from __future__ import annotations
@@ -47,10 +48,10 @@ def loading_ahead(path, modules=("pandas", "pyamg")):
 
 def _load(modules) -> None:
     try:
-        for module in modules:
-            importlib.import_module(module)
         from ohmgraph.engine.kernel_loading import load_kernel_machinery
 
-        load_kernel_machinery()
+        load_kernel_machinery()         # first: the reader's numbering kernel needs it soonest
+        for module in modules:
+            importlib.import_module(module)
     except Exception:          # noqa: BLE001 -- redone, and reported, where it is needed
         pass
