@@ -45,6 +45,7 @@ from numba.core import cgutils, types
 from numba.extending import intrinsic
 
 from .checks import FNV_OFFSET, FNV_PRIME
+from .growth import with_room
 
 # 2**64 / golden ratio, odd (Knuth's multiplicative hashing).
 GOLDEN = np.uint64(0x9E3779B97F4A7C15)
@@ -165,16 +166,6 @@ def _doubled_table(table, bits):
 
 
 @numba.njit(cache=True, nogil=True)
-def _room(array, needed):
-    """``array`` itself, or a copy at least twice as long, when it holds fewer than ``needed``."""
-    if needed <= array.size:
-        return array
-    larger = np.empty(max(needed, 2 * array.size), array.dtype)
-    larger[:array.size] = array
-    return larger
-
-
-@numba.njit(cache=True, nogil=True)
 def _number_labels(from_offsets, from_text, to_offsets, to_text, table_bits):
     m = from_offsets.size - 1
     from_index = np.empty(m, np.int64)
@@ -246,10 +237,10 @@ def _number_labels(from_offsets, from_text, to_offsets, to_text, table_bits):
                 found = n
                 n += 1
                 if n + 1 > label_offsets.size:
-                    label_offsets = _room(label_offsets, n + 1)
+                    label_offsets = with_room(label_offsets, n + 1)
                 at = label_offsets[found]
                 if at + end - start > labels.size:
-                    labels = _room(labels, at + end - start)
+                    labels = with_room(labels, at + end - start)
                 for k in range(end - start):
                     labels[at + k] = text[start + k]
                 label_offsets[n] = at + end - start

@@ -34,6 +34,8 @@ import numba
 import numpy as np
 import scipy.sparse as sp
 
+from ..growth import with_room
+
 _MASK = (1 << 64) - 1
 _MULTIPLIER = 2685821657736338717
 _GOLDEN = 0x9E3779B97F4A7C15
@@ -151,15 +153,6 @@ def _next_uniform(state):
     x ^= x >> np.uint64(27)
     state[0] = x
     return np.float64((x * np.uint64(_MULTIPLIER)) >> np.uint64(11)) * _UNIT
-
-
-@numba.njit(cache=True, nogil=True)
-def _grow(array, needed):
-    if needed <= array.size:
-        return array
-    bigger = np.empty(max(needed, 2 * array.size), array.dtype)
-    bigger[:array.size] = array
-    return bigger
 
 
 # Columns of the kernel's per-vertex record (32 bytes: within one cache line). Each vertex's
@@ -284,9 +277,9 @@ def factor_kernel(indptr, indices, weights, excess, state0, pool=_POOL):
                     times[seen - total] += 1
                 elif seen != _GONE:
                     if count == near.size:
-                        near = _grow(near, 2 * count)
-                        near_w = _grow(near_w, 2 * count)
-                        times = _grow(times, 2 * count)
+                        near = with_room(near, 2 * count)
+                        near_w = with_room(near_w, 2 * count)
+                        times = with_room(times, 2 * count)
                     node[u, _SEEN] = total + count
                     node[u, _ROUND] = rnd
                     near[count] = u
@@ -320,8 +313,8 @@ def factor_kernel(indptr, indices, weights, excess, state0, pool=_POOL):
                 big_w = 0.0
             pivots[step] = big_w
             if total + count > rows.size:
-                rows = _grow(rows, total + count)
-                values = _grow(values, total + count)
+                rows = with_room(rows, total + count)
+                values = with_room(values, total + count)
             for i in range(count):
                 u = near[i]
                 rows[total + i] = u
@@ -357,8 +350,8 @@ def factor_kernel(indptr, indices, weights, excess, state0, pool=_POOL):
                         if used + room + 1 > neighbour.size:
                             used = _compact(node, neighbour, weight, used)
                             if used + room + 1 > 0.75 * neighbour.size:
-                                neighbour = _grow(neighbour, int(pool * (used + room + 1)))
-                                weight = _grow(weight, neighbour.size)
+                                neighbour = with_room(neighbour, int(pool * (used + room + 1)))
+                                weight = with_room(weight, neighbour.size)
                         neighbour[used] = end
                         weight[used] = room
                         used += 1
