@@ -13,6 +13,7 @@ import numba
 import numpy as np
 import scipy.sparse.linalg as spla
 
+from . import ac_split
 from .ac_factor import (factor_kernel, inverse_pivots, permute_kernel, seed_state, split_kernel,
                         sweep_kernel)
 from .base import DEFAULT_RTOL, SPDSolver, column_by_column
@@ -83,10 +84,18 @@ class AcCgSolver(SPDSolver):
     seed : int
         Seed of the factor's random stream (default :data:`DEFAULT_SEED`); the session stores
         it in its statistics.
+    threads : int or None
+        2: factor a system of at least :data:`.ac_split.MIN_UNKNOWNS` unknowns in two threads
+        (:mod:`.ac_split`; another factor of the same kind, in another order) when its graph
+        splits evenly; 1: always one thread. None (default): 2 when numba may use two threads
+        (``numba.config.NUMBA_NUM_THREADS``, which the command line sets to 1 under an
+        address-space limit, where every thread reserves its stack and malloc arena).
 
     Attributes
     ----------
     seed : int
+    split : bool
+        Whether the factor was made in two threads.
     factor_nonzeros : int
         Entries of the factor's strictly lower part.
     """
@@ -94,18 +103,30 @@ class AcCgSolver(SPDSolver):
     method = "ac-cg"
     max_iterations = 1000
 
-    def __init__(self, matrix, rtol: float = DEFAULT_RTOL, seed: int = DEFAULT_SEED):
+    def __init__(self, matrix, rtol: float = DEFAULT_RTOL, seed: int = DEFAULT_SEED,
+                 threads: int | None = None):
         self.seed = int(seed)
+        self.threads = (min(2, numba.config.NUMBA_NUM_THREADS) if threads is None
+                        else int(threads))
         super().__init__(matrix, rtol)
 
     def _setup(self) -> None:
         self.factor_nonzeros = 0
+        self.split = False
         if self.matrix.shape[0] == 0:
             return
         matrix = self.matrix
         parts = split_kernel(matrix.indptr, matrix.indices, matrix.data)[:4]
-        (self._order, self._colptr, self._rows, self._values,
-         pivots) = factor_kernel(*parts, np.uint64(seed_state(self.seed)))
+        labels = None
+        if self.threads > 1 and matrix.shape[0] >= ac_split.MIN_UNKNOWNS:
+            labels = ac_split.split_labels(parts[0], parts[1])
+        if labels is not None:
+            self.split = True
+            (self._order, self._colptr, self._rows, self._values,
+             pivots) = ac_split.split_factor(*parts, labels, self.seed, self.threads)
+        else:
+            (self._order, self._colptr, self._rows, self._values,
+             pivots) = factor_kernel(*parts, np.uint64(seed_state(self.seed)))
         del parts
         self._inverse = inverse_pivots(pivots)
         self._permuted = permute_kernel(matrix.indptr, matrix.indices, matrix.data, self._order)

@@ -206,6 +206,17 @@ def _threshold(node, live, n_live, histogram):
 
 
 @numba.njit(cache=True, nogil=True)
+def diagonal_kernel(indptr, weights, excess):
+    """Each row's diagonal ``max(e_v, 0) + sum_u w_uv`` (summed in list order): the scale
+    against which a pivot counts as zero (``ZERO_PIVOT``)."""
+    diagonal = np.maximum(excess, 0.0)
+    for v in range(indptr.size - 1):
+        for e in range(indptr[v], indptr[v + 1]):
+            diagonal[v] += weights[e]
+    return diagonal
+
+
+@numba.njit(cache=True, nogil=True)
 def factor_kernel(indptr, indices, weights, excess, state0, pool=_POOL):
     """Approximate Cholesky factor (see the module docstring); ``pool``: the edge pool's size
     over the initial lists (a smaller one is compacted more often; the factor is the same).
@@ -213,6 +224,30 @@ def factor_kernel(indptr, indices, weights, excess, state0, pool=_POOL):
     Returns ``order`` (vertex eliminated at each step), ``colptr``, ``rows`` (elimination
     positions of the neighbours, int32), ``values`` (``w_u / W``, float32) and ``pivots``
     (``W`` per step).
+    """
+    n = indptr.size - 1
+    order, colptr, rows, values, pivots = eliminate_kernel(
+        indptr, indices, weights, excess, diagonal_kernel(indptr, weights, excess),
+        np.ones(n, np.bool_), state0, pool)[:5]
+    position = np.empty(n, np.int64)
+    for t in range(n):
+        position[order[t]] = t
+    for e in range(rows.size):
+        rows[e] = position[rows[e]]
+    return order, colptr, rows, values, pivots
+
+
+@numba.njit(cache=True, nogil=True)
+def eliminate_kernel(indptr, indices, weights, excess, diagonal, eliminable, state0, pool):
+    """Eliminate the vertices where ``eliminable`` is true (see the module docstring), the
+    others staying live: they are never picked but receive fill edges and excess like any
+    neighbour. ``diagonal``: the rows' diagonals (:func:`diagonal_kernel` of the whole
+    matrix), the scale of the zero-pivot test.
+
+    Returns ``order``, ``colptr``, ``rows`` (neighbours' VERTEX ids, int32), ``values``,
+    ``pivots`` of the eliminated vertices and the remaining graph among the others: every
+    vertex's ``excess`` and the CSR ``(ptr, idx, weight)`` of their live edges (multi-edges
+    kept, in list order; rows of eliminated vertices empty).
     """
     n = indptr.size - 1
     state = np.empty(1, np.uint64)
@@ -237,21 +272,16 @@ def factor_kernel(indptr, indices, weights, excess, state0, pool=_POOL):
         node[v, _SEEN] = -2
         node[v, _ROUND] = -1
     excess = np.maximum(excess, 0.0)
-    original = excess.copy()              # each row's diagonal, the scale of its pivot
-    for v in range(n):
-        for e in range(indptr[v], indptr[v + 1]):
-            original[v] += weights[e]
-    position = np.empty(n, np.int64)
-    order = np.empty(n, np.int64)
-    colptr = np.zeros(n + 1, np.int64)
+    live = np.flatnonzero(eliminable)
+    n_live = live.size
+    order = np.empty(n_live, np.int64)
+    colptr = np.zeros(n_live + 1, np.int64)
     rows = np.empty(indices.size + n, np.int32)
     values = np.empty(indices.size + n, np.float32)
-    pivots = np.empty(n, np.float64)
+    pivots = np.empty(n_live, np.float64)
     near = np.empty(16, np.int64)
     near_w = np.empty(16, np.float64)
     times = np.empty(16, np.int64)
-    live = np.arange(n)
-    n_live = n
     histogram = np.zeros(DEGREE_BINS + 1, np.int64)
     total = 0
     step = 0
@@ -264,7 +294,6 @@ def factor_kernel(indptr, indices, weights, excess, state0, pool=_POOL):
                 continue
             node[v, _SEEN] = _GONE
             order[step] = v
-            position[v] = step
             # gather the live edges, merging multi-edges (summed in list order); a neighbour
             # seen in this step has SEEN = total + its place
             count = 0
@@ -309,7 +338,7 @@ def factor_kernel(indptr, indices, weights, excess, state0, pool=_POOL):
             big_w = excess[v]
             for i in range(count):
                 big_w += near_w[i]
-            if big_w <= ZERO_PIVOT * original[v]:
+            if big_w <= ZERO_PIVOT * diagonal[v]:
                 big_w = 0.0
             pivots[step] = big_w
             if total + count > rows.size:
@@ -378,9 +407,27 @@ def factor_kernel(indptr, indices, weights, excess, state0, pool=_POOL):
                 kept += 1
         n_live = kept
         rnd += 1
-    for e in range(total):
-        rows[e] = position[rows[e]]
-    return order, colptr, rows[:total].copy(), values[:total].copy(), pivots
+    ptr = np.zeros(n + 1, np.int64)
+    for v in range(n):
+        ptr[v + 1] = ptr[v]
+        if node[v, _SEEN] != _GONE:
+            start = node[v, _START]
+            for e in range(start, start + node[v, _LENGTH]):
+                if node[neighbour[e], _SEEN] != _GONE:
+                    ptr[v + 1] += 1
+    idx = np.empty(ptr[n], np.int32)
+    rest = np.empty(ptr[n], np.float64)
+    for v in range(n):
+        k = ptr[v]
+        if node[v, _SEEN] != _GONE:
+            start = node[v, _START]
+            for e in range(start, start + node[v, _LENGTH]):
+                if node[neighbour[e], _SEEN] != _GONE:
+                    idx[k] = neighbour[e]
+                    rest[k] = weight[e]
+                    k += 1
+    return (order, colptr, rows[:total].copy(), values[:total].copy(), pivots, excess, ptr, idx,
+            rest)
 
 
 @numba.njit(cache=True, nogil=True)
@@ -442,18 +489,29 @@ def factor_reference(indptr, indices, weights, excess, seed: int) -> tuple:
     """The same factor as :func:`factor_kernel` with Python lists and dictionaries (small
     graphs; for testing)."""
     n = len(indptr) - 1
+    diagonal = [max(float(x), 0.0) for x in excess]
+    for v in range(n):
+        for e in range(indptr[v], indptr[v + 1]):
+            diagonal[v] += float(weights[e])
+    order, colptr, rows, values, pivots = eliminate_reference(
+        indptr, indices, weights, excess, diagonal, [True] * n, seed)[:5]
+    position = {v: t for t, v in enumerate(order)}
+    return order, colptr, np.array([position[u] for u in rows], np.int32), values, pivots
+
+
+def eliminate_reference(indptr, indices, weights, excess, diagonal, eliminable,
+                        seed: int) -> tuple:
+    """The same as :func:`eliminate_kernel` (with the generator started at
+    ``seed_state(seed)``) with Python lists and dictionaries (small graphs; for testing)."""
+    n = len(indptr) - 1
     state = [seed_state(seed)]
     lists = [[(int(indices[e]), float(weights[e])) for e in range(indptr[v], indptr[v + 1])]
              for v in range(n)]
     excess = [max(float(x), 0.0) for x in excess]
-    original = list(excess)
-    for v in range(n):
-        for e in range(indptr[v], indptr[v + 1]):
-            original[v] += float(weights[e])
     degree = [len(edges) for edges in lists]
     eliminated = [False] * n
     order, colptr, rows, values, pivots = [], [0], [], [], []
-    live = list(range(n))
+    live = [v for v in range(n) if eliminable[v]]
     while live:
         capped = sorted(min(degree[v], DEGREE_BINS) for v in live)
         threshold = capped[-(-len(live) * QUANTILE[0] // QUANTILE[1]) - 1]
@@ -475,7 +533,7 @@ def factor_reference(indptr, indices, weights, excess, seed: int) -> tuple:
             big_w = excess[v]
             for u in near:
                 big_w += merged[u]
-            if big_w <= ZERO_PIVOT * original[v]:
+            if big_w <= ZERO_PIVOT * diagonal[v]:
                 big_w = 0.0
             pivots.append(big_w)
             for u in near:
@@ -504,10 +562,13 @@ def factor_reference(indptr, indices, weights, excess, seed: int) -> tuple:
                 degree[a] += 1
                 degree[b] += 1
         live = [v for v in live if not eliminated[v]]
-    position = {v: t for t, v in enumerate(order)}
-    return (np.array(order, np.int64), np.array(colptr, np.int64),
-            np.array([position[u] for u in rows], np.int32), np.array(values, np.float32),
-            np.array(pivots, np.float64))
+    remaining = [[(u, w) for u, w in ([] if eliminated[v] else lists[v]) if not eliminated[u]]
+                 for v in range(n)]
+    return (np.array(order, np.int64), np.array(colptr, np.int64), np.array(rows, np.int32),
+            np.array(values, np.float32), np.array(pivots, np.float64), np.array(excess),
+            np.cumsum([0] + [len(edges) for edges in remaining]).astype(np.int64),
+            np.array([u for edges in remaining for u, _ in edges], np.int32),
+            np.array([w for edges in remaining for _, w in edges], np.float64))
 
 
 def inverse_pivots(pivots) -> np.ndarray:
