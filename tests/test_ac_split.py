@@ -17,10 +17,10 @@ from ohmgraph.datasets.generators import grid2d, knn_network, ladder
 from ohmgraph.engine import solve
 from ohmgraph.engine.session import SolveSession
 from ohmgraph.engine.solvers import ac_split
-from ohmgraph.engine.solvers.ac_cg import AcCgSolver
+from ohmgraph.engine.solvers.ac_cg import AcCgSolver, pcg_kernel
 from ohmgraph.engine.solvers.ac_factor import (diagonal_kernel, eliminate_kernel,
                                                eliminate_reference, factor_kernel, seed_state,
-                                               split_kernel)
+                                               split_kernel, sweep_kernel)
 
 # sha256 (first 16 hex digits) of factor_kernel's five arrays for each case at seed 1, recorded
 # with the single-thread kernel before the eliminable mask was added: the mask changes nothing.
@@ -131,3 +131,34 @@ def test_one_thread_when_numba_is_held_to_one(monkeypatch):
     assert solver.threads == 1 and not solver.split
     single = factor_kernel(*parts_of(matrix), np.uint64(seed_state(1)))
     np.testing.assert_array_equal(solver._order, single[0])
+
+
+def test_two_thread_sweeps_and_iterates_match_the_one_thread_loop(monkeypatch):
+    monkeypatch.setattr(ac_split, "MIN_UNKNOWNS", 100)
+    system = solve(grid2d(60, 60, pads=4, loads=30, seed=2), method="direct").system
+    solver = AcCgSolver(system.matrix, 1e-10)
+    loop = solver._split_pcg
+    assert solver.split and loop.cut < system.matrix.shape[0]
+    factor = (solver._colptr, solver._rows, solver._values, solver._inverse)
+    r = np.random.default_rng(6).normal(size=system.matrix.shape[0])
+    one = np.empty_like(r)
+    dot = sweep_kernel(*factor, r, one)
+    two = loop.sweep(r)
+    np.testing.assert_allclose(two, one, rtol=1e-12, atol=1e-12 * np.abs(one).max())
+    assert dot == pytest.approx(r @ two, rel=1e-12)
+    np.testing.assert_array_equal(loop.sweep(r), two)            # no dependence on timing
+    b = system.rhs[solver._order]
+    target = 1e-9 * np.linalg.norm(b)
+    x_one, x_two = np.zeros_like(b), np.zeros_like(b)
+    iterations = pcg_kernel(*solver._permuted, *factor, b, x_one, target, 200)
+    assert loop.run(b, x_two, target, 200) == iterations > 5
+    np.testing.assert_allclose(x_two, x_one, rtol=1e-9, atol=1e-9 * np.abs(x_one).max())
+    # from a nonzero start (the solver's second round): the same again
+    x_one, x_two = 0.5 * x_one, 0.5 * x_one
+    iterations = pcg_kernel(*solver._permuted, *factor, b, x_one, target, 200)
+    assert loop.run(b, x_two, target, 200) == iterations > 5
+    np.testing.assert_allclose(x_two, x_one, rtol=1e-9, atol=1e-9 * np.abs(x_one).max())
+    # a start that already meets the target: no iteration, x untouched
+    start = x_two.copy()
+    assert loop.run(b, x_two, 10 * np.linalg.norm(b), 200) == 0
+    np.testing.assert_array_equal(x_two, start)

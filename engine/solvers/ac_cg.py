@@ -16,6 +16,7 @@ import scipy.sparse.linalg as spla
 from . import ac_split
 from .ac_factor import (factor_kernel, inverse_pivots, permute_kernel, seed_state, split_kernel,
                         sweep_kernel)
+from .ac_pcg_split import SplitPcg
 from .base import DEFAULT_RTOL, SPDSolver, column_by_column
 
 DEFAULT_SEED = 1
@@ -130,6 +131,11 @@ class AcCgSolver(SPDSolver):
         del parts
         self._inverse = inverse_pivots(pivots)
         self._permuted = permute_kernel(matrix.indptr, matrix.indices, matrix.data, self._order)
+        self._split_pcg = None
+        if self.split:
+            sizes = np.bincount(labels, minlength=2)
+            self._split_pcg = SplitPcg(self._permuted, self._colptr, self._rows, self._values,
+                                       self._inverse, (sizes[0], sizes[0] + sizes[1]))
         self.factor_nonzeros = int(self._rows.size)
 
     def apply(self, r: np.ndarray) -> np.ndarray:
@@ -158,9 +164,12 @@ class AcCgSolver(SPDSolver):
         # Recurrence residual to 0.8 of the target, then check the true one (they drift apart);
         # a second round restarts from the current iterate when the true one falls short.
         for _ in range(2):
-            iterations += pcg_kernel(*self._permuted, self._colptr, self._rows, self._values,
-                                     self._inverse, bp, xp, 0.8 * self.rtol * norm_b,
-                                     self.max_iterations - iterations)
+            target, budget = 0.8 * self.rtol * norm_b, self.max_iterations - iterations
+            if self._split_pcg is not None:
+                iterations += self._split_pcg.run(bp, xp, target, budget)
+            else:
+                iterations += pcg_kernel(*self._permuted, self._colptr, self._rows,
+                                         self._values, self._inverse, bp, xp, target, budget)
             x = np.empty_like(xp)
             x[order] = xp
             if (np.linalg.norm(self.matrix @ x - b) <= self.rtol * norm_b
