@@ -72,14 +72,17 @@ def part_kernel(indptr, indices, weights, excess, labels, part):
     n = indptr.size - 1
     local = np.full(n, -1, np.int64)
     m = 0
+    size = 0
     for v in range(n):
         if labels[v] == part or labels[v] == SEPARATOR:
             local[v] = m
             m += 1
+            for e in range(indptr[v], indptr[v + 1]):
+                size += _kept(labels, v, indices[e], part)
     vertices = np.empty(m, np.int64)
     ptr = np.zeros(m + 1, np.int64)
-    idx = np.empty(indices.size, np.int32)
-    weight = np.empty(indices.size, np.float64)
+    idx = np.empty(size, np.int32)
+    weight = np.empty(size, np.float64)
     out = np.zeros(m, np.float64)
     k = 0
     for v in range(n):
@@ -87,17 +90,31 @@ def part_kernel(indptr, indices, weights, excess, labels, part):
         if i < 0:
             continue
         vertices[i] = v
-        inside = labels[v] != SEPARATOR
-        if inside or part == SEPARATOR:
+        if labels[v] != SEPARATOR or part == SEPARATOR:
             out[i] = excess[v]
         for e in range(indptr[v], indptr[v + 1]):
             u = indices[e]
-            if local[u] >= 0 and (inside or labels[u] != SEPARATOR or part == SEPARATOR):
+            if _kept(labels, v, u, part):
                 idx[k] = local[u]
                 weight[k] = weights[e]
                 k += 1
         ptr[i + 1] = k
-    return vertices, ptr, idx[:k].copy(), weight[:k].copy(), out
+    return vertices, ptr, idx, weight, out
+
+
+@numba.njit(cache=True, nogil=True, inline="always")
+def _kept(labels, v, u, part):
+    """Whether the edge ``v``-``u`` of a vertex ``v`` of the subgraph belongs to it."""
+    if labels[u] != part and labels[u] != SEPARATOR:
+        return False
+    return part == SEPARATOR or labels[v] != SEPARATOR or labels[u] != SEPARATOR
+
+
+@numba.njit(cache=True, nogil=True)
+def place_kernel(rows, vertices, position, out, start):
+    """``out[start:start + rows.size] = position[vertices[rows]]``."""
+    for e in range(rows.size):
+        out[start + e] = position[vertices[rows[e]]]
 
 
 def _eliminate_part(graph, labels, diagonal, part, seed):
@@ -136,8 +153,9 @@ def split_factor(indptr, indices, weights, excess, labels, seed: int, threads: i
     diagonal = diagonal_kernel(indptr, weights, excess)
     jobs = [(graph, labels, diagonal, part, seed + SEED_OFFSETS[part]) for part in (0, 1)]
     if threads > 1:
-        with ThreadPoolExecutor(2) as pool:
-            parts = list(pool.map(lambda job: _eliminate_part(*job), jobs))
+        with ThreadPoolExecutor(1) as pool:
+            other = pool.submit(_eliminate_part, *jobs[1])
+            parts = [_eliminate_part(*jobs[0]), other.result()]
     else:
         parts = [_eliminate_part(*job) for job in jobs]
     vertices, sptr, sidx, sweight, sexcess = _separator_graph(graph, labels, parts)
@@ -148,8 +166,10 @@ def split_factor(indptr, indices, weights, excess, labels, seed: int, threads: i
     order = np.concatenate([local[o] for local, o, *_ in steps])
     position = np.empty(order.size, np.int64)
     position[order] = np.arange(order.size)
-    rows = np.concatenate([position[local[r]] for local, _, _, r, *_ in steps]).astype(np.int32)
     offsets = np.cumsum([0] + [step[2][-1] for step in steps])
+    rows = np.empty(offsets[-1], np.int32)
+    for k, (local, _, _, local_rows, *_) in enumerate(steps):
+        place_kernel(local_rows, local, position, rows, offsets[k])
     colptr = np.concatenate([[0]] + [step[2][1:] + offsets[k] for k, step in enumerate(steps)])
     values = np.concatenate([step[4] for step in steps])
     pivots = np.concatenate([step[5] for step in steps])
