@@ -147,6 +147,9 @@ def test_two_thread_sweeps_and_iterates_match_the_one_thread_loop(monkeypatch):
     np.testing.assert_allclose(two, one, rtol=1e-12, atol=1e-12 * np.abs(one).max())
     assert dot == pytest.approx(r @ two, rel=1e-12)
     np.testing.assert_array_equal(loop.sweep(r), two)            # no dependence on timing
+    original = np.empty_like(r)
+    original[solver._order] = r
+    np.testing.assert_array_equal(solver.apply(original)[solver._order], two)
     b = system.rhs[solver._order]
     target = 1e-9 * np.linalg.norm(b)
     x_one, x_two = np.zeros_like(b), np.zeros_like(b)

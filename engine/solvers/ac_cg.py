@@ -114,6 +114,7 @@ class AcCgSolver(SPDSolver):
     def _setup(self) -> None:
         self.factor_nonzeros = 0
         self.split = False
+        self._split_pcg = None
         if self.matrix.shape[0] == 0:
             return
         matrix = self.matrix
@@ -131,7 +132,6 @@ class AcCgSolver(SPDSolver):
         del parts
         self._inverse = inverse_pivots(pivots)
         self._permuted = permute_kernel(matrix.indptr, matrix.indices, matrix.data, self._order)
-        self._split_pcg = None
         if self.split:
             sizes = np.bincount(labels, minlength=2)
             self._split_pcg = SplitPcg(self._permuted, self._colptr, self._rows, self._values,
@@ -140,9 +140,12 @@ class AcCgSolver(SPDSolver):
 
     def apply(self, r: np.ndarray) -> np.ndarray:
         """The preconditioner applied to one vector (in the original numbering)."""
-        z = np.empty(r.shape[0])
-        sweep_kernel(self._colptr, self._rows, self._values, self._inverse,
-                     np.ascontiguousarray(r, dtype=np.float64)[self._order], z)
+        r = np.ascontiguousarray(r, dtype=np.float64)[self._order]
+        if self._split_pcg is not None:
+            z = self._split_pcg.sweep(r)
+        else:
+            z = np.empty(r.shape[0])
+            sweep_kernel(self._colptr, self._rows, self._values, self._inverse, r, z)
         out = np.empty_like(z)
         out[self._order] = z
         return out
