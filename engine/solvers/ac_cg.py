@@ -107,9 +107,14 @@ class AcCgSolver(SPDSolver):
     def __init__(self, matrix, rtol: float = DEFAULT_RTOL, seed: int = DEFAULT_SEED,
                  threads: int | None = None):
         self.seed = int(seed)
-        self.threads = (min(2, numba.config.NUMBA_NUM_THREADS) if threads is None
-                        else int(threads))
+        self.threads = self.default_threads() if threads is None else int(threads)
         super().__init__(matrix, rtol)
+
+    @staticmethod
+    def default_threads() -> int:
+        """Threads used when none are asked for: 2, or 1 where numba may use only one (the
+        command line sets that under an address-space limit)."""
+        return min(2, numba.config.NUMBA_NUM_THREADS)
 
     def _setup(self) -> None:
         self.factor_nonzeros = 0

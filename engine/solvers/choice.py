@@ -105,6 +105,12 @@ AC_ITERATIONS_PER_DECADE = 3.9          # 29-31 iterations at rtol 1e-8
 # a 700 x 700 lattice: ac-cg added 193 MB, amg-cg 212 MB; scaled to amg-cg's model (44 B per
 # entry at the floor complexity).
 AC_BYTES_PER_ENTRY = 40.0
+# From .ac_split.MIN_UNKNOWNS unknowns, with two threads allowed, ac-cg factors and iterates in
+# two threads (one level of nested dissection): measured 0.63 (a 1000 x 1000 lattice of
+# log-uniform conductances: 0.998 s against 1.578 s) and 0.67 (a 3-NN graph: 0.969 against
+# 1.442 s) of its one-thread time, set-up and solve (2 cores, 2026-12-03); the peak grows by
+# about 0.09 GB at 10^6 unknowns, within AC_BYTES_PER_ENTRY's margin.
+AC_TWO_THREADS = 0.65
 
 # The screen: used when the analysis would cost more than SCREEN_SHARE of amg-cg's cheapest
 # prediction, on at least SCREEN_MIN_UNKNOWNS unknowns; skips the analysis when the sampled
@@ -199,9 +205,15 @@ def amg_evenness(matrix) -> float:
 
 
 def ac_prediction(matrix, solves: int, rtol: float = DEFAULT_RTOL) -> tuple:
-    """``(seconds, bytes)`` of the ac-cg factorisation and ``solves`` right-hand sides."""
+    """``(seconds, bytes)`` of the ac-cg factorisation and ``solves`` right-hand sides (on two
+    threads where ac-cg would use them: :data:`AC_TWO_THREADS`)."""
     iterations = AC_ITERATIONS_PER_DECADE * max(-math.log10(max(rtol, 1e-16)), 1.0)
     seconds = matrix.nnz * (AC_SETUP_SECONDS + solves * iterations * AC_ITERATION_SECONDS)
+    from .ac_cg import AcCgSolver
+    from .ac_split import MIN_UNKNOWNS
+
+    if matrix.shape[0] >= MIN_UNKNOWNS and AcCgSolver.default_threads() > 1:
+        seconds *= AC_TWO_THREADS
     return seconds, AC_BYTES_PER_ENTRY * matrix.nnz
 
 
