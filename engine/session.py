@@ -203,6 +203,8 @@ class SolveSession:
         self.stats.seed = getattr(self._solver, "seed", None)
         if self.stats.seed is not None:          # stored with the reason, so a run can repeat
             reason = f"{reason}; seed {self.stats.seed}"
+        if getattr(self._solver, "split", False):  # the two-thread factor is another factor
+            reason = f"{reason}; factored in two threads (separator split)"
         self.stats.method, self.stats.reason = method, reason
 
     def _set_up_kept(self, solves: int) -> None:

@@ -113,6 +113,7 @@ def test_split_solves_match_a_direct_solve(monkeypatch, name, net):
     session = SolveSession(matrix, "ac-cg", rtol)
     x = session.solve(b)
     assert session.method == "ac-cg" and session._solver.split
+    assert "factored in two threads" in session.stats.reason       # stored with the seed
     assert session.stats.max_relative_residual <= rtol        # the session's own check
     # the error of a residual r is at most ||A^-1|| ||r|| (common practice)
     exact = spla.spsolve(sp.csc_matrix(matrix), b)

@@ -211,7 +211,7 @@ def _solve_here(args) -> int:
     setup = solution.kept_setup() if args.keep_setup else None
     if args.keep_setup and setup is None:
         notes.append(f"--keep-setup: the {solution.method} set-up cannot be kept (only "
-                     "amg-cg's can)")
+                     "amg-cg's can: ask for it with --method amg-cg)")
     solution.notes += notes
     solution.release_solver()           # nothing here solves again: free it before storing
     start = time.perf_counter()
