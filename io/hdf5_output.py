@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import contextlib
 import io
+import threading
 
 import h5py
 
@@ -82,7 +83,12 @@ def create_hdf5(path, mode: str = "w", **options):
         # HDF5 calls the file object's methods from C: an interrupt raised inside one of them
         # would be lost there and leave the library in a broken state (a crash at exit), so
         # SIGINT and SIGTERM are held while the file is open and raised once it is closed.
-        with deferred(), h5py.File(keeper, mode, **options) as h5:
+        # Python runs signal handlers on the main thread only: a file written by another
+        # thread (io/store.py's SolutionWriter) needs no holding, and must not hold the main
+        # thread's signals for as long as it is open.
+        on_main = threading.current_thread() is threading.main_thread()
+        with (deferred() if on_main else contextlib.nullcontext(),
+              h5py.File(keeper, mode, **options) as h5):
             yield h5
         keeper.flush()
     if keeper.error is not None:

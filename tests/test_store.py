@@ -17,7 +17,7 @@ from ohmgraph.io.errors import InputError, OutputRefused
 from ohmgraph.io.solution_view import (POWER_CAUTION, format_solution, solution_summary,
                                        summary_from_stored)
 from ohmgraph.io.hdf5_integrity import COMPRESS_FROM, compresses
-from ohmgraph.io.store import decode_strings, encode_strings
+from ohmgraph.io.store import SolutionWriter, decode_strings, encode_strings, solution_file
 
 
 @pytest.fixture
@@ -215,3 +215,57 @@ def test_summary_from_file_equals_summary_of_solve(tmp_path, make_network):
                    "largest branch currents", "largest resistor powers", "source powers",
                    POWER_CAUTION, "time (s)", f"{solution.network.n_nodes:,} nodes"):
         assert needle in text
+
+
+# ---------------------------------------------------------------- writing beside the solve
+def test_the_file_started_before_the_solve_equals_the_one_written_after(tmp_path, divider):
+    """``solution_file`` (network first, in a thread of its own; solution added by ``finish``)
+    stores exactly what ``write_solution`` stores, the node table and ratings included."""
+    net, solution = divider
+    early_extra = {"branches/max_current": np.array([np.nan, 0.1, 0.1, np.nan]),
+                   "nodes/x": np.arange(net.n_nodes, dtype=float)}
+    drop = supply_drop(net, solution.node_voltage)
+    late_extra = {"nodes/drop": drop.drop}
+    write_solution(tmp_path / "after.h5", solution, extra={**early_extra, **late_extra})
+    with solution_file(tmp_path / "before.h5", net, solution.report, extra=early_extra) as out:
+        assert isinstance(out, SolutionWriter)
+        out.finish(solution, extra=late_extra)
+    after, before = read_solution(tmp_path / "after.h5"), read_solution(tmp_path / "before.h5")
+    assert sorted(before.extra) == sorted(after.extra) == ["branches/max_current", "nodes/drop",
+                                                           "nodes/x"]
+    for name in after.extra:
+        np.testing.assert_array_equal(before.extra[name], after.extra[name])
+    np.testing.assert_array_equal(before.network.branch_names, after.network.branch_names)
+    np.testing.assert_array_equal(before.node_voltage, after.node_voltage)
+    np.testing.assert_array_equal(before.branch_power, after.branch_power)
+    assert before.findings == after.findings and before.check_summary == after.check_summary
+    assert {k: v for k, v in before.attrs.items() if k != "created"} == {
+        k: v for k, v in after.attrs.items() if k != "created"}
+
+
+def test_signals_are_not_held_while_the_file_is_open(tmp_path, divider):
+    """The writer's HDF5 calls run in its own thread: the main thread keeps acting on SIGINT
+    (io/interrupts.py) for as long as the solve takes."""
+    from ohmgraph.io.interrupts import _State, handling
+
+    net, solution = divider
+    with handling(), solution_file(tmp_path / "out.h5", net, solution.report) as out:
+        out._begun.result()
+        assert _State.deferring == 0
+        out.finish(solution)
+    assert read_solution(tmp_path / "out.h5").node_voltage.size == net.n_nodes
+
+
+def test_a_failed_or_unfinished_block_leaves_nothing(tmp_path, divider):
+    net, solution = divider
+    with pytest.raises(KeyboardInterrupt):
+        with solution_file(tmp_path / "out.h5", net, solution.report):
+            raise KeyboardInterrupt          # as an interrupt during the solve would
+    with pytest.raises(RuntimeError, match="without finish"):
+        with solution_file(tmp_path / "out.h5", net, solution.report):
+            pass
+    other = solve(Network.from_arrays(["a", "a"], ["0", "0"], [1.0, 5.0], ["V", "R"]))
+    with pytest.raises(ValueError, match="another network"):
+        with solution_file(tmp_path / "out.h5", net, solution.report) as out:
+            out.finish(other)
+    assert list(tmp_path.iterdir()) == []

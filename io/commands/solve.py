@@ -28,8 +28,8 @@ from ohmgraph.io.progress import Feedback, format_seconds
 from ohmgraph.io.reader import RATING_COLUMNS, NetworkFile, read_network_file
 from ohmgraph.io.setup_store import read_setup
 from ohmgraph.io.solution_view import format_solution, solution_summary
-from ohmgraph.io.store import (file_sha256, read_solution, read_warm_start, voltages_by_label,
-                               write_solution)
+from ohmgraph.io.store import (file_sha256, read_solution, read_warm_start, solution_file,
+                               voltages_by_label)
 
 
 def register(subparsers) -> None:
@@ -198,33 +198,36 @@ def _solve_here(args) -> int:
     hashing.shutdown(wait=False)
     feedback.stage(f"checked in {format_seconds(check_seconds)}; assembling, choosing the solver "
                    f"({args.method}), setting it up and solving", net.n_nodes)
-    try:
-        solution = solve(net, method=args.method, rtol=args.rtol,
-                         allow_floating=args.allow_floating, report=report,
-                         start_voltage=start_voltage, memory_budget=args.memory_budget,
-                         kept_setup=kept)
-    except SolverFailed as error:
-        raise SolverError(f"{args.network}: {error}") from error
-    solution.timings = {"read": read_seconds, **solution.timings, "check": check_seconds}
-    if kept_seconds is not None:
-        solution.timings["read_setup"] = kept_seconds
-    setup = solution.kept_setup() if args.keep_setup else None
-    if args.keep_setup and setup is None:
-        notes.append(f"--keep-setup: the {solution.method} set-up cannot be kept (only "
-                     "amg-cg's can: ask for it with --method amg-cg)")
-    solution.notes += notes
-    solution.release_solver()           # nothing here solves again: free it before storing
-    start = time.perf_counter()
-    drop = supply_drop(net, solution.node_voltage, nominal=args.nominal,
-                       thresholds=args.drop_thresholds)
-    solution.timings["drop"] = time.perf_counter() - start
-    extra = {**drop_datasets(drop), **{f"branches/{k}": v for k, v in ratings.items()},
+    # What the solve does not change goes into the output file meanwhile, in a third thread
+    known = {**{f"branches/{k}": v for k, v in ratings.items()},
              **(nodes.datasets() if nodes else {})}
-    feedback.stage(f"solved ({solution.method}, relative residual "
-                   f"{solution.relative_residual:.1e}); writing {args.output}", net.n_nodes)
-    store_seconds = write_solution(args.output, solution, input_path=args.network,
-                                   force=args.force, extra=extra, input_sha256=input_sha256,
-                                   setup=setup)
+    with solution_file(args.output, net, report, force=args.force, extra=known,
+                       after=input_sha256) as output:
+        try:
+            solution = solve(net, method=args.method, rtol=args.rtol,
+                             allow_floating=args.allow_floating, report=report,
+                             start_voltage=start_voltage, memory_budget=args.memory_budget,
+                             kept_setup=kept)
+        except SolverFailed as error:
+            raise SolverError(f"{args.network}: {error}") from error
+        solution.timings = {"read": read_seconds, **solution.timings, "check": check_seconds}
+        if kept_seconds is not None:
+            solution.timings["read_setup"] = kept_seconds
+        setup = solution.kept_setup() if args.keep_setup else None
+        if args.keep_setup and setup is None:
+            notes.append(f"--keep-setup: the {solution.method} set-up cannot be kept (only "
+                         "amg-cg's can: ask for it with --method amg-cg)")
+        solution.notes += notes
+        solution.release_solver()           # nothing here solves again: free it before storing
+        start = time.perf_counter()
+        drop = supply_drop(net, solution.node_voltage, nominal=args.nominal,
+                           thresholds=args.drop_thresholds)
+        solution.timings["drop"] = time.perf_counter() - start
+        feedback.stage(f"solved ({solution.method}, relative residual "
+                       f"{solution.relative_residual:.1e}); writing {args.output}", net.n_nodes)
+        store_seconds = output.finish(solution, input_path=args.network,
+                                      extra=drop_datasets(drop), input_sha256=input_sha256,
+                                      setup=setup)
     summary = solution_summary(solution, {"store": store_seconds}, drop)
     if args.json:
         print(dumps({"output": str(args.output), **summary}))
