@@ -31,6 +31,7 @@ kernel has a plain-Python twin (``*_reference``) that it is tested against.
 
 from __future__ import annotations
 
+import threading
 from concurrent.futures import ThreadPoolExecutor
 
 import numba
@@ -191,6 +192,9 @@ class VCycle:
         self._levels = [_Level(level, k == len(levels) - 1) for k, level in enumerate(levels)]
         self._coarse_solver = hierarchy.coarse_solver
         self.split_levels = sum(level.split is not None for level in self._levels[:-1])
+        # the levels' work vectors serve one cycle at a time (a solve abandoned by an interrupt
+        # may still be cycling in its worker thread when the next one starts)
+        self._lock = threading.Lock()
 
     def operator(self) -> spla.LinearOperator:
         """The cycle as a SciPy linear operator (the preconditioner of ``scipy`` CG)."""
@@ -202,7 +206,7 @@ class VCycle:
         levels = self._levels
         if len(levels) == 1:
             return np.asarray(self._coarse_solver(levels[0].A, b)).ravel()
-        with ThreadPoolExecutor(1) as helper:
+        with self._lock, ThreadPoolExecutor(1) as helper:
             return self._cycle(b, helper)
 
     @staticmethod
