@@ -18,10 +18,10 @@ import copy
 
 import numpy as np
 import scipy.sparse as sp
-import scipy.sparse.linalg as spla
 
 from .amg_cycle import VCycle
 from .base import DEFAULT_RTOL, SPDSolver, column_by_column
+from .split_cg import conjugate_gradient
 from .kept import KeptSetup
 
 # The settings a kept hierarchy must have been built with (they decide its levels and how
@@ -94,7 +94,8 @@ class AmgCgSolver(SPDSolver):
                 presmoother=("gauss_seidel", {"sweep": "forward"}),
                 postsmoother=("gauss_seidel", {"sweep": "backward"}),
                 max_coarse=self.max_coarse, coarse_solver="splu")
-        self._preconditioner = VCycle(self._hierarchy).operator()
+        self._cycle = VCycle(self._hierarchy)
+        self._preconditioner = self._cycle.operator()
 
     def export_setup(self) -> KeptSetup:
         """The hierarchy as plain arrays (without a fingerprint: the session adds it):
@@ -129,17 +130,12 @@ class AmgCgSolver(SPDSolver):
         return VCycle(hierarchy).operator()
 
     def _solve_column(self, b, x0=None):
-        count = [0]
-
-        def tally(_):
-            count[0] += 1
-
         if not np.any(b):
             return np.zeros_like(b), 0
         # Ask CG for half the target: its recurrence residual drifts from the true one.
-        x, _ = spla.cg(self.matrix, b, x0=x0, rtol=0.5 * self.rtol, atol=0.0, maxiter=self.max_iterations,
-                       M=self._preconditioner, callback=tally)
-        return x, count[0]
+        return conjugate_gradient(self.matrix, b, self._cycle, x0=x0,
+                                  target=0.5 * self.rtol * float(np.linalg.norm(b)),
+                                  max_iterations=self.max_iterations)
 
     def _solve(self, b, x0=None):
         return column_by_column(self._solve_column, b, x0)

@@ -131,7 +131,7 @@ def product_reference(indptr, indices, data, x, y, b, lo, hi, mode):
 
 
 # ------------------------------------------------------------------------------- the split
-def _halves(indptr) -> tuple:
+def halves(indptr) -> tuple:
     """Row ranges ``(0, mid), (mid, n)`` of about equal entries."""
     n = indptr.size - 1
     mid = int(np.searchsorted(indptr, indptr[-1] // 2))
@@ -143,7 +143,7 @@ def split_rows(A) -> tuple | None:
     the other, or None when the level should stay in one thread (see the module notes)."""
     if A.nnz < SPLIT_MIN_NONZEROS:
         return None
-    blocks = _halves(A.indptr)
+    blocks = halves(A.indptr)
     mid, split_at = blocks[1][0], int(A.indptr[blocks[1][0]])
     crossing = np.concatenate([np.flatnonzero(A.indices[:split_at] >= mid),
                                split_at + np.flatnonzero(A.indices[split_at:] < mid)])
@@ -166,8 +166,8 @@ class _Level:
         self.blocks = self.split[0] if self.split else ((0, self.A.shape[0]),)
         if not coarsest:
             self.R, self.P = level.R.tocsr(), level.P.tocsr()
-            self.R_blocks = _halves(self.R.indptr) if self.split else ((0, self.R.shape[0]),)
-            self.P_blocks = _halves(self.P.indptr) if self.split else ((0, self.P.shape[0]),)
+            self.R_blocks = halves(self.R.indptr) if self.split else ((0, self.R.shape[0]),)
+            self.P_blocks = halves(self.P.indptr) if self.split else ((0, self.P.shape[0]),)
             # work vectors, kept between cycles: fresh ones would cost a page fault per 4 kB
             # touched, and the two threads' faults wait on each other (measured: 49 ms
             # instead of 27 ms per cycle on a 1000 x 1000 lattice)

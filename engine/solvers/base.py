@@ -227,22 +227,22 @@ class SPDSolver(ABC):
         The returned :class:`SolveInfo` holds the residual measured against ``matrix``; its
         ``converged`` says whether ``rtol`` was met (the caller decides what to do otherwise).
         """
+        from .split_cg import conjugate_gradient
+
         b = np.asarray(b, dtype=np.float64)
-        count = [0]
-
-        def tally(_):
-            count[0] += 1
-
+        iterations = 0
         start = time.perf_counter()
         if matrix.shape[0] == 0 or not np.any(b):
             x = np.zeros_like(b)
         else:
             with single_threaded_blas():
                 # Half the target, as in amg_cg: CG's recurrence residual drifts from the true one.
-                x, _ = spla.cg(matrix, b, x0=x0, rtol=0.5 * self.rtol, atol=0.0,
-                               maxiter=max_iterations, M=self.preconditioner(matrix), callback=tally)
+                x, iterations = conjugate_gradient(
+                    sp.csr_matrix(matrix), b, self.preconditioner(matrix).matvec, x0=x0,
+                    target=0.5 * self.rtol * float(np.linalg.norm(b)),
+                    max_iterations=max_iterations)
         elapsed = time.perf_counter() - start
         residual = relative_residual(matrix, x, b) if b.size else 0.0
         converged = bool(np.isfinite(residual) and residual <= self.rtol)
-        return x, SolveInfo(f"cg preconditioned by {self.method}", count[0], residual, converged,
+        return x, SolveInfo(f"cg preconditioned by {self.method}", iterations, residual, converged,
                             0.0, elapsed)
