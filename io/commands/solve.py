@@ -85,13 +85,13 @@ def register(subparsers) -> None:
     parser.set_defaults(run=run)
 
 
-def read_inputs(args, base) -> tuple[NetworkFile, list, bool]:
+def read_inputs(args, base, input_sha256) -> tuple[NetworkFile, list, bool]:
     """The network file (network, reader's findings, ratings), the notes saying where it came
-    from, and whether it is the very network ``BASE.h5`` was solved from (same SHA-256, same
-    reference node, no change file applied then). That network is taken from ``BASE.h5``,
-    which is faster to read than a text file; an HDF5 network file (``convert``) is read
-    itself, faster still."""
-    same = (base is not None and base.attrs.get("input_sha256") == file_sha256(args.network)
+    from, and whether it is the very network ``BASE.h5`` was solved from (same SHA-256 — the
+    future ``input_sha256`` — same reference node, no change file applied then). That network
+    is taken from ``BASE.h5``, which is faster to read than a text file; an HDF5 network file
+    (``convert``) is read itself, faster still."""
+    same = (base is not None and base.attrs.get("input_sha256") == input_sha256.result()
             and base.attrs["reference"] == args.ground
             and not any(note.startswith(CHANGES_NOTE) for note in base.attrs.get("notes", [])))
     if same and not is_hdf5(args.network):
@@ -143,13 +143,18 @@ def _solve_here(args) -> int:
     """``solve`` on this one process."""
     checkpoint("read")
     start = time.perf_counter()
+    # The input's SHA-256 (provenance, and whether NET is BASE.h5's network) in another thread:
+    # hashlib releases the interpreter lock. Without BASE.h5 it waits for the solve, as the
+    # text reader keeps both cores busy; with one it runs beside BASE.h5's reading.
+    hashing = ThreadPoolExecutor(1)
+    input_sha256 = hashing.submit(file_sha256, args.network) if args.start_from else None
     base = None
     if args.start_from:
         # NET in HDF5 is read itself, so only what a warm start needs is read from BASE.h5;
         # a text NET may be the file BASE.h5 was solved from, whose network BASE.h5 holds
         base = (read_warm_start(args.start_from) if is_hdf5(args.network)
-                else read_solution(args.start_from))
-    read, notes, same_as_base = read_inputs(args, base)
+                else read_solution(args.start_from, branch_results=False))
+    read, notes, same_as_base = read_inputs(args, base, input_sha256)
     change_file = None
     if args.changes:
         change_file = read_changes(args.changes, read.network)
@@ -191,10 +196,8 @@ def _solve_here(args) -> int:
         return EXIT_FAILED
 
     checkpoint("solve")
-    # The input's SHA-256 (provenance) in another thread while the solver runs on this one:
-    # hashlib releases the interpreter lock and the file is still in the page cache.
-    hashing = ThreadPoolExecutor(1)
-    input_sha256 = hashing.submit(file_sha256, args.network)
+    if input_sha256 is None:            # the file is still in the page cache
+        input_sha256 = hashing.submit(file_sha256, args.network)
     hashing.shutdown(wait=False)
     feedback.stage(f"checked in {format_seconds(check_seconds)}; assembling, choosing the solver "
                    f"({args.method}), setting it up and solving", net.n_nodes)
