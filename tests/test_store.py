@@ -269,3 +269,22 @@ def test_a_failed_or_unfinished_block_leaves_nothing(tmp_path, divider):
         with solution_file(tmp_path / "out.h5", net, solution.report) as out:
             out.finish(other)
     assert list(tmp_path.iterdir()) == []
+
+
+def test_reading_without_branch_results(tmp_path, divider):
+    """What a re-solve from the stored network reads: the same network and voltages, no branch
+    results; a damaged required dataset is still refused."""
+    net, solution = divider
+    out = tmp_path / "out.h5"
+    write_solution(out, solution)
+    whole, lean = read_solution(out), read_solution(out, branch_results=False)
+    np.testing.assert_array_equal(lean.network.branch_names, whole.network.branch_names)
+    np.testing.assert_array_equal(lean.network.value, whole.network.value)
+    np.testing.assert_array_equal(lean.node_voltage, whole.node_voltage)
+    assert lean.findings == whole.findings and lean.attrs == whole.attrs
+    assert (lean.branch_current, lean.branch_voltage, lean.branch_power,
+            lean.current_determined) == (None, None, None, None)
+    with h5py.File(out, "a") as h5:
+        del h5["branches/power"]
+    with pytest.raises(InputError, match="missing dataset /branches/power"):
+        read_solution(out, branch_results=False)
