@@ -272,8 +272,11 @@ def _all_components(net: Network, conductive_label: np.ndarray) -> int:
     count = int(conductive_label.max()) + 1 if conductive_label.size else 0
     if not sources.any():
         return count
-    joined, _ = _components(count, conductive_label[net.from_node[sources]],
-                            conductive_label[net.to_node[sources]])
+    a, b = conductive_label[net.from_node[sources]], conductive_label[net.to_node[sources]]
+    joining = a != b                # a source inside one component joins nothing
+    if not joining.any():
+        return count
+    joined, _ = _components(count, a[joining], b[joining])
     return joined
 
 
