@@ -494,13 +494,15 @@ class SolutionWriter:
                                       start).result()
         checkpoint("store")
         self._thread.submit(self._files.close).result()
-        self._thread.shutdown()
         self.finished = True
+        self._thread.shutdown()
         return elapsed
 
     def abandon(self) -> None:
         """Stop after the current dataset and close the file, ignoring its errors (the caller
-        removes it)."""
+        removes it); nothing to do once :meth:`finish` has closed it."""
+        if self.finished:
+            return
         self._stop.set()
 
         def close_quietly():

@@ -289,3 +289,12 @@ def test_reading_without_branch_results(tmp_path, divider):
         del h5["branches/power"]
     with pytest.raises(InputError, match="missing dataset /branches/power"):
         read_solution(out, branch_results=False)
+
+
+def test_an_error_after_finish_still_leaves_nothing(tmp_path, divider):
+    net, solution = divider
+    with pytest.raises(ZeroDivisionError):
+        with solution_file(tmp_path / "out.h5", net, solution.report) as out:
+            out.finish(solution)
+            1 / 0                              # the block fails after the file was closed
+    assert list(tmp_path.iterdir()) == []
