@@ -161,3 +161,37 @@ def test_amg_cg_solves_with_the_split_cycle_as_before(split_everywhere):
     assert info.converged and info.relative_residual <= 1e-10
     assert np.linalg.norm(b - A @ x) <= 1e-10 * np.linalg.norm(b)
     np.testing.assert_allclose(x, spla.spsolve(A.tocsc(), b), rtol=1e-7, atol=1e-9)
+
+
+def test_one_thread_where_numba_is_held_to_one(split_everywhere, monkeypatch):
+    """As the command line holds numba under an address-space limit: no level splits and CG
+    runs in one block, so no helper thread is started."""
+    import numba
+
+    from ohmgraph.engine.solvers import split_cg
+
+    A = grounded_lattice(40, seed=11)
+    assert split_rows(A) is not None
+    monkeypatch.setattr(numba.config, "NUMBA_NUM_THREADS", 1)
+    monkeypatch.setattr(split_cg, "SPLIT_MIN_NONZEROS", 0)
+    assert split_rows(A) is None and VCycle(hierarchy_of(A)).split_levels == 0
+
+    class NoThreads:
+        def __init__(self, *args, **kwargs):
+            pass
+
+        def __enter__(self):
+            return self
+
+        def __exit__(self, *exc):
+            return False
+
+        def submit(self, *args):
+            raise AssertionError("a helper thread was used")
+
+    monkeypatch.setattr(split_cg, "ThreadPoolExecutor", NoThreads)
+    b = np.random.default_rng(12).standard_normal(A.shape[0])
+    x, iterations = split_cg.conjugate_gradient(A, b, VCycle(hierarchy_of(A)),
+                                                target=1e-10 * np.linalg.norm(b),
+                                                max_iterations=100)
+    assert iterations > 0 and np.linalg.norm(b - A @ x) <= 2e-10 * np.linalg.norm(b)

@@ -23,7 +23,8 @@ transpose, so the cycle stays symmetric. A level is split only when
   conjugate gradient needs (the condition of Baker et al. 2011, sect. 3; recalled from
   memory).
 
-Otherwise the level runs in one thread with the same kernels, which give pyamg's sweep and
+Otherwise, and wherever numba is held to one thread (:func:`two_threads`), the level runs in one
+thread with the same kernels, which give pyamg's sweep and
 SciPy's products bit for bit (tested). Partial results never cross threads within a step and
 the coupling is read before the sweep, so the cycle does not depend on thread timing. Each
 kernel has a plain-Python twin (``*_reference``) that it is tested against.
@@ -131,6 +132,12 @@ def product_reference(indptr, indices, data, x, y, b, lo, hi, mode):
 
 
 # ------------------------------------------------------------------------------- the split
+def two_threads() -> bool:
+    """Whether a second thread may run kernels: not where numba is held to one thread (the
+    command line does that under an address-space limit, where every thread reserves memory)."""
+    return numba.config.NUMBA_NUM_THREADS >= 2
+
+
 def halves(indptr) -> tuple:
     """Row ranges ``(0, mid), (mid, n)`` of about equal entries."""
     n = indptr.size - 1
@@ -141,7 +148,7 @@ def halves(indptr) -> tuple:
 def split_rows(A) -> tuple | None:
     """The two row blocks of level matrix ``A`` (CSR) and the rows of each that reach into
     the other, or None when the level should stay in one thread (see the module notes)."""
-    if A.nnz < SPLIT_MIN_NONZEROS:
+    if A.nnz < SPLIT_MIN_NONZEROS or not two_threads():
         return None
     blocks = halves(A.indptr)
     mid, split_at = blocks[1][0], int(A.indptr[blocks[1][0]])

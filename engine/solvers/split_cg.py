@@ -5,8 +5,8 @@ Methods for Sparse Linear Systems*, 2nd ed., SIAM 2003, Algorithm 9.1), as SciPy
 it, with the matrix-vector product, the vector updates and the inner products fused into three
 kernels that each run on two blocks of rows at once (the kernels release the GIL): ``q = A p``
 with ``p . q``; ``x += alpha p``, ``r -= alpha q`` with ``r . r``; and ``p = z + beta p``
-after ``r . z``. A matrix under :data:`SPLIT_MIN_NONZEROS` entries runs in one block, in this
-thread. Each block's partial sums are added in a fixed order, so the iterates do not depend on
+after ``r . z``. A matrix under :data:`SPLIT_MIN_NONZEROS` entries, or any where numba is held to one thread,
+runs in one block, in this thread. Each block's partial sums are added in a fixed order, so the iterates do not depend on
 thread timing. On a 1000 x 1000 lattice the work around the preconditioner fell from 8 ms to
 3 ms per iteration (benchmarks/README.md).
 
@@ -21,7 +21,7 @@ from concurrent.futures import ThreadPoolExecutor
 import numba
 import numpy as np
 
-from .amg_cycle import SPLIT_MIN_NONZEROS, halves
+from .amg_cycle import SPLIT_MIN_NONZEROS, halves, two_threads
 
 
 # ------------------------------------------------------------------------------------ kernels
@@ -146,7 +146,7 @@ def conjugate_gradient(A, b, precondition, *, x0=None, target: float,
         the true residual).
     """
     n = b.size
-    blocks = halves(A.indptr) if A.nnz >= SPLIT_MIN_NONZEROS else ((0, n),)
+    blocks = halves(A.indptr) if A.nnz >= SPLIT_MIN_NONZEROS and two_threads() else ((0, n),)
     x = np.zeros(n) if x0 is None else np.array(x0, dtype=np.float64)
     q = np.empty(n)
     with ThreadPoolExecutor(1) as helper:
