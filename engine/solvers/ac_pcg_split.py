@@ -19,25 +19,7 @@ from concurrent.futures import ThreadPoolExecutor
 import numba
 import numpy as np
 
-
-@numba.njit(cache=True, nogil=True)
-def direction_kernel(z, p, beta, lo, hi):
-    """``p = z + beta p`` on rows ``lo:hi``."""
-    for i in range(lo, hi):
-        p[i] = z[i] + beta * p[i]
-
-
-@numba.njit(cache=True, nogil=True)
-def matvec_kernel(indptr, indices, data, p, q, lo, hi):
-    """``q = A p`` on rows ``lo:hi``; returns their share of ``p . q``."""
-    pq = 0.0
-    for i in range(lo, hi):
-        total = 0.0
-        for e in range(indptr[i], indptr[i + 1]):
-            total += data[e] * p[indices[e]]
-        q[i] = total
-        pq += p[i] * total
-    return pq
+from .split_cg import direction_kernel, product_dot_kernel
 
 
 @numba.njit(cache=True, nogil=True)
@@ -153,7 +135,7 @@ class SplitPcg:
 
     def _half_product(self, z, p, q, beta, lo, hi):
         direction_kernel(z, p, beta, lo, hi)
-        return matvec_kernel(*self.permuted, p, q, lo, hi)
+        return product_dot_kernel(*self.permuted, p, q, lo, hi)
 
     def run(self, b, x, target, max_iterations) -> int:
         """As :func:`.ac_cg.pcg_kernel`: ``x`` updated in place; returns the iterations."""
@@ -162,8 +144,8 @@ class SplitPcg:
         buffers = (np.empty(n - self.cut), np.empty(n - self.cut))
         with ThreadPoolExecutor(1) as pool:
             # r = b - A x: q = A x, then the update with alpha = 1 and p = 0
-            self._both(pool, matvec_kernel, *self.permuted, x, q)
-            matvec_kernel(*self.permuted, x, q, self.cut, n)
+            self._both(pool, product_dot_kernel, *self.permuted, x, q)
+            product_dot_kernel(*self.permuted, x, q, self.cut, n)
             norm2 = self._precondition(pool, 1.0, p, q, np.zeros(n), r, z, buffers)
             if np.sqrt(norm2) <= target:
                 return 0
@@ -172,7 +154,7 @@ class SplitPcg:
             for iteration in range(1, max_iterations + 1):
                 direction_kernel(z, p, beta, self.cut, n)
                 pq = self._both(pool, self._half_product, z, p, q, beta)
-                pq += matvec_kernel(*self.permuted, p, q, self.cut, n)
+                pq += product_dot_kernel(*self.permuted, p, q, self.cut, n)
                 if pq <= 0.0:
                     return iteration
                 alpha = rho / pq
