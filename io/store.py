@@ -373,7 +373,10 @@ def solution_file(path, network: Network, report=None, *, force: bool = False,
     ``extra`` datasets given here, such as ratings and the node table) in a thread of its own;
     the block must end with :meth:`SolutionWriter.finish`. Leaving the block by an exception
     (a failed solve, an interrupt) stops the writer after its current dataset and removes the
-    temporary file (:func:`ohmgraph.io.atomic.atomic_output`).
+    temporary file (:func:`ohmgraph.io.atomic.atomic_output`). With ``after`` (a
+    :class:`concurrent.futures.Future`, such as the input's SHA-256 being computed) the writer
+    starts once it is done, so that the two take turns on one core instead of taking the
+    solver's.
 
     Raises
     ------
