@@ -161,6 +161,10 @@ def test_amg_cg_solves_with_the_split_cycle_as_before(split_everywhere):
     assert info.converged and info.relative_residual <= 1e-10
     assert np.linalg.norm(b - A @ x) <= 1e-10 * np.linalg.norm(b)
     np.testing.assert_allclose(x, spla.spsolve(A.tocsc(), b), rtol=1e-7, atol=1e-9)
+    # between solves the cycle holds no work vectors; the next solve makes them again
+    assert all(level.x is None for level in solver._cycle._levels)
+    again, info = solver.solve(b)
+    np.testing.assert_array_equal(again, x)
 
 
 def test_one_thread_where_numba_is_held_to_one(split_everywhere, monkeypatch):

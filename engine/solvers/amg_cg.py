@@ -138,7 +138,10 @@ class AmgCgSolver(SPDSolver):
                                   max_iterations=self.max_iterations)
 
     def _solve(self, b, x0=None):
-        return column_by_column(self._solve_column, b, x0)
+        try:
+            return column_by_column(self._solve_column, b, x0)
+        finally:
+            self._cycle.release()          # the cycle's work vectors, until the next solve
 
 
 def _rebuilt(matrix, arrays: dict):
