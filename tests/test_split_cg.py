@@ -79,3 +79,13 @@ def test_a_zero_right_hand_side_and_the_iteration_limit():
     assert iterations == 3 and len(counted) == 3
     assert np.linalg.norm(b - A @ x) < np.linalg.norm(b)
     assert amg_cycle.SPLIT_MIN_NONZEROS > A.nnz        # the small system ran in one block
+
+
+def test_a_start_that_is_not_finite_ends_at_once():
+    A = grounded_lattice(10, seed=8)
+    cycle = VCycle(hierarchy_of(A))
+    b = np.ones(A.shape[0])
+    start = np.zeros(A.shape[0])
+    start[3] = np.nan
+    x, iterations = conjugate_gradient(A, b, cycle, x0=start, target=1e-10, max_iterations=500)
+    assert iterations == 0 and np.isnan(x[3])

@@ -143,7 +143,8 @@ def conjugate_gradient(A, b, precondition, *, x0=None, target: float,
     x : ndarray
     iterations : int
         Iterations run (the last one may have stopped short of ``target``: the caller measures
-        the true residual).
+        the true residual). A residual that is not finite (a start or a matrix holding NaN or
+        infinity) ends the loop at once instead of after ``max_iterations``.
     """
     n = b.size
     blocks = halves(A.indptr) if A.nnz >= SPLIT_MIN_NONZEROS and two_threads() else ((0, n),)
@@ -157,7 +158,8 @@ def conjugate_gradient(A, b, precondition, *, x0=None, target: float,
         else:
             run(product_dot_kernel, indptr, indices, data, x, q)
             r = b - q
-        if math.sqrt(run(dot_kernel, r, r)) <= target:
+        norm = math.sqrt(run(dot_kernel, r, r))
+        if norm <= target or not math.isfinite(norm):      # done, or nothing to iterate on
             return x, 0
         z = np.asarray(precondition(r), dtype=np.float64).ravel()
         p = z.copy()
@@ -168,7 +170,7 @@ def conjugate_gradient(A, b, precondition, *, x0=None, target: float,
             rr = run(update_kernel, alpha, p, q, x, r)
             if callback is not None:
                 callback(x)
-            if math.sqrt(rr) <= target:
+            if math.sqrt(rr) <= target or not math.isfinite(rr):
                 return x, iteration
             z = np.asarray(precondition(r), dtype=np.float64).ravel()
             rz_next = run(dot_kernel, r, z)
