@@ -34,6 +34,8 @@ import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 from threadpoolctl import ThreadpoolController
 
+from .split_cg import conjugate_gradient
+
 DEFAULT_RTOL = 1e-10
 DIRECT_RESIDUAL_LIMIT = 1e-8
 
@@ -227,8 +229,6 @@ class SPDSolver(ABC):
         The returned :class:`SolveInfo` holds the residual measured against ``matrix``; its
         ``converged`` says whether ``rtol`` was met (the caller decides what to do otherwise).
         """
-        from .split_cg import conjugate_gradient
-
         b = np.asarray(b, dtype=np.float64)
         iterations = 0
         start = time.perf_counter()
