@@ -133,6 +133,7 @@ def _no_room_to_load(error: Exception) -> bool:
 def _run(args) -> int:
     import numpy as np          # here, not at the top: signals are handled before heavy imports
 
+    interrupts.connect_workers()      # the command's modules are loaded by now
     try:
         # Overflow in extreme values shows in the residual checks and ends as a message and an
         # exit code; NumPy's floating-point warnings would only add noise to standard error.

@@ -49,6 +49,7 @@ class Interrupted(KeyboardInterrupt):
 class _State:
     received: int | None = None      # first signal of the run
     deferring: int = 0               # depth of nested deferred() blocks
+    raised_again: bool = False       # pending() has handed the interrupt out once more
 
 
 def _raise_once() -> None:
@@ -60,8 +61,36 @@ def _raise_once() -> None:
 def _handler(signum, frame) -> None:
     if _State.received is None:
         _State.received = signum
-    if not _State.deferring:
+    if not _State.deferring and not _compiler_locks_held():
         _raise_once()
+
+
+def _compiler_locks_held() -> bool:
+    """Whether the main thread holds numba's compiler lock or llvmlite's library lock (it is
+    loading or compiling a kernel). An exception raised there can leave the lock held for good
+    — between its ``acquire`` and the ``with`` block, or where the library swallows it — and
+    every other thread that then loads a kernel waits for ever (seen: a solve's worker and its
+    helper thread, with the main thread waiting for them). The signal is then only recorded:
+    :func:`pending` hands it to the next wait for a worker, or the run ends as interrupted."""
+    try:
+        compiler = sys.modules.get("numba.core.compiler_lock")
+        if compiler is not None and compiler.global_compiler_lock.is_locked():
+            return True
+        ffi = sys.modules.get("llvmlite.binding.ffi")
+        return bool(ffi is not None and ffi.lib._lock._lock._is_owned())
+    except Exception:          # noqa: BLE001 -- another numba or llvmlite: raise as usual
+        return False
+
+
+def pending() -> Interrupted | None:
+    """The run's interrupt, once, when a signal arrived but its exception did not end the run
+    (it was recorded while a compiler lock was held, or a library swallowed it), for a wait
+    that must not go on (:func:`ohmgraph.engine.solvers.base.in_worker`)."""
+    if _State.received is None or _State.raised_again:
+        return None
+    _State.raised_again = True
+    _State.deferring += 1           # as for the handler's own raise: clean-up is not cut short
+    return Interrupted(_State.received)
 
 
 def _quiet_unraisable(previous):
@@ -75,7 +104,7 @@ def _quiet_unraisable(previous):
 @contextlib.contextmanager
 def handling():
     """Turn SIGINT and SIGTERM into :class:`Interrupted` inside the block; restore afterwards."""
-    _State.received, _State.deferring = None, 0
+    _State.received, _State.deferring, _State.raised_again = None, 0, False
     previous = {signum: signal.signal(signum, _handler) for signum in SIGNALS}
     previous_hook = sys.unraisablehook
     sys.unraisablehook = _quiet_unraisable(previous_hook)
@@ -85,6 +114,20 @@ def handling():
         for signum, handler in previous.items():
             signal.signal(signum, handler)
         sys.unraisablehook = previous_hook
+        _connect_workers(None)
+
+
+def connect_workers() -> None:
+    """Let the engine's waits for a worker thread (:func:`ohmgraph.engine.solvers.base.
+    in_worker`) end on an interrupt that :func:`pending` still holds, when the engine is
+    loaded (it is not imported here: commands that never solve start faster without it)."""
+    _connect_workers(pending)
+
+
+def _connect_workers(check) -> None:
+    base = sys.modules.get("ohmgraph.engine.solvers.base")
+    if base is not None:
+        base.interrupt_check = check
 
 
 def received() -> Interrupted | None:

@@ -122,3 +122,53 @@ def test_a_signal_ends_the_wait_for_a_worker_at_once():
             break
         threading.Event().wait(0.05)
     assert not workers_unfinished()
+
+
+def test_a_signal_while_a_kernel_loads_is_held_then_ends_the_next_wait():
+    """A signal that arrives while the main thread holds numba's compiler lock or llvmlite's
+    library lock is only recorded (an exception there can leave the lock held, and a solver
+    thread loading a kernel then waits for ever); the next wait for a worker ends on it."""
+    import threading
+    import time
+
+    import numba.core.compiler_lock as compiler_lock
+    from llvmlite.binding import ffi
+
+    from ohmgraph.engine.solvers import base
+    from ohmgraph.io import interrupts
+
+    for lock in (compiler_lock.global_compiler_lock, ffi.lib._lock):
+        with interrupts.handling():
+            interrupts.connect_workers()
+            with lock:
+                os.kill(os.getpid(), signal.SIGINT)
+                time.sleep(0.05)                 # the handler runs here, and raises nothing
+                assert interrupts.received() is not None
+            release = threading.Event()
+            start = time.perf_counter()
+            with pytest.raises(KeyboardInterrupt):
+                base.in_worker(release.wait, 30)
+            assert time.perf_counter() - start < 5       # one poll, not the worker's 30 s
+            release.set()
+            assert interrupts.pending() is None          # handed out once
+        assert base.interrupt_check is None              # disconnected with the handlers
+
+
+def test_an_interrupt_handed_out_by_pending_does_not_come_back_in_clean_up():
+    """After the wait raised it, clean-up code under ``deferred()`` runs to its end (as after
+    the handler's own raise), inside the run and after it."""
+    import time
+
+    import numba.core.compiler_lock as compiler_lock
+
+    from ohmgraph.io import interrupts
+
+    with interrupts.handling():
+        with compiler_lock.global_compiler_lock:
+            os.kill(os.getpid(), signal.SIGINT)
+            time.sleep(0.05)                      # the handler runs here and only records it
+        assert isinstance(interrupts.pending(), interrupts.Interrupted)
+        with interrupts.deferred():
+            pass                                  # no second raise here
+    with interrupts.deferred():
+        pass                                      # nor after the run

@@ -59,6 +59,9 @@ WORKER_MIN_UNKNOWNS = 20_000
 
 
 _UNFINISHED: set = set()          # completion events of workers not finished yet
+# Set by the command line (io/interrupts.py): a function returning an exception that must end
+# a wait for a worker (an interrupt whose own exception did not end the run), or None.
+interrupt_check = None
 
 
 def in_worker(function, *args):
@@ -85,7 +88,9 @@ def in_worker(function, *args):
     _UNFINISHED.add(finished)
     threading.Thread(target=work, name="ohmgraph-solver", daemon=True).start()
     while not finished.wait(WORKER_POLL):
-        pass
+        error = interrupt_check() if interrupt_check is not None else None
+        if error is not None:
+            raise error
     if "error" in outcome:
         raise outcome["error"]
     return outcome["value"]
