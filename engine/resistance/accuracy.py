@@ -78,6 +78,26 @@ def edge_energies_reference(a, b, g, x) -> np.ndarray:
     return np.array([math.fsum(terms[:, j]) for j in range(x.shape[1])])
 
 
+def incidence_matrix(a: np.ndarray, b: np.ndarray, n_unknowns: int) -> sp.csr_matrix:
+    """The branch-unknown incidence matrix in CSR form: row ``i`` holds ``+1`` at ``a[i]`` and
+    ``-1`` at ``b[i]``, each only where it is an unknown (``>= 0``; ``a[i] != b[i]``).
+
+    Built row by row without SciPy's coordinate format, whose conversion sorts (0.5-0.7 s
+    against 0.05 s for 2·10^6 branches); the stored order within a row (``a`` then ``b``) does
+    not change any product, a row having at most two entries.
+    """
+    live_a, live_b = a >= 0, b >= 0
+    indptr = np.zeros(a.size + 1, np.int64)
+    np.cumsum(live_a.astype(np.int64) + live_b, out=indptr[1:])
+    indices = np.empty(indptr[-1], np.int64)
+    data = np.empty(indptr[-1])
+    first = indptr[:-1]
+    indices[first[live_a]], data[first[live_a]] = a[live_a], 1.0
+    second = first + live_a
+    indices[second[live_b]], data[second[live_b]] = b[live_b], -1.0
+    return sp.csr_matrix((data, indices, indptr), shape=(a.size, n_unknowns))
+
+
 class ResidualMeter:
     """Edge-by-edge residuals and energies of a grounded Laplacian system, with their rounding
     bounded (module notes).
@@ -96,16 +116,11 @@ class ResidualMeter:
         self.n = n_unknowns
         self.a = np.where(a >= 0, a, n_unknowns)          # row n: the ground, a row of zeros
         self.b = np.where(b >= 0, b, n_unknowns)
-        rows = np.concatenate([np.arange(m), np.arange(m)])
-        cols = np.concatenate([a, b])
-        signs = np.concatenate([np.ones(m), -np.ones(m)])
-        live = cols >= 0
-        self.incidence = sp.csr_matrix((signs[live], (rows[live], cols[live])),
-                                       shape=(m, n_unknowns))
+        self.incidence = incidence_matrix(a, b, n_unknowns)
         self.incidence_t = self.incidence.T.tocsr()
         self.magnitude_t = abs(self.incidence_t)
         self.conductance = np.ascontiguousarray(conductance, dtype=np.float64)
-        degree = np.bincount(cols[live], minlength=n_unknowns)
+        degree = np.diff(self.incidence_t.indptr)
         self.rounding = gamma(degree + 3) * MARGIN
         # Energy: four roundings per term, then compensated summation of m terms.
         self.energy_rounding = (gamma(4) + 2.0 * UNIT_ROUNDOFF
