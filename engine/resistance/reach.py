@@ -50,8 +50,9 @@ from .accuracy import UNIT_ROUNDOFF, gamma
 # Trailing columns of L solved as one dense block for all pairs at once (every pair's path ends
 # there). On the 10^6-node lattice the last 3,000 columns hold 57 % of each pair's work; as a
 # dense square they take 72 MB and one BLAS solve per block of pairs (CPU 2.1 s instead of 4.3 s
-# for 1,000 pairs).
-DENSE_TOP = 3000
+# for 1,000 pairs). 4,000 columns (128 MB) took the forward solves of 1,000 pairs from 3.3 s to
+# 2.6 s on 2 threads (5,000: 2.4-2.5 s, 200 MB; 8,000: 3.0 s; 2,000: 5.0 s).
+DENSE_TOP = 4000
 
 
 @numba.njit(cache=True)
