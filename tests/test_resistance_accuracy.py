@@ -26,11 +26,12 @@ from fractions import Fraction
 import mpmath
 import numpy as np
 import pytest
+import scipy.sparse as sp
 
 from ohmgraph.engine import Network
 from ohmgraph.engine.resistance import ResistanceSolver
 from ohmgraph.engine.resistance.accuracy import (UNIT_ROUNDOFF, ResidualMeter, edge_energies,
-                                                 edge_energies_reference)
+                                                 edge_energies_reference, incidence_matrix)
 from ohmgraph.io.cli import main
 
 M, N = 60, 80            # nodes along the first and the second axis
@@ -170,3 +171,17 @@ def test_residual_and_energy_roundings_are_bounded(seed):
         dx = sum(Fraction(float(rhs[i, j])) * xf[i] for i in range(n))
         truth = 2 * dx - energy                     # d^T x + x^T r, exactly
         assert abs(Fraction(float(values[j])) - truth) <= Fraction(float(rounding[j]))
+
+
+@pytest.mark.parametrize("seed", [4, 5])
+def test_incidence_matrix_matches_the_coordinate_construction(seed):
+    a, b, _, x = random_edges(seed)
+    n, m = x.shape[0], a.size
+    rows, cols = np.concatenate([np.arange(m), np.arange(m)]), np.concatenate([a, b])
+    signs = np.concatenate([np.ones(m), -np.ones(m)])
+    live = cols >= 0
+    reference = sp.csr_matrix((signs[live], (rows[live], cols[live])), shape=(m, n))
+    built = incidence_matrix(a, b, n)
+    assert built.shape == reference.shape and built.nnz == reference.nnz
+    assert abs(built - reference).max() == 0
+    assert np.any(a < 0) or np.any(b < 0)              # grounded ends were exercised
