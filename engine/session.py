@@ -6,7 +6,8 @@ owns, for one symmetric positive-definite matrix:
 
 * the method choice (``auto`` asks :func:`ohmgraph.engine.solvers.choice.choose`, which knows how
   many right-hand sides are coming, and may switch an iterative set-up to a factorisation when a
-  larger query arrives);
+  larger query arrives, or during a query when the iterative solves measured so far show a
+  factorisation cheaper for the rest of it: :func:`~.solvers.choice.direct_for_the_rest`);
 * the set-up, done once and reused for every right-hand side;
 * the convergence check: every returned vector has a measured relative residual
   ``||A x - b|| / ||b|| <= rtol`` (a factorisation is held to ``max(rtol, 1e-8)``);
@@ -36,7 +37,7 @@ import scipy.sparse as sp
 
 from .memory import default_memory_budget
 from .solvers import DEFAULT_RTOL, SOLVERS, SolveInfo, SolverFailed, SPDSolver, shortfall
-from .solvers.choice import choose, direct_fallback_allowed
+from .solvers.choice import choose, direct_fallback_allowed, direct_for_the_rest
 from .solvers.kept import KeptSetup, fingerprint, mismatch
 
 
@@ -129,6 +130,8 @@ class SolveSession:
         self.placement = placement
         self._kept = None         # the kept set-up, while it fits and has not failed
         self._adopted: KeptSetup | None = None      # the kept set-up the back end was built from
+        self._query = 0           # right-hand sides announced by the last expect() ...
+        self._query_solved = 0    # ... and solved since
         if kept is not None:
             self._consider(kept)
 
@@ -170,8 +173,10 @@ class SolveSession:
         """Set up for a query of ``solves`` right-hand sides.
 
         With ``auto`` the choice may switch an iterative set-up to a factorisation for a larger
-        query (never back: a factorisation serves every later query).
+        query (never back: a factorisation serves every later query). During the query, ``auto``
+        re-decides after every solve from the measured pace (module notes).
         """
+        self._query, self._query_solved = max(int(solves), 1), 0
         if self._solver is None and self._kept is not None:
             self._set_up_kept(solves)
             return
@@ -263,7 +268,7 @@ class SolveSession:
                 f"{info.iterations} iterations (rtol {self.rtol:g}); set up afresh")
             self.stats.solve_seconds += info.solve_seconds
             self._solver = self._adopted = None
-            self.expect(1 if b.ndim == 1 else b.shape[1])
+            self.expect(max(self._query - self._query_solved, 1 if b.ndim == 1 else b.shape[1]))
             x, info = self._solver.solve(b, x0)
         if not info.converged and self._solver.method != "direct":
             allowed, why, self._analysis = direct_fallback_allowed(
@@ -280,7 +285,28 @@ class SolveSession:
         if not info.converged:
             raise SolverFailed(shortfall(info, self.rtol), info)
         self._record(b, info)
+        self._reconsider(1 if b.ndim == 1 else b.shape[1], info.solve_seconds)
         return x
+
+    def _reconsider(self, columns: int, seconds: float) -> None:
+        """With ``auto`` and an iterative back end, switch to a factorisation when the rest of
+        the announced query, at the pace just measured, is predicted dearer than factorising
+        (:func:`~.solvers.choice.direct_for_the_rest`)."""
+        self._query_solved += columns
+        remaining = self._query - self._query_solved
+        if self.requested != "auto" or self._solver.method == "direct" or remaining <= 0:
+            return
+        start = time.perf_counter()
+        switch, reason, predicted, self._analysis = direct_for_the_rest(
+            self.matrix, seconds / columns * remaining, remaining, self.memory_budget,
+            self._analysis)
+        self.stats.setup_seconds += time.perf_counter() - start
+        if switch:
+            self.stats.notes.append(f"switched to direct after {self._query_solved} of "
+                                    f"{self._query} right-hand sides: {reason}")
+            self.stats.predicted.update(predicted)
+            self._solver = None                  # its memory is free before the factor's
+            self._set_up("direct", f"measured pace: {reason}")
 
     def solve_nearby(self, matrix, b: np.ndarray, x0: np.ndarray | None = None) -> np.ndarray:
         """Solve ``matrix @ x = b`` (one column) for a matrix near this session's one, such as

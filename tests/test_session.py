@@ -17,12 +17,15 @@ import scipy.sparse.linalg as spla
 from conftest import BACK_ENDS
 
 import ohmgraph.engine.session as session_module
+import ohmgraph.engine.solvers.choice as choice_module
 from ohmgraph.engine import (Network, ResistanceSolver, SolverFailed, SolveSession,
                              build_model, diagnose, kron_reduction, monte_carlo, solve,
                              tolerance_spread)
 from ohmgraph.engine.readings.model import Readings
 from ohmgraph.engine.readings.sensitivity import resistance_sensitivity, resistor_candidates
 from ohmgraph.engine.solvers import SOLVERS, SPDSolver
+from ohmgraph.engine.solvers.choice import Choice
+from ohmgraph.engine.solvers.symbolic import column_counts
 from reference_mna import mna_solve
 
 RTOL = 1e-10
@@ -244,3 +247,85 @@ def test_on_solved_counts_every_proven_right_hand_side():
     session.solve(np.ones(50))
     session.solve(np.ones((50, 7)))
     assert counted == [1, 7] and session.stats.solves == 8
+
+
+def _lattice(side: int = 60) -> sp.csr_matrix:
+    """A grounded lattice Laplacian (1 S branches, a small conductance to ground everywhere)."""
+    laplacian = nx.laplacian_matrix(nx.grid_2d_graph(side, side)).astype(float)
+    return sp.csr_matrix(laplacian + 1e-2 * sp.eye(side * side))
+
+
+def _iterative_first(monkeypatch, method: str = "ac-cg"):
+    """Make ``auto``'s first choice ``method``, whatever the predictions say, so that only the
+    re-decision from measured solves can bring in a factorisation."""
+    real = session_module.choose
+
+    def first_choice(matrix, solves, *args, **kwargs):
+        choice = real(matrix, solves, *args, **kwargs)
+        return Choice(method, "forced by the test", choice.predicted, choice.analysis)
+
+    monkeypatch.setattr(session_module, "choose", first_choice)
+
+
+def test_auto_switches_to_direct_when_the_measured_pace_is_slower(monkeypatch):
+    # a factorisation predicted free: any measured iterative pace is dearer
+    for name in ("ANALYSIS_SECONDS_PER_ENTRY", "FACTOR_SECONDS_PER_FLOP",
+                 "FACTOR_SECONDS_PER_ENTRY", "SOLVE_SECONDS_PER_FACTOR_ENTRY",
+                 "SOLVE_SECONDS_PER_UNKNOWN"):
+        monkeypatch.setattr(choice_module, name, 0.0)
+    _iterative_first(monkeypatch)
+    matrix = _lattice()
+    session = SolveSession(matrix, "auto", RTOL)
+    session.expect(40)
+    rng = np.random.default_rng(1)
+    first = rng.standard_normal(matrix.shape[0])
+    x = session.solve(first)
+    assert session.method == "direct" and session.stats.reason.startswith("measured pace")
+    assert any(note.startswith("switched to direct after 1 of 40 right-hand sides")
+               for note in session.stats.notes)
+    assert session.stats.predicted["reconsidered_remaining"] == 39
+    block = rng.standard_normal((matrix.shape[0], 39))
+    y = session.solve(block)
+    assert session.method == "direct" and session.stats.solves == 40
+    # every vector handed out is proven, before and after the switch
+    assert np.linalg.norm(matrix @ x - first) <= RTOL * np.linalg.norm(first)
+    assert np.all(np.linalg.norm(matrix @ y - block, axis=0)
+                  <= RTOL * np.linalg.norm(block, axis=0))
+
+
+def test_auto_keeps_the_iterative_back_end_when_a_factorisation_is_dearer(monkeypatch):
+    monkeypatch.setattr(choice_module, "FACTOR_SECONDS_PER_ENTRY", 1.0)   # 18,000 s predicted
+    _iterative_first(monkeypatch)
+    matrix = _lattice()
+    session = SolveSession(matrix, "auto", RTOL)
+    session.expect(40)
+    session.solve(np.ones(matrix.shape[0]))
+    session.solve(np.ones((matrix.shape[0], 39)))
+    assert session.method == "ac-cg" and session.stats.solves == 40
+    assert not any("switched" in note for note in session.stats.notes)
+
+
+def test_a_query_without_more_right_hand_sides_is_not_reconsidered(monkeypatch):
+    for name in ("FACTOR_SECONDS_PER_FLOP", "FACTOR_SECONDS_PER_ENTRY"):
+        monkeypatch.setattr(choice_module, name, 0.0)
+    _iterative_first(monkeypatch)
+    matrix = _lattice()
+    session = SolveSession(matrix, "auto", RTOL)
+    session.solve(np.ones((matrix.shape[0], 3)))   # the whole query in one block
+    assert session.method == "ac-cg"
+
+
+def test_direct_for_the_rest_weighs_the_measured_pace_against_the_prediction():
+    matrix = _lattice(30)
+    analysis = column_counts(matrix)
+    direct_s, direct_b = choice_module.direct_prediction(matrix, analysis.factor_nonzeros,
+                                                         analysis.flops, 10)
+    margin = choice_module.RECONSIDER_MARGIN
+    switch, reason, predicted, _ = choice_module.direct_for_the_rest(
+        matrix, 1.01 * margin * direct_s, 10, 1e12, analysis)
+    assert switch and "remaining 10 right-hand side(s)" in reason
+    assert predicted["direct_seconds_for_the_rest"] == pytest.approx(direct_s)
+    assert not choice_module.direct_for_the_rest(matrix, 0.99 * margin * direct_s, 10, 1e12,
+                                                 analysis)[0]
+    assert not choice_module.direct_for_the_rest(matrix, 1e9, 10, 0.5 * direct_b, analysis)[0]
+    assert not choice_module.direct_for_the_rest(matrix, 1e9, 0, 1e12, analysis)[0]

@@ -31,6 +31,13 @@ on at least ``SCREEN_MIN_UNKNOWNS`` unknowns, neither the screen nor the analysi
 The choice is a :class:`Choice`: the method, the reason in words and the numbers behind it, so a
 caller can show and store why a method was used.
 
+A prediction can miss: an iterative back end's iterations and cost per iteration depend on the
+graph more than its entries say. :func:`direct_for_the_rest` therefore re-decides during a long
+query, from the iterative back end's MEASURED seconds per right-hand side: when a factorisation
+(analysis, factorisation and the remaining solves, by the same calibration) is predicted
+``RECONSIDER_MARGIN`` times cheaper than the rest of the query at that pace and fits the budget,
+the session switches (:meth:`ohmgraph.engine.session.SolveSession.solve`).
+
 Calibration
 -----------
 ``ac-cg`` (2026-12-03, same machine, process CPU seconds because the load average was 5 to 7):
@@ -120,6 +127,15 @@ SCREEN_SHARE = 0.1
 SCREEN_MIN_UNKNOWNS = 64_000
 SCREEN_MARGIN = 1.5
 SCREEN_BALLS = (64, 16)
+
+# Re-deciding during a query: the factorisation must be predicted this many times cheaper than
+# the rest of the query at the iterative back end's measured pace. Measured at 10^5 unknowns
+# (2026-12-03): a first one-column solve took 1.00-1.20x the seconds per column of the blocks
+# after it (ac-cg on a lattice, a small world and a scale-free graph; amg-cg on the lattice), and
+# direct's prediction came within 5 % of its measured time on the two graphs (117.7 s predicted
+# against 112.4 s, 99.9 against 98.3, 1,000 right-hand sides). A wrong switch can therefore cost
+# at most about 1.3x; a missed one cost 1.5-1.75x on those graphs.
+RECONSIDER_MARGIN = 1.1
 
 
 @dataclass(frozen=True)
@@ -374,6 +390,58 @@ def choose(matrix, solves: int = 1, memory_budget: float | None = None,
     return Choice(method, f"predicted {seconds:.3g} s against {direct_s:.3g} s for direct "
                   f"({solves} right-hand side(s), factor of {analysis.factor_nonzeros} entries)",
                   predicted, analysis)
+
+
+def direct_for_the_rest(matrix, measured_seconds: float, remaining: int,
+                        memory_budget: float | None = None,
+                        analysis: FactorAnalysis | None = None) -> tuple:
+    """Whether a factorisation should take over the rest of a query from an iterative back end.
+
+    Parameters
+    ----------
+    matrix : sparse matrix, shape (n, n)
+    measured_seconds : float
+        The rest of the query at the iterative back end's measured pace: its seconds per
+        right-hand side so far times ``remaining``.
+    remaining : int
+        Right-hand sides the query still has to solve.
+    memory_budget : float, optional
+        As :func:`choose`.
+    analysis : FactorAnalysis, optional
+        The symbolic analysis, when one was made; otherwise it is made here, but only when
+        even a factorisation's least cost (:func:`direct_floor`) is below the measured pace.
+
+    Returns
+    -------
+    switch : bool
+    reason : str
+        The numbers behind a switch (empty when there is none).
+    predicted : dict
+        Those numbers for the record (empty when the floor ruled a switch out).
+    analysis : FactorAnalysis or None
+        The analysis given or made here.
+    """
+    remaining = max(int(remaining), 0)
+    if remaining == 0:
+        return False, "", {}, analysis
+    extra = 0.0
+    if analysis is None:
+        if RECONSIDER_MARGIN * direct_floor(matrix, remaining) >= measured_seconds:
+            return False, "", {}, analysis
+        analysis = column_counts(matrix)
+        extra = ANALYSIS_SECONDS_PER_ENTRY * matrix.nnz      # already spent, but it was needed
+    direct_s, direct_b = direct_prediction(matrix, analysis.factor_nonzeros, analysis.flops,
+                                           remaining)
+    direct_s += extra
+    predicted = {"reconsidered_remaining": remaining,
+                 "measured_iterative_seconds": measured_seconds,
+                 "direct_seconds_for_the_rest": direct_s, "direct_bytes": direct_b}
+    if direct_b > _budget(memory_budget) or RECONSIDER_MARGIN * direct_s >= measured_seconds:
+        return False, "", predicted, analysis
+    return (True, f"the iterative solves so far take {measured_seconds:.3g} s at their measured "
+            f"pace for the remaining {remaining} right-hand side(s); direct is predicted "
+            f"{direct_s:.3g} s (factor of {analysis.factor_nonzeros} entries, "
+            f"{_gb(direct_b)})", predicted, analysis)
 
 
 def direct_fallback_allowed(matrix, memory_budget: float | None = None,
