@@ -329,3 +329,25 @@ def test_direct_for_the_rest_weighs_the_measured_pace_against_the_prediction():
                                                  analysis)[0]
     assert not choice_module.direct_for_the_rest(matrix, 1e9, 10, 0.5 * direct_b, analysis)[0]
     assert not choice_module.direct_for_the_rest(matrix, 1e9, 0, 1e12, analysis)[0]
+
+
+def test_pairs_after_auto_switches_are_solved_by_the_factorisation(monkeypatch):
+    for name in ("ANALYSIS_SECONDS_PER_ENTRY", "FACTOR_SECONDS_PER_FLOP",
+                 "FACTOR_SECONDS_PER_ENTRY", "SOLVE_SECONDS_PER_FACTOR_ENTRY",
+                 "SOLVE_SECONDS_PER_UNKNOWN"):
+        monkeypatch.setattr(choice_module, name, 0.0)
+    _iterative_first(monkeypatch, "amg-cg")
+    net = supplied_grid()
+    a = [f"n{r}_0" for r in range(8)] + ["n0_1", "n7_1"]          # 20 distinct terminals
+    b = [f"n{r}_8" for r in range(8)] + ["n0_7", "n7_7"]
+    solver = ResistanceSolver(net, "auto", RTOL)
+    result = solver.pairs(a, b)
+    assert result.method == "pair solves" and result.solves == 10
+    assert solver.stats.method == "direct"
+    assert any(note.startswith("switched to direct after 1 of 10") for note in solver.stats.notes)
+    index = {label: k for k, label in enumerate(net.node_labels)}
+    expected = [dense_resistance(net, index[p], index[q]) for p, q in zip(a, b)]
+    np.testing.assert_allclose(result.ohms, expected, rtol=1e-12)
+    # each bound holds, allowing for the dense pseudo-inverse's own rounding (up to 1e-14 here)
+    assert np.all(result.accuracy > 0) and np.all(result.accuracy < 1e-12)
+    assert np.all(np.abs(result.ohms - expected) <= (result.accuracy + 1e-13) * np.abs(expected))
