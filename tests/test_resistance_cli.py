@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 import math
+from pathlib import Path
 
 import h5py
 import numpy as np
@@ -105,6 +106,11 @@ def test_many_pairs_state_bounds_rounded_up_to_two_digits(lattice, tmp_path, cap
     assert all(len(t.split("e")[0].replace(".", "").lstrip("0")) <= 2 for t in text)
     stated = text.astype(float).to_numpy()
     assert np.all(stated >= summary["factor_delta"]) and stated.max() < 1e-8
+    # the stored table says which back end did the work, why, and what it reached
+    stored = json.loads(Path(f"{out}.provenance.json").read_text())["summary"]
+    assert stored["solver_method"] == "direct" and stored["solver_reason"] == "asked for"
+    assert stored["solver_solves"] == summary["solves"]
+    assert 0 < stored["solver_max_relative_residual"] <= 1e-10
 
 
 def test_to_reference_and_across_resistors(small, capsys):

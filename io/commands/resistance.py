@@ -197,6 +197,18 @@ def _solver_summary(solver) -> dict:
     return asdict(solver.stats)
 
 
+def _solver_attributes(stats: dict | None) -> dict:
+    """The solve session's statistics as flat ``solver_*`` attributes for the stored table:
+    the back end, why it was used, its notes (joined by "; ") and its numbers."""
+    flat = {}
+    for key, value in (stats or {}).items():
+        if isinstance(value, list):
+            value = "; ".join(map(str, value))
+        if isinstance(value, (int, float, str, bool)):
+            flat[f"solver_{key}"] = value
+    return flat
+
+
 def _between(args, net, solver) -> int:
     a_idx = _nodes(args, net, [args.between[0]], "--between")
     b_idx = _nodes(args, net, [args.between[1]], "--between")
@@ -302,6 +314,7 @@ def _emit_table(args, columns: dict, summary: dict) -> int:
     """Write the table to ``-o`` (summary to standard output) or print it as CSV."""
     if args.output is not None:
         attributes = {k: v for k, v in summary.items() if isinstance(v, (int, float, str, bool))}
+        attributes.update(_solver_attributes(summary.get("solver")))
         write_result_table(args.output, "resistance", columns, full_precision=args.full_precision,
                            force=args.force, attrs=attributes,
                            sources={"network": args.network,
