@@ -132,6 +132,10 @@ class SolveSession:
         self._adopted: KeptSetup | None = None      # the kept set-up the back end was built from
         self._query = 0           # right-hand sides announced by the last expect() ...
         self._query_solved = 0    # ... and solved since
+        # Called with the reason when a switch to a factorisation decided during a query (auto)
+        # is about to be set up, at the start of the next solve: callers may say so.
+        self.on_switch = None
+        self._pending_switch: tuple[str, str] | None = None    # (note, reason)
         if kept is not None:
             self._consider(kept)
 
@@ -177,6 +181,7 @@ class SolveSession:
         re-decides after every solve from the measured pace (module notes).
         """
         self._query, self._query_solved = max(int(solves), 1), 0
+        self._pending_switch = None      # decided for the last query; this one is chosen anew
         if self._solver is None and self._kept is not None:
             self._set_up_kept(solves)
             return
@@ -259,6 +264,7 @@ class SolveSession:
             When no allowed back end reaches ``rtol``; the message gives the residual reached.
         """
         b = np.asarray(b, dtype=np.float64)
+        self._switch_if_pending()
         if self._solver is None:
             self.expect(1 if b.ndim == 1 else b.shape[1])
         x, info = self._solver.solve(b, x0)
@@ -289,9 +295,11 @@ class SolveSession:
         return x
 
     def _reconsider(self, columns: int, seconds: float) -> None:
-        """With ``auto`` and an iterative back end, switch to a factorisation when the rest of
-        the announced query, at the pace just measured, is predicted dearer than factorising
-        (:func:`~.solvers.choice.direct_for_the_rest`)."""
+        """With ``auto`` and an iterative back end, decide to switch to a factorisation when the
+        rest of the announced query, at the pace just measured, is predicted dearer than
+        factorising (:func:`~.solvers.choice.direct_for_the_rest`). The factorisation is set up
+        at the start of the next solve, so that this solve's time stays its own (callers time
+        their first block to plan) and nothing is factorised for a query that ends here."""
         self._query_solved += columns
         remaining = self._query - self._query_solved
         if self.requested != "auto" or self._solver.method == "direct" or remaining <= 0:
@@ -302,11 +310,26 @@ class SolveSession:
             self._analysis)
         self.stats.setup_seconds += time.perf_counter() - start
         if switch:
-            self.stats.notes.append(f"switched to direct after {self._query_solved} of "
-                                    f"{self._query} right-hand sides: {reason}")
             self.stats.predicted.update(predicted)
-            self._solver = None                  # its memory is free before the factor's
-            self._set_up("direct", f"measured pace: {reason}")
+            self._pending_switch = (f"switched to direct after {self._query_solved} of "
+                                    f"{self._query} right-hand sides: {reason}", reason)
+
+    @property
+    def pending_switch(self) -> str | None:
+        """The switch to a factorisation decided after the last solve and made at the start of
+        the next one (its note), or None."""
+        return None if self._pending_switch is None else self._pending_switch[0]
+
+    def _switch_if_pending(self) -> None:
+        """Set up the factorisation :meth:`_reconsider` decided on, if any."""
+        if self._pending_switch is None:
+            return
+        (note, reason), self._pending_switch = self._pending_switch, None
+        self.stats.notes.append(note)
+        if self.on_switch is not None:
+            self.on_switch(reason)
+        self._solver = None                  # its memory is free before the factor's
+        self._set_up("direct", f"measured pace: {reason}")
 
     def solve_nearby(self, matrix, b: np.ndarray, x0: np.ndarray | None = None) -> np.ndarray:
         """Solve ``matrix @ x = b`` (one column) for a matrix near this session's one, such as

@@ -64,8 +64,12 @@ class Feedback:
             self.message(text)
 
     def message(self, text: str) -> None:
-        """One line on standard error (when enabled)."""
-        if self.enabled:
+        """One line on standard error (when enabled), above the open progress bar if any."""
+        if not self.enabled:
+            return
+        if self.bar is not None:
+            self.bar.write(f"{self.command}: {text}", file=sys.stderr)
+        else:
             print(f"{self.command}: {text}", file=sys.stderr, flush=True)
 
     def counter(self, what: str, unknowns: int):

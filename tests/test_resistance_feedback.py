@@ -197,3 +197,36 @@ def test_reading_commands_name_their_stages_on_a_large_network(tmp_path, monkeyp
     assert sum(count for _, count in counted) > 0
     main(["compare", str(tmp_path / "net.csv"), str(tmp_path / "m.csv"), "--quiet"])
     assert "ohmgraph compare:" not in capsys.readouterr().err
+
+
+def test_a_switch_to_a_factorisation_is_said_on_a_terminal(lattice_file, tmp_path, capsys,
+                                                           terminal, monkeypatch):
+    """When auto switches to direct during --pairs (here forced: the first choice made
+    iterative, a factorisation predicted free), the terminal hears it once, after the plan of
+    the whole batch, and the stored table names the back end that finished."""
+    import json
+
+    import ohmgraph.engine.session as session_module
+    import ohmgraph.engine.solvers.choice as choice_module
+    from ohmgraph.engine.solvers.choice import Choice
+
+    for name in ("ANALYSIS_SECONDS_PER_ENTRY", "FACTOR_SECONDS_PER_FLOP",
+                 "FACTOR_SECONDS_PER_ENTRY", "SOLVE_SECONDS_PER_FACTOR_ENTRY",
+                 "SOLVE_SECONDS_PER_UNKNOWN"):
+        monkeypatch.setattr(choice_module, name, 0.0)
+    real = session_module.choose
+    monkeypatch.setattr(session_module, "choose", lambda *args, **kwargs: Choice(
+        "amg-cg", "forced by the test", real(*args, **kwargs).predicted))
+    pairs = tmp_path / "pairs.csv"
+    pairs.write_text("a,b\n" + "".join(f"0_{i},29_{i}\n" for i in range(30)))
+    out = tmp_path / "p.csv"
+    code, _, err = run(capsys, "resistance", lattice_file, "--pairs", pairs, "-o", out)
+    assert code == 0, err
+    lines = err.splitlines()
+    switch = [k for k, line in enumerate(lines) if "switching to a factorisation" in line]
+    plan = [k for k, line in enumerate(lines) if "30 solves (pair solves), about" in line]
+    assert len(switch) == 1 and len(plan) == 1 and plan[0] < switch[0]
+    assert "direct is predicted" in lines[switch[0]]
+    stored = json.loads((tmp_path / "p.csv.provenance.json").read_text())["summary"]
+    assert stored["solver_method"] == "direct"
+    assert stored["solver_notes"].startswith("switched to direct after 1 of 30")

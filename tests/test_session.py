@@ -279,14 +279,19 @@ def test_auto_switches_to_direct_when_the_measured_pace_is_slower(monkeypatch):
     session.expect(40)
     rng = np.random.default_rng(1)
     first = rng.standard_normal(matrix.shape[0])
+    heard = []
+    session.on_switch = heard.append
     x = session.solve(first)
-    assert session.method == "direct" and session.stats.reason.startswith("measured pace")
-    assert any(note.startswith("switched to direct after 1 of 40 right-hand sides")
-               for note in session.stats.notes)
+    # decided now; said and set up at the start of the next solve
+    assert session.method == "ac-cg" and heard == []
+    assert session.pending_switch.startswith("switched to direct after 1 of 40 right-hand sides")
     assert session.stats.predicted["reconsidered_remaining"] == 39
     block = rng.standard_normal((matrix.shape[0], 39))
     y = session.solve(block)
-    assert session.method == "direct" and session.stats.solves == 40
+    assert session.method == "direct" and session.stats.reason.startswith("measured pace")
+    assert session.stats.notes[-1].startswith("switched to direct after 1 of 40")
+    assert session.pending_switch is None and session.stats.solves == 40
+    assert len(heard) == 1 and heard[0].startswith("the iterative solves so far take")
     # every vector handed out is proven, before and after the switch
     assert np.linalg.norm(matrix @ x - first) <= RTOL * np.linalg.norm(first)
     assert np.all(np.linalg.norm(matrix @ y - block, axis=0)
@@ -303,6 +308,20 @@ def test_auto_keeps_the_iterative_back_end_when_a_factorisation_is_dearer(monkey
     session.solve(np.ones((matrix.shape[0], 39)))
     assert session.method == "ac-cg" and session.stats.solves == 40
     assert not any("switched" in note for note in session.stats.notes)
+
+
+def test_a_new_query_drops_a_pending_switch(monkeypatch):
+    for name in ("FACTOR_SECONDS_PER_FLOP", "FACTOR_SECONDS_PER_ENTRY"):
+        monkeypatch.setattr(choice_module, name, 0.0)
+    _iterative_first(monkeypatch)
+    matrix = _lattice()
+    session = SolveSession(matrix, "auto", RTOL)
+    session.expect(40)
+    session.solve(np.ones(matrix.shape[0]))
+    assert session.pending_switch is not None
+    session.expect(1)                  # the rest of that query never comes: nothing factorised
+    session.solve(np.ones(matrix.shape[0]))
+    assert session.pending_switch is None and session.method == "ac-cg"
 
 
 def test_a_query_without_more_right_hand_sides_is_not_reconsidered(monkeypatch):

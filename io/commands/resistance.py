@@ -151,6 +151,8 @@ def run(args) -> int:
     except ValueError as error:
         raise NotWellPosed(f"{args.network}: not well-posed: {error}") from None
     feedback = Feedback("ohmgraph resistance", args.quiet)
+    solver.session.on_switch = lambda why: feedback.message(
+        f"switching to a factorisation for the remaining solves ({why})")
     feedback.stage(f"{solver.free.size} unknowns: setting up the solver ({args.method}) and "
                    "timing a first solve", solver.free.size)
     try:
