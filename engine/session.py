@@ -7,7 +7,8 @@ owns, for one symmetric positive-definite matrix:
 * the method choice (``auto`` asks :func:`ohmgraph.engine.solvers.choice.choose`, which knows how
   many right-hand sides are coming, and may switch an iterative set-up to a factorisation when a
   larger query arrives, or during a query when the iterative solves measured so far show a
-  factorisation cheaper for the rest of it: :func:`~.solvers.choice.direct_for_the_rest`);
+  factorisation cheaper for the rest of it: :func:`~.solvers.choice.direct_for_the_rest`; a
+  block that opens such a query has its first column solved alone, to measure the pace);
 * the set-up, done once and reused for every right-hand side;
 * the convergence check: every returned vector has a measured relative residual
   ``||A x - b|| / ||b|| <= rtol`` (a factorisation is held to ``max(rtol, 1e-8)``);
@@ -267,6 +268,12 @@ class SolveSession:
         self._switch_if_pending()
         if self._solver is None:
             self.expect(1 if b.ndim == 1 else b.shape[1])
+        if self._opens_a_long_query(b):
+            # auto times one column alone before committing a block to an iterative back end
+            parts = [(b[:, :1], x0), (b[:, 1:], x0)]
+            if x0 is not None and np.ndim(x0) == 2:
+                parts = [(b[:, :1], x0[:, :1]), (b[:, 1:], x0[:, 1:])]
+            return np.hstack([self.solve(part, guess) for part, guess in parts])
         x, info = self._solver.solve(b, x0)
         if not info.converged and self._adopted is not None:
             self.stats.notes.append(
@@ -293,6 +300,14 @@ class SolveSession:
         self._record(b, info)
         self._reconsider(1 if b.ndim == 1 else b.shape[1], info.solve_seconds)
         return x
+
+    def _opens_a_long_query(self, b: np.ndarray) -> bool:
+        """Whether ``b`` is a block opening a query of several right-hand sides that ``auto``
+        has given to an iterative back end: its first column is then solved alone, so that
+        :meth:`_reconsider` can weigh the measured pace before the rest."""
+        return (self.requested == "auto" and b.ndim == 2 and b.shape[1] > 1
+                and self._query_solved == 0 and self._query > 1
+                and self._solver.method != "direct")
 
     def _reconsider(self, columns: int, seconds: float) -> None:
         """With ``auto`` and an iterative back end, decide to switch to a factorisation when the

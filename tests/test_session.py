@@ -310,6 +310,26 @@ def test_auto_keeps_the_iterative_back_end_when_a_factorisation_is_dearer(monkey
     assert not any("switched" in note for note in session.stats.notes)
 
 
+def test_a_block_opening_a_query_is_timed_on_its_first_column(monkeypatch):
+    for name in ("ANALYSIS_SECONDS_PER_ENTRY", "FACTOR_SECONDS_PER_FLOP",
+                 "FACTOR_SECONDS_PER_ENTRY", "SOLVE_SECONDS_PER_FACTOR_ENTRY",
+                 "SOLVE_SECONDS_PER_UNKNOWN"):
+        monkeypatch.setattr(choice_module, name, 0.0)
+    _iterative_first(monkeypatch)
+    matrix = _lattice()
+    session = SolveSession(matrix, "auto", RTOL)
+    counted = []
+    session.on_solved = counted.append
+    block = np.random.default_rng(4).standard_normal((matrix.shape[0], 25))
+    x = session.solve(block)                      # no expect(): the block is the query
+    assert counted == [1, 24] and session.stats.solves == 25
+    assert session.method == "direct"
+    assert session.stats.notes[-1].startswith("switched to direct after 1 of 25")
+    assert x.shape == block.shape
+    assert np.all(np.linalg.norm(matrix @ x - block, axis=0)
+                  <= RTOL * np.linalg.norm(block, axis=0))
+
+
 def test_a_new_query_drops_a_pending_switch(monkeypatch):
     for name in ("FACTOR_SECONDS_PER_FLOP", "FACTOR_SECONDS_PER_ENTRY"):
         monkeypatch.setattr(choice_module, name, 0.0)
@@ -330,8 +350,13 @@ def test_a_query_without_more_right_hand_sides_is_not_reconsidered(monkeypatch):
     _iterative_first(monkeypatch)
     matrix = _lattice()
     session = SolveSession(matrix, "auto", RTOL)
-    session.solve(np.ones((matrix.shape[0], 3)))   # the whole query in one block
-    assert session.method == "ac-cg"
+    session.solve(np.ones(matrix.shape[0]))        # a query of one right-hand side
+    session.solve(np.ones(matrix.shape[0]))        # and another
+    assert session.method == "ac-cg" and session.pending_switch is None
+    asked = SolveSession(matrix, "ac-cg", RTOL)    # a method asked for is kept
+    asked.expect(40)
+    asked.solve(np.ones((matrix.shape[0], 40)))
+    assert asked.method == "ac-cg" and not asked.stats.notes
 
 
 def test_direct_for_the_rest_weighs_the_measured_pace_against_the_prediction():
