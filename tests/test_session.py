@@ -255,6 +255,14 @@ def _lattice(side: int = 60) -> sp.csr_matrix:
     return sp.csr_matrix(laplacian + 1e-2 * sp.eye(side * side))
 
 
+def _free_factorisation(monkeypatch):
+    """Make ``direct`` predicted free of cost, so any measured iterative pace is dearer."""
+    for name in ("ANALYSIS_SECONDS_PER_ENTRY", "FACTOR_SECONDS_PER_FLOP",
+                 "FACTOR_SECONDS_PER_ENTRY", "SOLVE_SECONDS_PER_FACTOR_ENTRY",
+                 "SOLVE_SECONDS_PER_UNKNOWN"):
+        monkeypatch.setattr(choice_module, name, 0.0)
+
+
 def _iterative_first(monkeypatch, method: str = "ac-cg"):
     """Make ``auto``'s first choice ``method``, whatever the predictions say, so that only the
     re-decision from measured solves can bring in a factorisation."""
@@ -267,12 +275,17 @@ def _iterative_first(monkeypatch, method: str = "ac-cg"):
     monkeypatch.setattr(session_module, "choose", first_choice)
 
 
+def _auto_session_forced_iterative(monkeypatch):
+    """An ``auto`` session on :func:`_lattice` whose first choice is ac-cg while a
+    factorisation is predicted free: every query of more than one column switches."""
+    _free_factorisation(monkeypatch)
+    _iterative_first(monkeypatch)
+    matrix = _lattice()
+    return SolveSession(matrix, "auto", RTOL), matrix
+
+
 def test_auto_switches_to_direct_when_the_measured_pace_is_slower(monkeypatch):
-    # a factorisation predicted free: any measured iterative pace is dearer
-    for name in ("ANALYSIS_SECONDS_PER_ENTRY", "FACTOR_SECONDS_PER_FLOP",
-                 "FACTOR_SECONDS_PER_ENTRY", "SOLVE_SECONDS_PER_FACTOR_ENTRY",
-                 "SOLVE_SECONDS_PER_UNKNOWN"):
-        monkeypatch.setattr(choice_module, name, 0.0)
+    _free_factorisation(monkeypatch)
     _iterative_first(monkeypatch)
     matrix = _lattice()
     session = SolveSession(matrix, "auto", RTOL)
@@ -311,10 +324,7 @@ def test_auto_keeps_the_iterative_back_end_when_a_factorisation_is_dearer(monkey
 
 
 def test_a_block_opening_a_query_is_timed_on_its_first_column(monkeypatch):
-    for name in ("ANALYSIS_SECONDS_PER_ENTRY", "FACTOR_SECONDS_PER_FLOP",
-                 "FACTOR_SECONDS_PER_ENTRY", "SOLVE_SECONDS_PER_FACTOR_ENTRY",
-                 "SOLVE_SECONDS_PER_UNKNOWN"):
-        monkeypatch.setattr(choice_module, name, 0.0)
+    _free_factorisation(monkeypatch)
     _iterative_first(monkeypatch)
     matrix = _lattice()
     session = SolveSession(matrix, "auto", RTOL)
@@ -331,11 +341,7 @@ def test_a_block_opening_a_query_is_timed_on_its_first_column(monkeypatch):
 
 
 def test_a_new_query_drops_a_pending_switch(monkeypatch):
-    for name in ("FACTOR_SECONDS_PER_FLOP", "FACTOR_SECONDS_PER_ENTRY"):
-        monkeypatch.setattr(choice_module, name, 0.0)
-    _iterative_first(monkeypatch)
-    matrix = _lattice()
-    session = SolveSession(matrix, "auto", RTOL)
+    session, matrix = _auto_session_forced_iterative(monkeypatch)
     session.expect(40)
     session.solve(np.ones(matrix.shape[0]))
     assert session.pending_switch is not None
@@ -345,11 +351,7 @@ def test_a_new_query_drops_a_pending_switch(monkeypatch):
 
 
 def test_a_query_without_more_right_hand_sides_is_not_reconsidered(monkeypatch):
-    for name in ("FACTOR_SECONDS_PER_FLOP", "FACTOR_SECONDS_PER_ENTRY"):
-        monkeypatch.setattr(choice_module, name, 0.0)
-    _iterative_first(monkeypatch)
-    matrix = _lattice()
-    session = SolveSession(matrix, "auto", RTOL)
+    session, matrix = _auto_session_forced_iterative(monkeypatch)
     session.solve(np.ones(matrix.shape[0]))        # a query of one right-hand side
     session.solve(np.ones(matrix.shape[0]))        # and another
     assert session.method == "ac-cg" and session.pending_switch is None
@@ -376,10 +378,7 @@ def test_direct_for_the_rest_weighs_the_measured_pace_against_the_prediction():
 
 
 def test_pairs_after_auto_switches_are_solved_by_the_factorisation(monkeypatch):
-    for name in ("ANALYSIS_SECONDS_PER_ENTRY", "FACTOR_SECONDS_PER_FLOP",
-                 "FACTOR_SECONDS_PER_ENTRY", "SOLVE_SECONDS_PER_FACTOR_ENTRY",
-                 "SOLVE_SECONDS_PER_UNKNOWN"):
-        monkeypatch.setattr(choice_module, name, 0.0)
+    _free_factorisation(monkeypatch)
     _iterative_first(monkeypatch, "amg-cg")
     net = supplied_grid()
     a = [f"n{r}_0" for r in range(8)] + ["n0_1", "n7_1"]          # 20 distinct terminals
