@@ -394,3 +394,16 @@ def test_pairs_after_auto_switches_are_solved_by_the_factorisation(monkeypatch):
     # each bound holds, allowing for the dense pseudo-inverse's own rounding (up to 1e-14 here)
     assert np.all(result.accuracy > 0) and np.all(result.accuracy < 1e-12)
     assert np.all(np.abs(result.ohms - expected) <= (result.accuracy + 1e-13) * np.abs(expected))
+
+
+def test_direct_for_the_rest_analyses_only_when_a_factorisation_could_win():
+    matrix = _lattice(30)
+    floor = choice_module.direct_floor(matrix, 10)
+    below = choice_module.direct_for_the_rest(matrix, floor, 10, 1e12, None)
+    assert below == (False, "", {}, None)                  # no analysis made
+    switch, _, predicted, analysis = choice_module.direct_for_the_rest(matrix, 1e9, 10, 1e12,
+                                                                       None)
+    assert switch and analysis is not None
+    assert analysis.factor_nonzeros == column_counts(matrix).factor_nonzeros
+    assert predicted["direct_seconds_for_the_rest"] == pytest.approx(
+        choice_module.direct_prediction(matrix, analysis.factor_nonzeros, analysis.flops, 10)[0])

@@ -424,15 +424,12 @@ def direct_for_the_rest(matrix, measured_seconds: float, remaining: int,
     remaining = max(int(remaining), 0)
     if remaining == 0:
         return False, "", {}, analysis
-    extra = 0.0
-    if analysis is None:
+    if analysis is None:           # made only when a factorisation could possibly win
         if RECONSIDER_MARGIN * direct_floor(matrix, remaining) >= measured_seconds:
             return False, "", {}, analysis
         analysis = column_counts(matrix)
-        extra = ANALYSIS_SECONDS_PER_ENTRY * matrix.nnz      # already spent, but it was needed
     direct_s, direct_b = direct_prediction(matrix, analysis.factor_nonzeros, analysis.flops,
                                            remaining)
-    direct_s += extra
     predicted = {"reconsidered_remaining": remaining,
                  "measured_iterative_seconds": measured_seconds,
                  "direct_seconds_for_the_rest": direct_s, "direct_bytes": direct_b}
