@@ -41,6 +41,12 @@ def format_seconds(seconds: float) -> str:
     return f"{seconds / 3600:.1f} h"
 
 
+def switch_text(why: str) -> str:
+    """The line said when ``auto`` switches to a factorisation during a query
+    (:attr:`ohmgraph.engine.session.SolveSession.on_switch`)."""
+    return f"switching to a factorisation for the remaining solves ({why})"
+
+
 class Feedback:
     """Messages and progress bars of one command run.
 
@@ -64,13 +70,9 @@ class Feedback:
             self.message(text)
 
     def message(self, text: str) -> None:
-        """One line on standard error (when enabled), above the open progress bar if any."""
-        if not self.enabled:
-            return
-        if self.bar is not None:
-            self.bar.write(f"{self.command}: {text}", file=sys.stderr)
-        else:
-            print(f"{self.command}: {text}", file=sys.stderr, flush=True)
+        """One line on standard error (when enabled), above any open progress bar."""
+        if self.enabled:           # tqdm's write clears and redraws any open bar around it
+            tqdm.write(f"{self.command}: {text}", file=sys.stderr)
 
     def counter(self, what: str, unknowns: int):
         """A bar without a total (count and rate) for work of unknown length, on networks of at

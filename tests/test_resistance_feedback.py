@@ -186,6 +186,10 @@ def test_reading_commands_name_their_stages_on_a_large_network(tmp_path, monkeyp
         def close(self):
             pass
 
+        @staticmethod
+        def write(text, file):          # as tqdm.write, without bars to redraw
+            print(text, file=file)
+
     monkeypatch.setattr(progress_module, "tqdm", Recorder)
     main(["diagnose", str(tmp_path / "net.csv"), str(tmp_path / "m.csv")])
     err = capsys.readouterr().err
@@ -199,13 +203,10 @@ def test_reading_commands_name_their_stages_on_a_large_network(tmp_path, monkeyp
     assert "ohmgraph compare:" not in capsys.readouterr().err
 
 
-def test_a_switch_to_a_factorisation_is_said_on_a_terminal(lattice_file, tmp_path, capsys,
-                                                           terminal, monkeypatch):
-    """When auto switches to direct during --pairs (here forced: the first choice made
-    iterative, a factorisation predicted free), the terminal hears it once, after the plan of
-    the whole batch, and the stored table names the back end that finished."""
-    import json
-
+@pytest.fixture
+def forced_switch(monkeypatch):
+    """``auto`` first chooses amg-cg while a factorisation is predicted free: every query of
+    more than one right-hand side switches to direct after its first column."""
     import ohmgraph.engine.session as session_module
     import ohmgraph.engine.solvers.choice as choice_module
     from ohmgraph.engine.solvers.choice import Choice
@@ -217,6 +218,15 @@ def test_a_switch_to_a_factorisation_is_said_on_a_terminal(lattice_file, tmp_pat
     real = session_module.choose
     monkeypatch.setattr(session_module, "choose", lambda *args, **kwargs: Choice(
         "amg-cg", "forced by the test", real(*args, **kwargs).predicted))
+
+
+def test_a_switch_to_a_factorisation_is_said_on_a_terminal(lattice_file, tmp_path, capsys,
+                                                           terminal, forced_switch):
+    """When auto switches to direct during --pairs (here forced: the first choice made
+    iterative, a factorisation predicted free), the terminal hears it once, after the plan of
+    the whole batch, and the stored table names the back end that finished."""
+    import json
+
     pairs = tmp_path / "pairs.csv"
     pairs.write_text("a,b\n" + "".join(f"0_{i},29_{i}\n" for i in range(30)))
     out = tmp_path / "p.csv"
@@ -230,3 +240,17 @@ def test_a_switch_to_a_factorisation_is_said_on_a_terminal(lattice_file, tmp_pat
     stored = json.loads((tmp_path / "p.csv.provenance.json").read_text())["summary"]
     assert stored["solver_method"] == "direct"
     assert stored["solver_notes"].startswith("switched to direct after 1 of 30")
+
+
+def test_diagnose_says_when_auto_switches_to_a_factorisation(tmp_path, monkeypatch, capsys,
+                                                            forced_switch):
+    """The fault ranking's sessions announce a mid-query switch on a terminal too (forced as in
+    the --pairs test above)."""
+    from ohmgraph.io.branch_table import write_branch_table
+
+    monkeypatch.setattr(progress_module, "stderr_is_terminal", lambda: True)
+    write_branch_table(tmp_path / "net.csv", grid2d(12, 12, pads=2, loads=5, seed=1))
+    (tmp_path / "m.csv").write_text("kind,a,b,value,accuracy\nV,3_4,,0.99,1%\nV,10_10,,0.9,1%\n")
+    assert main(["diagnose", str(tmp_path / "net.csv"), str(tmp_path / "m.csv")]) in (0, 1)
+    err = capsys.readouterr().err
+    assert "ohmgraph diagnose: switching to a factorisation for the remaining solves" in err

@@ -16,7 +16,7 @@ from ohmgraph.io.errors import NotWellPosed, SolverError
 from ohmgraph.io.html_summary import check_html
 from ohmgraph.io.measurement_table import accuracy_rules, read_measurements
 from ohmgraph.io.memory_guard import refuse_if_too_big
-from ohmgraph.io.progress import Feedback
+from ohmgraph.io.progress import Feedback, switch_text
 from ohmgraph.io.reader import read_network
 from ohmgraph.io.result_store import command_options
 from ohmgraph.io.result_table import write_result_table
@@ -82,15 +82,18 @@ def reading_columns(table, model: ReadingModel, result, bands=None) -> dict:
 @contextmanager
 def counting_solves(args, model: ReadingModel, what: str):
     """Show a running count of the solves ``model``'s sessions make inside the block (a bar
-    without a total: a fault ranking's number of solves is not known in advance)."""
-    bar = feedback(args).counter(what, model.network.n_nodes)
+    without a total: a fault ranking's number of solves is not known in advance), and say so
+    when ``auto`` switches one of them to a factorisation."""
+    say = feedback(args)
+    bar = say.counter(what, model.network.n_nodes)
     sessions = [system.session for system in model.systems.values()]
     for session in sessions:
         session.on_solved = None if bar is None else bar.update
+        session.on_switch = lambda why: say.message(switch_text(why))
     try:
         yield
     finally:
         for session in sessions:
-            session.on_solved = None
+            session.on_solved = session.on_switch = None
         if bar is not None:
             bar.close()

@@ -27,7 +27,7 @@ from ohmgraph.io.memory_guard import refuse_if_too_big
 from ohmgraph.io.mpi_launch import launched_rank, launched_size
 from ohmgraph.io.numbers import UNCERTAINTY_DIGITS, digits_for, quantity, significant
 from ohmgraph.io.pairs import read_pairs
-from ohmgraph.io.progress import Feedback, format_seconds
+from ohmgraph.io.progress import Feedback, format_seconds, switch_text
 from ohmgraph.io.reader import read_network
 from ohmgraph.io.result_store import command_options
 from ohmgraph.io.result_table import TABLE_FORMATS, write_result_table
@@ -151,8 +151,7 @@ def run(args) -> int:
     except ValueError as error:
         raise NotWellPosed(f"{args.network}: not well-posed: {error}") from None
     feedback = Feedback("ohmgraph resistance", args.quiet)
-    solver.session.on_switch = lambda why: feedback.message(
-        f"switching to a factorisation for the remaining solves ({why})")
+    solver.session.on_switch = lambda why: feedback.message(switch_text(why))
     feedback.stage(f"{solver.free.size} unknowns: setting up the solver ({args.method}) and "
                    "timing a first solve", solver.free.size)
     try:
