@@ -136,7 +136,7 @@ class SolveSession:
         # Called with the reason when a switch to a factorisation decided during a query (auto)
         # is about to be set up, at the start of the next solve: callers may say so.
         self.on_switch = None
-        self._pending_switch: tuple[str, str] | None = None    # (note, reason)
+        self._pending_switch: tuple | None = None     # (note, reason, predicted numbers)
         if kept is not None:
             self._consider(kept)
 
@@ -325,9 +325,9 @@ class SolveSession:
             self._analysis)
         self.stats.setup_seconds += time.perf_counter() - start
         if switch:
-            self.stats.predicted.update(predicted)
             self._pending_switch = (f"switched to direct after {self._query_solved} of "
-                                    f"{self._query} right-hand sides: {reason}", reason)
+                                    f"{self._query} right-hand sides: {reason}", reason,
+                                    predicted)
 
     @property
     def pending_switch(self) -> str | None:
@@ -339,8 +339,9 @@ class SolveSession:
         """Set up the factorisation :meth:`_reconsider` decided on, if any."""
         if self._pending_switch is None:
             return
-        (note, reason), self._pending_switch = self._pending_switch, None
+        (note, reason, predicted), self._pending_switch = self._pending_switch, None
         self.stats.notes.append(note)
+        self.stats.predicted.update(predicted)
         if self.on_switch is not None:
             self.on_switch(reason)
         self._solver = None                  # its memory is free before the factor's

@@ -298,12 +298,13 @@ def test_auto_switches_to_direct_when_the_measured_pace_is_slower(monkeypatch):
     # decided now; said and set up at the start of the next solve
     assert session.method == "ac-cg" and heard == []
     assert session.pending_switch.startswith("switched to direct after 1 of 40 right-hand sides")
-    assert session.stats.predicted["reconsidered_remaining"] == 39
+    assert "reconsidered_remaining" not in session.stats.predicted   # recorded when it is made
     block = rng.standard_normal((matrix.shape[0], 39))
     y = session.solve(block)
     assert session.method == "direct" and session.stats.reason.startswith("measured pace")
     assert session.stats.notes[-1].startswith("switched to direct after 1 of 40")
     assert session.pending_switch is None and session.stats.solves == 40
+    assert session.stats.predicted["reconsidered_remaining"] == 39
     assert len(heard) == 1 and heard[0].startswith("the iterative solves so far take")
     # every vector handed out is proven, before and after the switch
     assert np.linalg.norm(matrix @ x - first) <= RTOL * np.linalg.norm(first)
@@ -348,6 +349,8 @@ def test_a_new_query_drops_a_pending_switch(monkeypatch):
     session.expect(1)                  # the rest of that query never comes: nothing factorised
     session.solve(np.ones(matrix.shape[0]))
     assert session.pending_switch is None and session.method == "ac-cg"
+    assert not any("switched" in note for note in session.stats.notes)
+    assert "reconsidered_remaining" not in session.stats.predicted
 
 
 def test_a_query_without_more_right_hand_sides_is_not_reconsidered(monkeypatch):
